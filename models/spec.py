@@ -1,0 +1,288 @@
+"""Model specification: states and their items, lag order, free paths, innovation form.
+
+The model (published dynamic factor model, usual symbols):
+    y_t   = nu + Lambda eta_t + eps_t,                eps_t ~ N(0, Theta), Theta diagonal
+    eta_t = B_1 eta_{t-1} + ... + B_q eta_{t-q} + zeta_t,  zeta_t ~ N(0, Psi)
+Path masks: ``paths[l][i][j]`` is True when state i at t depends on state j at t-(l+1);
+the diagonal of lag 1 holds the inertias. An optional lag-1 autocorrelation d of an item's
+unique part (eps_t = d eps_{t-1} + u_t) is listed in `unique_autocorrelation`.
+Specifications are immutable values: editors build new ones (which makes undo simple).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from typing import Literal
+
+import numpy as np
+
+from models.errors import SpecError
+
+InnovationForm = Literal["free", "independent", "partial"]
+Identification = Literal["marker", "variance"]
+INNOVATION_FORMS: tuple[str, ...] = ("free", "independent", "partial")
+IDENTIFICATIONS: tuple[str, ...] = ("marker", "variance")
+
+PathMask = tuple[tuple[bool, ...], ...]
+
+
+@dataclass(frozen=True)
+class State:
+    """A latent state measured by `items`; `marker` (default: the first item) has loading 1."""
+
+    name: str
+    items: tuple[str, ...]
+    marker: str | None = None
+
+    @property
+    def marker_item(self) -> str:
+        return self.marker if self.marker is not None else (self.items[0] if self.items else "")
+
+
+def full_mask(k: int, value: bool = True) -> PathMask:
+    return tuple(tuple(value for _ in range(k)) for _ in range(k))
+
+
+def inertia_mask(k: int) -> PathMask:
+    return tuple(tuple(i == j for j in range(k)) for i in range(k))
+
+
+@dataclass(frozen=True)
+class ModelSpec:
+    """A complete, immutable model specification (see module docstring).
+
+    lags: 0 (a plain factor model: occasions treated as independent), 1 or 2.
+    paths: one k x k mask per lag; None means every path free.
+    innovations: "free" covariances, "independent" (diagonal Psi) or "partial"
+        (Psi^-1 parameterised by partial correlations; pairs in `partial_zeros` fixed at 0).
+    identification: "marker" (marker loading 1) or "variance" (innovation variance 1).
+    reliability: item -> reliability for single-item states (unique variance then
+        (1 - reliability) x the item's variance instead of 0).
+    """
+
+    states: tuple[State, ...]
+    lags: int = 1
+    paths: tuple[PathMask, ...] | None = None
+    identification: Identification = "marker"
+    innovations: InnovationForm = "free"
+    partial_zeros: tuple[tuple[str, str], ...] = ()
+    reliability: tuple[tuple[str, float], ...] = ()
+    unique_autocorrelation: tuple[str, ...] = ()
+
+    # ----- derived views -------------------------------------------------------------
+    @property
+    def state_names(self) -> tuple[str, ...]:
+        return tuple(s.name for s in self.states)
+
+    @property
+    def k(self) -> int:
+        return len(self.states)
+
+    @property
+    def items(self) -> tuple[str, ...]:
+        """All items in order of first appearance."""
+        seen: dict[str, None] = {}
+        for s in self.states:
+            for it in s.items:
+                seen.setdefault(it, None)
+        return tuple(seen)
+
+    def path_mask(self, lag: int) -> np.ndarray:
+        """(k, k) bool mask of free paths at `lag` (1-based); all True when unset."""
+        if lag < 1 or lag > self.lags:
+            raise ValueError(f"lag {lag} outside 1..{self.lags}")
+        if self.paths is None or len(self.paths) < lag:
+            return np.ones((self.k, self.k), dtype=bool)
+        return np.array(self.paths[lag - 1], dtype=bool).reshape(self.k, self.k)
+
+    def loading_mask(self) -> np.ndarray:
+        """(p, k) bool: item i measures state j."""
+        items = self.items
+        mask = np.zeros((len(items), self.k), dtype=bool)
+        for j, s in enumerate(self.states):
+            for it in s.items:
+                mask[items.index(it), j] = True
+        return mask
+
+    def reliability_of(self, item: str) -> float | None:
+        return dict(self.reliability).get(item)
+
+    # ----- editing helpers (each returns a new spec) ---------------------------------
+    def with_paths(self, lag: int, mask: np.ndarray) -> "ModelSpec":
+        masks = [self.path_mask(l).copy() for l in range(1, self.lags + 1)]
+        masks[lag - 1] = np.asarray(mask, dtype=bool)
+        return replace(self, paths=tuple(_as_mask(m) for m in masks))
+
+    def with_lags(self, lags: int) -> "ModelSpec":
+        masks = [self.path_mask(l) if l <= self.lags else np.zeros((self.k, self.k), bool)
+                 for l in range(1, lags + 1)]
+        return replace(self, lags=lags, paths=tuple(_as_mask(m) for m in masks))
+
+    def with_states(self, states: tuple[State, ...]) -> "ModelSpec":
+        """New states; path masks follow the states by name (new states: all paths free)."""
+        old = self.state_names
+        new = tuple(s.name for s in states)
+        masks = []
+        for lag in range(1, self.lags + 1):
+            m_old = self.path_mask(lag)
+            m = np.ones((len(new), len(new)), dtype=bool)
+            for i, a in enumerate(new):
+                for j, b in enumerate(new):
+                    if a in old and b in old:
+                        m[i, j] = m_old[old.index(a), old.index(b)]
+            masks.append(_as_mask(m))
+        zeros = tuple(z for z in self.partial_zeros if z[0] in new and z[1] in new)
+        return replace(self, states=tuple(states), paths=tuple(masks), partial_zeros=zeros)
+
+    # ----- validation ----------------------------------------------------------------
+    def validate(self, available_items: tuple[str, ...] | list[str] | None = None) -> list[str]:
+        """Raise SpecError for a model that cannot be estimated; return plain-word notes."""
+        notes: list[str] = []
+        if not self.states:
+            raise SpecError("The model has no states: add a state and give it items.")
+        names = self.state_names
+        if len(set(names)) != len(names):
+            raise SpecError("Two states share a name: give each state its own name.")
+        if any(not n.strip() for n in names):
+            raise SpecError("A state has an empty name.")
+        if self.lags not in (0, 1, 2):
+            raise SpecError(f"Lag order must be 0, 1 or 2, not {self.lags}.")
+        if self.identification not in IDENTIFICATIONS:
+            raise SpecError(f"Unknown identification '{self.identification}'.")
+        if self.innovations not in INNOVATION_FORMS:
+            raise SpecError(f"Unknown innovation form '{self.innovations}'.")
+        for s in self.states:
+            if not s.items:
+                raise SpecError(f"State '{s.name}' has no items: assign at least one item.")
+            if len(set(s.items)) != len(s.items):
+                raise SpecError(f"State '{s.name}' lists an item twice.")
+            if self.identification == "marker" and s.marker_item not in s.items:
+                raise SpecError(f"State '{s.name}': marker '{s.marker_item}' is not one of its items.")
+            if available_items is not None:
+                for it in s.items:
+                    if it not in available_items:
+                        raise SpecError(f"State '{s.name}': unknown item '{it}' (not in the data).")
+        if self.paths is not None:
+            if len(self.paths) != self.lags:
+                raise SpecError(f"Expected {self.lags} path mask(s), got {len(self.paths)}.")
+            for m in self.paths:
+                if np.array(m).shape != (self.k, self.k):
+                    raise SpecError("A path mask does not match the number of states.")
+        for a, b in self.partial_zeros:
+            if a not in names or b not in names or a == b:
+                raise SpecError(f"Partial-correlation zero ({a}, {b}) does not name two states.")
+        items = self.items
+        for it, r in self.reliability:
+            if it not in items:
+                raise SpecError(f"Reliability given for '{it}', which no state uses.")
+            if not 0.0 < r <= 1.0:
+                raise SpecError(f"Reliability of '{it}' must lie in (0, 1], not {r}.")
+        for it in self.unique_autocorrelation:
+            if it not in items:
+                raise SpecError(f"Unique autocorrelation for '{it}', which no state uses.")
+        for s in self.states:
+            if len(s.items) == 1:
+                it = s.items[0]
+                if self.reliability_of(it) is None and _n_states_of(self, it) == 1:
+                    notes.append(f"{s.name} has one item: its unique variance is fixed at 0 "
+                                 f"(it is measured without error).")
+                elif _n_states_of(self, it) == 1:
+                    notes.append(f"{s.name} has one item: its unique variance is fixed by the "
+                                 f"reliability {self.reliability_of(it):g}.")
+            elif len(s.items) == 2 and self.k == 1 and self.lags == 0:
+                raise SpecError(f"State '{s.name}' has two items and nothing else to lean on: "
+                                f"it is not identified. Add a third item.")
+        return notes
+
+    # ----- JSON ----------------------------------------------------------------------
+    def to_json(self) -> dict:
+        return {
+            "states": [{"name": s.name, "items": list(s.items), "marker": s.marker} for s in self.states],
+            "lags": self.lags,
+            "paths": None if self.paths is None else [[list(r) for r in m] for m in self.paths],
+            "identification": self.identification,
+            "innovations": self.innovations,
+            "partial_zeros": [list(z) for z in self.partial_zeros],
+            "reliability": {k: v for k, v in self.reliability},
+            "unique_autocorrelation": list(self.unique_autocorrelation),
+        }
+
+    @classmethod
+    def from_json(cls, doc: dict) -> "ModelSpec":
+        """Build a spec from `to_json` output; malformed documents raise SpecError."""
+        try:
+            states = tuple(
+                State(name=str(s["name"]), items=tuple(str(i) for i in s["items"]),
+                      marker=None if s.get("marker") is None else str(s["marker"]))
+                for s in doc["states"])
+            paths = doc.get("paths")
+            spec = cls(
+                states=states,
+                lags=int(doc.get("lags", 1)),
+                paths=None if paths is None else tuple(
+                    tuple(tuple(bool(v) for v in row) for row in m) for m in paths),
+                identification=str(doc.get("identification", "marker")),  # type: ignore[arg-type]
+                innovations=str(doc.get("innovations", "free")),  # type: ignore[arg-type]
+                partial_zeros=tuple((str(a), str(b)) for a, b in doc.get("partial_zeros", [])),
+                reliability=tuple((str(k), float(v)) for k, v in dict(doc.get("reliability", {})).items()),
+                unique_autocorrelation=tuple(str(i) for i in doc.get("unique_autocorrelation", [])),
+            )
+        except (KeyError, TypeError, ValueError, AttributeError) as exc:
+            raise SpecError(f"The model specification is malformed ({exc.__class__.__name__}: {exc}).") from None
+        spec.validate()
+        return spec
+
+
+def _as_mask(m: np.ndarray) -> PathMask:
+    return tuple(tuple(bool(v) for v in row) for row in np.asarray(m, dtype=bool))
+
+
+def _n_states_of(spec: ModelSpec, item: str) -> int:
+    return sum(item in s.items for s in spec.states)
+
+
+def make_spec(states: dict[str, list[str]] | list[tuple[str, list[str]]], lags: int = 1,
+              **options) -> ModelSpec:
+    """Convenience: ``make_spec({"mood": ["happy", "sad"], ...}, lags=1)``."""
+    pairs = list(states.items()) if isinstance(states, dict) else list(states)
+    return ModelSpec(states=tuple(State(n, tuple(i)) for n, i in pairs), lags=lags, **options)
+
+
+@dataclass(frozen=True)
+class FitOptions:
+    """Estimator settings.
+
+    estimator: "stationary" (block-Toeplitz windows, default), "first-copy-free" (free
+        covariance of the oldest copies), or "exact" (Kalman filter likelihood).
+    missing: "fiml" (full information over missingness patterns) or "listwise".
+    depth: window depth (default: the lag order).
+    """
+
+    estimator: str = "stationary"
+    missing: str = "fiml"
+    depth: int | None = None
+    max_iter: int = 2000
+
+    def window_depth(self, spec: ModelSpec) -> int:
+        d = spec.lags if self.depth is None else int(self.depth)
+        if d < spec.lags:
+            raise SpecError(f"Window depth {d} is below the lag order {spec.lags}.")
+        return d
+
+    def to_json(self) -> dict:
+        return {"estimator": self.estimator, "missing": self.missing, "depth": self.depth,
+                "max_iter": self.max_iter}
+
+    @classmethod
+    def from_json(cls, doc: dict) -> "FitOptions":
+        try:
+            return cls(estimator=str(doc.get("estimator", "stationary")),
+                       missing=str(doc.get("missing", "fiml")),
+                       depth=None if doc.get("depth") is None else int(doc["depth"]),
+                       max_iter=int(doc.get("max_iter", 2000)))
+        except (TypeError, ValueError, AttributeError) as exc:
+            raise SpecError(f"The estimator settings are malformed ({exc}).") from None
+
+
+ESTIMATORS: tuple[str, ...] = ("stationary", "first-copy-free", "exact")
+MISSING: tuple[str, ...] = ("fiml", "listwise")
