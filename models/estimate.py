@@ -153,7 +153,7 @@ def _maximise(objective: WindowObjective, theta0: np.ndarray, max_iter: int,
     bounds = [(None if lo is None else lo / sc, None if hi is None else hi / sc)
               for (lo, hi), sc in zip(objective.layout.bounds(), s)]
     res = minimize(f, theta0 / s, jac=True, method="L-BFGS-B", bounds=bounds, callback=callback,
-                   options={"maxiter": max_iter, "maxcor": 30, "ftol": 1e-14, "gtol": 1e-9})
+                   options={"maxiter": max_iter, "maxcor": 30, "ftol": 1e-12, "gtol": 1e-8})
     theta = res.x * s
     try:
         objective.loglik(theta)

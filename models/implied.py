@@ -68,16 +68,20 @@ def implied_moments(m: Matrices, depth: int, estimator: str) -> Implied:
     m_inv = np.linalg.inv(np.eye(kk) - a)
     phi_xi = m_inv @ psi_big @ m_inv.T
     lam_big = np.kron(np.eye(copies), m.lam)
-    sigma = lam_big @ phi_xi @ lam_big.T
-    for ca in range(copies):
-        for cb in range(copies):
-            h = abs(ca - cb)
-            dvec = m.theta * (m.d ** h)
-            idx_a = np.arange(ca * p, (ca + 1) * p)
-            idx_b = np.arange(cb * p, (cb + 1) * p)
-            sigma[idx_a, idx_b] += dvec
+    lagdist = np.abs(np.subtract.outer(np.arange(copies), np.arange(copies)))
+    theta_blocks = m.theta[None, None, :] * m.d[None, None, :] ** lagdist[:, :, None]
+    sigma = lam_big @ phi_xi @ lam_big.T + _block_diagonals(theta_blocks)
     mu = np.tile(m.nu, copies)
     return Implied(mu=mu, sigma=sigma, lam_big=lam_big, m_inv=m_inv, phi_xi=phi_xi, comp=comp, p_old=p_old)
+
+
+def _block_diagonals(blocks: np.ndarray) -> np.ndarray:
+    """(c, c, p) diagonals -> (c p, c p) matrix whose (a, b) block is diag(blocks[a, b])."""
+    c, _, p = blocks.shape
+    out = np.zeros((c, p, c, p))
+    idx = np.arange(p)
+    out[:, idx, :, idx] = blocks.transpose(2, 0, 1)
+    return out.reshape(c * p, c * p)
 
 
 def matrix_gradients(m: Matrices, imp: Implied, g_sigma: np.ndarray, g_mu: np.ndarray,
@@ -88,20 +92,12 @@ def matrix_gradients(m: Matrices, imp: Implied, g_sigma: np.ndarray, g_mu: np.nd
     q = m.lagged.shape[0]
     copies = depth + 1
     g_nu = g_mu.reshape(copies, p).sum(axis=0)
-    # unique variances and their autocorrelation
-    gd_blocks = np.empty((copies, copies, p))
-    for ca in range(copies):
-        for cb in range(copies):
-            gd_blocks[ca, cb] = np.diag(g_sigma[ca * p:(ca + 1) * p, cb * p:(cb + 1) * p])
-    lagdist = np.abs(np.subtract.outer(np.arange(copies), np.arange(copies)))
-    g_theta = np.zeros(p)
-    g_d = np.zeros(p)
-    for ca in range(copies):
-        for cb in range(copies):
-            h = lagdist[ca, cb]
-            g_theta += gd_blocks[ca, cb] * m.d ** h
-            if h > 0:
-                g_d += gd_blocks[ca, cb] * m.theta * h * m.d ** (h - 1)
+    # unique variances and their autocorrelation: diagonals of each (a, b) block of G
+    gd_blocks = np.diagonal(g_sigma.reshape(copies, p, copies, p), axis1=1, axis2=3)
+    lagdist = np.abs(np.subtract.outer(np.arange(copies), np.arange(copies)))[:, :, None]
+    g_theta = np.sum(gd_blocks * m.d[None, None, :] ** lagdist, axis=(0, 1))
+    g_d = np.sum(np.where(lagdist > 0, gd_blocks * m.theta * lagdist
+                          * m.d[None, None, :] ** np.maximum(lagdist - 1, 0), 0.0), axis=(0, 1))
     # loadings
     g_lam_big = 2.0 * g_sigma @ imp.lam_big @ imp.phi_xi
     g_lam = sum(g_lam_big[j * p:(j + 1) * p, j * k:(j + 1) * k] for j in range(copies))

@@ -1,0 +1,86 @@
+"""`lagwise fit DATA --state NAME=ITEM,ITEM ... [options]`: estimate and report a model.
+
+Exit codes: 0 success, 2 bad input (one line on stderr), 3 the optimiser did not converge
+(the report and JSON are still written, flagged).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+from desktop.cli_common import add_diary_arguments, diary_from_args
+from models.errors import SpecError
+from models.estimate import fit
+from models.report import format_result
+from models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec, State, full_mask, inertia_mask
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    add_diary_arguments(parser)
+    model = parser.add_argument_group("model")
+    model.add_argument("--state", action="append", metavar="NAME=ITEM,ITEM,...",
+                       help="a latent state and its items (repeat for each state; the first item is the marker)")
+    model.add_argument("--lags", type=int, choices=(1, 2), default=1, help="lag order (default 1)")
+    model.add_argument("--paths", choices=("all", "inertia"), default="all",
+                       help="free lagged paths: all (default) or inertia only")
+    model.add_argument("--innovations", choices=("free", "independent", "partial"), default="free",
+                       help="innovation covariances: free (default), independent, or partial correlations")
+    model.add_argument("--identification", choices=("marker", "variance"), default="marker",
+                       help="scale of each state: marker loading 1 (default) or innovation variance 1")
+    est = parser.add_argument_group("estimation")
+    est.add_argument("--estimator", choices=ESTIMATORS, default="stationary")
+    est.add_argument("--missing", choices=MISSING, default="fiml")
+    est.add_argument("--depth", type=int, help="window depth (default: the lag order)")
+    parser.add_argument("--json", metavar="OUT", help="write the result as JSON to OUT")
+
+
+def parse_states(texts: list[str] | None) -> tuple[State, ...]:
+    if not texts:
+        raise SpecError("give at least one --state NAME=ITEM,ITEM,...")
+    states = []
+    for text in texts:
+        name, sep, items = text.partition("=")
+        if not sep or not name.strip():
+            raise SpecError(f"--state '{text}' is not NAME=ITEM,ITEM,...")
+        parts = tuple(i.strip() for i in items.split(",") if i.strip())
+        if not parts:
+            raise SpecError(f"--state '{name.strip()}' lists no items")
+        states.append(State(name.strip(), parts))
+    return tuple(states)
+
+
+def spec_from_args(args: argparse.Namespace) -> ModelSpec:
+    states = parse_states(args.state)
+    k = len(states)
+    mask = full_mask(k) if args.paths == "all" else inertia_mask(k)
+    masks = tuple(mask if lag == 1 else (full_mask(k) if args.paths == "all" else full_mask(k, False))
+                  for lag in range(1, args.lags + 1))
+    return ModelSpec(states=states, lags=args.lags, paths=masks, innovations=args.innovations,
+                     identification=args.identification)
+
+
+def run(args: argparse.Namespace) -> int:
+    spec = spec_from_args(args)
+    if args.items is None:
+        args.items = ",".join(spec.items)
+    diary = diary_from_args(args)
+    options = FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth)
+    result = fit(diary, spec, options)
+    print(format_result(result))
+    if args.json:
+        Path(args.json).write_text(json.dumps(result.to_json(), indent=2, allow_nan=False,
+                                              default=_plain), encoding="utf-8")
+    if not result.converged:
+        print("lagwise: the optimiser did not converge; results are flagged", file=sys.stderr)
+        return 3
+    return 0
+
+
+def _plain(value):
+    """JSON for numpy scalars."""
+    if hasattr(value, "item"):
+        return value.item()
+    raise TypeError(f"not JSON serialisable: {type(value).__name__}")
