@@ -71,16 +71,10 @@ def run(args: argparse.Namespace) -> int:
     result = fit(diary, spec, options)
     print(format_result(result))
     if args.json:
-        Path(args.json).write_text(json.dumps(result.to_json(), indent=2, allow_nan=False,
-                                              default=_plain), encoding="utf-8")
+        Path(args.json).write_text(json.dumps(result.to_json(), indent=2, allow_nan=False),
+                                   encoding="utf-8")
     if not result.converged:
         print("lagwise: the optimiser did not converge; results are flagged", file=sys.stderr)
         return 3
     return 0
 
-
-def _plain(value):
-    """JSON for numpy scalars."""
-    if hasattr(value, "item"):
-        return value.item()
-    raise TypeError(f"not JSON serialisable: {type(value).__name__}")

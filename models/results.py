@@ -158,9 +158,13 @@ class FitResult:
         return pc
 
     def to_json(self) -> dict:
-        """The JSON contract of `lagwise fit --json`."""
+        """The JSON contract of `lagwise fit --json` (plus what `from_json` needs to rebuild
+        the result). Non-finite numbers become null."""
         fit = self.fit.to_json()
-        return {
+        return _finite({
+            "format": "lagwise-result",
+            "spec": self.spec.to_json(),
+            "options": self.options.to_json(),
             "estimator": self.estimator,
             "converged": self.converged,
             "message": self.message,
@@ -175,5 +179,72 @@ class FitResult:
             "fit": fit,
             "r_squared": {it: float(r) for it, r in zip(self.items, self.r_squared)},
             "latent_cov": self.latent_cov.tolist(),
+            "matrices": {
+                "loadings": self.loadings.tolist(), "intercepts": self.intercepts.tolist(),
+                "unique": self.unique.tolist(), "lagged": [b.tolist() for b in self.lagged],
+                "innovation": self.innovation.tolist(), "latent_cov": self.latent_cov.tolist(),
+                "r_squared": self.r_squared.tolist(),
+            },
             "extras": self.extras,
-        }
+        })
+
+    @classmethod
+    def from_json(cls, doc: dict) -> "FitResult":
+        """Rebuild a result written by `to_json`; malformed documents raise ValueError."""
+        try:
+            spec = ModelSpec.from_json(doc["spec"])
+            m = doc["matrices"]
+            f = doc["fit"]
+
+            def arr(x, shape):
+                a = np.array([np.nan if v is None else v for v in np.ravel(np.array(x, dtype=object))],
+                             dtype=float)
+                return a.reshape(shape)
+
+            p, k = len(spec.items), spec.k
+            fit = FitIndices(
+                chi2=_opt(f["chi2"]), df=int(f["df"]), p=_opt(f["p"]), rmsea=_opt(f["rmsea"]),
+                rmsea_ci=None if f.get("rmsea_ci") is None else (float(f["rmsea_ci"][0]), float(f["rmsea_ci"][1])),
+                rmsea_pclose=_opt(f.get("rmsea_pclose")), cfi=_opt(f["cfi"]), tli=_opt(f["tli"]),
+                srmr=_opt(f["srmr"]), loglik=float(f["loglik"]), aic=float(f["aic"]), bic=float(f["bic"]),
+                n_free=int(f["n_free"]), n_obs=int(f["n_obs"]), exact=bool(f.get("exact", False)))
+            params = tuple(
+                Parameter(kind=str(q["kind"]), from_=str(q["from"]), to=str(q["to"]),
+                          estimate=float(q["estimate"]), se=_opt(q["se"]), standardized=_opt(q["standardized"]),
+                          free=bool(q["free"]), lag=int(q.get("lag", 0)))
+                for q in doc["parameters"])
+            return cls(
+                spec=spec, options=FitOptions.from_json(doc["options"]), estimator=str(doc["estimator"]),
+                converged=bool(doc["converged"]), message=str(doc.get("message", "")),
+                iterations=int(doc.get("iterations", 0)), seconds=float(doc.get("seconds", 0.0)),
+                n_windows=int(doc["n_windows"]), n_occasions=int(doc["n_occasions"]), parameters=params,
+                fit=fit, loadings=arr(m["loadings"], (p, k)), intercepts=arr(m["intercepts"], (p,)),
+                unique=arr(m["unique"], (p,)),
+                lagged=tuple(arr(b, (k, k)) for b in m["lagged"]),
+                innovation=arr(m["innovation"], (k, k)), latent_cov=arr(m["latent_cov"], (k, k)),
+                r_squared=arr(m["r_squared"], (p,)), spectral_radius=float(doc["spectral_radius"]),
+                flags=tuple(str(x) for x in doc.get("flags", [])),
+                cautions=tuple(str(x) for x in doc.get("cautions", [])) or (CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO, CAUTION_SE),
+                extras=dict(doc.get("extras", {})),
+            )
+        except (KeyError, TypeError, ValueError, IndexError, AttributeError) as exc:
+            raise ValueError(f"the stored result is malformed ({exc.__class__.__name__}: {exc})") from None
+
+
+def _opt(value) -> float | None:
+    return None if value is None else float(value)
+
+
+def _finite(obj):
+    """Replace NaN/inf by None and numpy scalars by Python numbers, recursively."""
+    if isinstance(obj, dict):
+        return {k: _finite(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_finite(v) for v in obj]
+    if isinstance(obj, (np.floating, float)):
+        return float(obj) if np.isfinite(obj) else None
+    if isinstance(obj, np.integer):
+        return int(obj)
+    if isinstance(obj, np.bool_):
+        return bool(obj)
+    return obj
