@@ -14,7 +14,9 @@ from pathlib import Path
 from desktop.cli_common import add_diary_arguments, diary_from_args
 from models.errors import SpecError
 from models.estimate import fit
-from models.report import format_result
+from models.lag2check import lag2_check
+from models.report import format_lag2, format_result
+from models.results import _finite
 from models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec, State, full_mask, inertia_mask
 
 
@@ -34,6 +36,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     est.add_argument("--estimator", choices=ESTIMATORS, default="stationary")
     est.add_argument("--missing", choices=MISSING, default="fiml")
     est.add_argument("--depth", type=int, help="window depth (default: the lag order)")
+    parser.add_argument("--lag2-check", action="store_true",
+                        help="test whether lag 1 is enough (lag-2 paths and autocorrelated unique parts)")
     parser.add_argument("--json", metavar="OUT", help="write the result as JSON to OUT")
 
 
@@ -70,9 +74,14 @@ def run(args: argparse.Namespace) -> int:
     options = FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth)
     result = fit(diary, spec, options)
     print(format_result(result))
+    doc = result.to_json()
+    if args.lag2_check:
+        check = lag2_check(diary, spec, options)
+        print()
+        print(format_lag2(check))
+        doc["lag2_check"] = _finite(check.to_json())
     if args.json:
-        Path(args.json).write_text(json.dumps(result.to_json(), indent=2, allow_nan=False),
-                                   encoding="utf-8")
+        Path(args.json).write_text(json.dumps(doc, indent=2, allow_nan=False), encoding="utf-8")
     if not result.converged:
         print("lagwise: the optimiser did not converge; results are flagged", file=sys.stderr)
         return 3

@@ -180,8 +180,9 @@ def _hessian(objective: WindowObjective, theta: np.ndarray, monitor: Monitor | N
     """Observed information by central differences of the analytic gradient."""
     m = theta.size
     h_mat = np.zeros((m, m))
+    scale = _scales(objective, theta)
     for i in range(m):
-        step = 1e-5 * max(abs(theta[i]), 1e-2)
+        step = 1e-5 * max(abs(theta[i]), scale[i])
         e = np.zeros(m)
         e[i] = step
         try:

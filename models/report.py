@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from models.lag2check import Lag2Check
 from models.results import FitResult
 
 KIND_TITLES = (
@@ -76,4 +77,19 @@ def format_result(result: FitResult) -> str:
     lines.append("")
     lines.append("Cautions")
     lines += [f"  * {c}" for c in result.cautions]
+    return "\n".join(lines)
+
+
+def format_lag2(check: Lag2Check) -> str:
+    """The lag-2 check as text: verdict, likelihood-ratio test, then each path's score test."""
+    lines = ["Is lag 1 enough? (lag-2 check on depth-2 windows)",
+             f"  {check.verdict}",
+             f"  likelihood-ratio test: chi-square {fmt(check.lr_chi2, 2)} on {check.lr_df} df, "
+             f"p {fmt_p(check.lr_p)}",
+             f"  {'test':<26}{'from':<14}{'to':<14}{'score':>8}{'p':>8}{'Holm p':>8}{'EPC':>9}{'std EPC':>9}"]
+    for t in sorted(check.paths, key=lambda t: -t.score):
+        label = "lag-2 path" if t.kind == "lag2" else "unique autocorrelation"
+        lines.append(f"  {label:<26}{t.from_:<14.14}{t.to:<14.14}{fmt(t.score, 2):>8}{fmt_p(t.p):>8}"
+                     f"{fmt_p(t.p_holm):>8}{fmt(t.epc):>9}{fmt(t.std_epc):>9}")
+    lines += [f"  * {c}" for c in check.cautions]
     return "\n".join(lines)

@@ -1,0 +1,202 @@
+"""Is lag 1 enough? Lag-2 misfit tests on depth-2 windows.
+
+1. Likelihood-ratio test: the chosen lag-1 model against the same model with every lag-2
+   path free, both fitted on the same depth-2 windows: LR = 2 (loglik_2 - loglik_1) on
+   df = number of added paths.
+2. Score tests (modification indices; Sorbom 1989; Saris, Satorra & Sorbom 1987) at the
+   lag-1 estimates for each fixed lag-2 path and for a lag-1 autocorrelation of each item's
+   unique part: with g the gradient and I the expected information of the extended model at
+   the restricted estimate, for a fixed parameter j and the free set f
+       MI_j = g_j^2 / c_j,  EPC_j = g_j / c_j,  c_j = I_jj - I_jf I_ff^-1 I_fj,
+   referred to chi-square(1); Holm (1979) adjusted p-values beside the raw ones.
+All statistics use the window pseudo-likelihood (overlapping windows): they are approximate.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+from scipy.stats import chi2 as chi2_dist
+from threadpoolctl import threadpool_limits
+
+from models.diary import Diary
+from models.errors import SpecError
+from models.estimate import _scales, estimate_windows
+from models.objective import WindowObjective
+from models.progress import Monitor, checkpoint
+from models.results import FitResult
+from models.spec import FitOptions, ModelSpec, full_mask
+from models.windows import lag_windows
+
+ALPHA = 0.05
+CAUTION_LAG2 = (
+    "The lag-2 tests use the window pseudo-likelihood (overlapping windows treated as "
+    "independent), so their p-values are approximate. Each path is a separate test: with many "
+    "paths some small p-values arise by chance, which is why Holm-adjusted p-values are shown.")
+
+
+@dataclass(frozen=True)
+class PathTest:
+    """Score test of one fixed parameter of the lag-1 model."""
+
+    kind: str        # "lag2" or "unique_autocorrelation"
+    from_: str
+    to: str
+    score: float
+    p: float
+    p_holm: float
+    epc: float       # expected parameter change
+    std_epc: float   # standardized expected change
+
+    def to_json(self) -> dict:
+        return {"kind": self.kind, "from": self.from_, "to": self.to, "score": self.score,
+                "p": self.p, "p_holm": self.p_holm, "epc": self.epc, "std_epc": self.std_epc}
+
+
+@dataclass(frozen=True, eq=False)
+class Lag2Check:
+    lr_chi2: float
+    lr_df: int
+    lr_p: float
+    paths: tuple[PathTest, ...]
+    restricted: FitResult
+    extended: FitResult
+    verdict: str
+    indicated: tuple[PathTest, ...]
+    cautions: tuple[str, ...] = (CAUTION_LAG2,)
+
+    def to_json(self) -> dict:
+        return {"lr": {"chi2": self.lr_chi2, "df": self.lr_df, "p": self.lr_p},
+                "paths": [p.to_json() for p in self.paths], "verdict": self.verdict,
+                "indicated": [p.to_json() for p in self.indicated], "cautions": list(self.cautions)}
+
+
+def lag1_version(spec: ModelSpec) -> ModelSpec:
+    """The lag-1 model of `spec` (its lag-1 paths, no lag-2 paths)."""
+    return replace(spec, lags=1, paths=(tuple(tuple(r) for r in spec.path_mask(1)),))
+
+
+def lag2_version(spec: ModelSpec) -> ModelSpec:
+    """The lag-1 model with every lag-2 path free."""
+    base = lag1_version(spec)
+    return replace(base, lags=2, paths=(base.paths[0], full_mask(spec.k)))
+
+
+def holm(pvalues: np.ndarray) -> np.ndarray:
+    """Holm (1979) step-down adjusted p-values."""
+    m = pvalues.size
+    order = np.argsort(pvalues)
+    adjusted = np.empty(m)
+    running = 0.0
+    for rank, idx in enumerate(order):
+        running = max(running, min(1.0, (m - rank) * pvalues[idx]))
+        adjusted[idx] = running
+    return adjusted
+
+
+def lag2_check(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions(),
+               monitor: Monitor | None = None) -> Lag2Check:
+    """Fit the lag-1 and lag-2 models on depth-2 windows and test each lag-2 path."""
+    if spec.lags == 0:
+        raise SpecError("The lag-2 check needs a model with lagged paths (lag order 1).")
+    estimator = "stationary" if options.estimator == "exact" else options.estimator
+    depth = max(2, options.depth or 2)
+    opts = replace(options, estimator=estimator, depth=depth)
+    restricted_spec, extended_spec = lag1_version(spec), lag2_version(spec)
+    notes = restricted_spec.validate(diary.items)
+    with threadpool_limits(limits=1, user_api="blas"):
+        windows = lag_windows(diary.select(restricted_spec.items), depth)
+        checkpoint(monitor, 0.0, "Fitting the lag-1 model on depth-2 windows")
+        obj_r = WindowObjective(windows, restricted_spec, opts)
+        restricted = estimate_windows(obj_r, notes, diary.n_occasions, 0.0, _scaled(monitor, 0.0, 0.4))
+        checkpoint(monitor, 0.4, "Fitting the model with lag-2 paths")
+        obj_e = WindowObjective(windows, extended_spec, opts)
+        extended = estimate_windows(obj_e, notes, diary.n_occasions, 0.0, _scaled(monitor, 0.4, 0.75))
+        checkpoint(monitor, 0.75, "Score tests")
+        tests = _score_tests(obj_r, restricted, windows, opts, monitor)
+    lr = max(2.0 * (extended.fit.loglik - restricted.fit.loglik), 0.0)
+    df = extended.fit.n_free - restricted.fit.n_free
+    lr_p = float(chi2_dist.sf(lr, df))
+    indicated = tuple(sorted((t for t in tests if t.p_holm < ALPHA), key=lambda t: -t.score))
+    verdict = _verdict(lr_p, indicated)
+    checkpoint(monitor, 1.0, "Done")
+    return Lag2Check(lr_chi2=float(lr), lr_df=int(df), lr_p=lr_p, paths=tests, restricted=restricted,
+                     extended=extended, verdict=verdict, indicated=indicated)
+
+
+def _verdict(lr_p: float, indicated: tuple[PathTest, ...]) -> str:
+    if not indicated and lr_p >= ALPHA:
+        return ("No sign that lag 2 is needed: the lag-1 model is not significantly worse than the "
+                f"model with lag-2 paths (p = {lr_p:.3f}), and no single path stands out after the "
+                "Holm adjustment.")
+    if not indicated:
+        return (f"Lag 2 may be needed overall (likelihood-ratio p = {lr_p:.3f}), but no single path "
+                "stands out after the Holm adjustment.")
+    top = indicated[0]
+    where = (f"{top.from_} at t-2 to {top.to}" if top.kind == "lag2"
+             else f"an autocorrelated unique part of '{top.to}'")
+    return (f"Lag 2 indicated, mainly for {where} (score {top.score:.1f}, Holm p = "
+            f"{top.p_holm:.3g}; likelihood-ratio p = {lr_p:.3g}).")
+
+
+def _score_tests(obj_r: WindowObjective, restricted: FitResult, windows, options: FitOptions,
+                 monitor: Monitor | None) -> tuple[PathTest, ...]:
+    """Score tests of all lag-2 paths and unique autocorrelations at the restricted estimate."""
+    spec = obj_r.spec
+    extra_items = tuple(it for it in spec.items if it not in spec.unique_autocorrelation)
+    full_spec = replace(lag2_version(spec), unique_autocorrelation=spec.unique_autocorrelation + extra_items)
+    obj_f = WindowObjective(windows, full_spec, options)
+    estimates = {(p.kind, p.from_, p.to): p.estimate for p in restricted.parameters}
+    theta = np.array([estimates.get((e.kind, e.from_, e.to), 0.0) for e in obj_f.layout.free_entries])
+    tested = np.array([(e.kind, e.from_, e.to) not in _free_keys(obj_r)
+                       for e in obj_f.layout.free_entries])
+    _, grad = obj_f.loglik_and_gradient(theta)
+    info = obj_f.expected_information(theta, _scales(obj_f, theta))
+    keep = ~tested & _interior_mask(obj_f, theta)
+    f_idx, t_idx = np.flatnonzero(keep), np.flatnonzero(tested)
+    i_ff_inv = np.linalg.pinv(info[np.ix_(f_idx, f_idx)])
+    sd_eta = np.sqrt(np.diag(restricted.latent_cov))
+    states = spec.state_names
+    rows = []
+    for j in t_idx:
+        c = info[j, j] - info[j, f_idx] @ i_ff_inv @ info[f_idx, j]
+        e = obj_f.layout.free_entries[j]
+        if c <= 0:
+            score, epc = 0.0, 0.0
+        else:
+            score, epc = grad[j] ** 2 / c, grad[j] / c
+        if e.kind == "lag2":
+            std = epc * sd_eta[states.index(e.from_)] / sd_eta[states.index(e.to)]
+        else:
+            std = epc
+        rows.append((e.kind, e.from_, e.to, float(score), float(chi2_dist.sf(score, 1)), float(epc), float(std)))
+    p_holm = holm(np.array([r[4] for r in rows])) if rows else np.array([])
+    return tuple(PathTest(kind=r[0], from_=r[1], to=r[2], score=r[3], p=r[4], p_holm=float(ph),
+                          epc=r[5], std_epc=r[6]) for r, ph in zip(rows, p_holm))
+
+
+def _free_keys(obj: WindowObjective) -> set[tuple[str, str, str]]:
+    return {(e.kind, e.from_, e.to) for e in obj.layout.free_entries}
+
+
+def _interior_mask(obj: WindowObjective, theta: np.ndarray) -> np.ndarray:
+    out = np.ones(theta.size, dtype=bool)
+    for n, (lo, _hi) in enumerate(obj.layout.bounds()):
+        if lo is not None and theta[n] - lo <= 1e-7 * max(float(np.mean(obj.item_var)), 1.0):
+            out[n] = False
+    return out
+
+
+class _scaled:
+    """A monitor that maps 0..1 of a sub-task onto lo..hi of the whole."""
+
+    def __init__(self, monitor: Monitor | None, lo: float, hi: float):
+        self.monitor, self.lo, self.hi = monitor, lo, hi
+
+    def report(self, fraction: float, message: str) -> None:
+        if self.monitor is not None:
+            self.monitor.report(self.lo + (self.hi - self.lo) * fraction, message)
+
+    def cancelled(self) -> bool:
+        return self.monitor is not None and self.monitor.cancelled()
