@@ -1,0 +1,40 @@
+"""`lagwise inspect DATA`: what a diary file holds, before any model is fitted.
+
+Prints prompts scheduled and answered, days and compliance per day, lag windows per depth
+(complete and with missing values) and per item the missing count, mean and SD; with
+--json OUT also writes these as JSON (models.summary.diary_summary; '-' writes to stdout).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+from desktop.cli_common import add_diary_arguments, diary_from_args
+from models.errors import DataError
+from models.summary import diary_summary, format_summary
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    add_diary_arguments(parser)
+    parser.add_argument("--json", metavar="OUT",
+                        help="also write the summary as JSON to OUT ('-': standard output only)")
+
+
+def run(args: argparse.Namespace) -> int:
+    diary = diary_from_args(args)
+    summary = diary_summary(diary)
+    text = json.dumps(summary, indent=2, allow_nan=False)
+    if args.json == "-":
+        sys.stdout.write(text + "\n")
+        return 0
+    print(format_summary(summary))
+    if args.json:
+        out = Path(args.json)
+        try:
+            out.write_text(text + "\n", encoding="utf-8")
+        except OSError as error:
+            raise DataError(f"{out}: cannot write the summary ({error.strerror})") from error
+    return 0
