@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from models.errors import EstimationError
+
 
 def companion(lagged: list[np.ndarray] | tuple[np.ndarray, ...]) -> np.ndarray:
     """F = [[B_1 ... B_q], [I 0 ... 0], ...] of size qk x qk."""
@@ -38,11 +40,19 @@ def solve_lyapunov(a: np.ndarray, q: np.ndarray) -> np.ndarray:
 
 
 def companion_covariance(lagged: list[np.ndarray] | tuple[np.ndarray, ...], innovation: np.ndarray) -> np.ndarray:
-    """Stationary covariance P of the companion state (qk x qk)."""
+    """Stationary covariance P of the companion state (qk x qk): block (a, b) is
+    Phi_{b-a} = Cov(eta_{t-a}, eta_{t-b}); Psi for lag order 0. Raises EstimationError when
+    the paths are not stationary (spectral radius 1 or more: no stationary distribution)."""
+    lagged = [np.atleast_2d(np.asarray(b, dtype=float)) for b in lagged]
+    innovation = np.atleast_2d(np.asarray(innovation, dtype=float))
     k = innovation.shape[0]
     q = len(lagged)
     if q == 0:
         return innovation.copy()
+    radius = spectral_radius(lagged)
+    if not np.isfinite(radius) or radius >= 1.0:
+        raise EstimationError(
+            f"The lagged paths are not stationary (spectral radius {radius:.3f}, must be below 1).")
     big_q = np.zeros((q * k, q * k))
     big_q[:k, :k] = innovation
     return solve_lyapunov(companion(lagged), big_q)
@@ -50,5 +60,5 @@ def companion_covariance(lagged: list[np.ndarray] | tuple[np.ndarray, ...], inno
 
 def stationary_covariance(lagged: list[np.ndarray] | tuple[np.ndarray, ...], innovation: np.ndarray) -> np.ndarray:
     """Phi_0, the stationary covariance of the states (k x k)."""
-    k = innovation.shape[0]
+    k = np.atleast_2d(innovation).shape[0]
     return companion_covariance(lagged, innovation)[:k, :k]

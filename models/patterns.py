@@ -89,7 +89,7 @@ class PatternData:
         g_mu = np.einsum("g,gi->i", n, np.where(self.observed, np.einsum("gij,gj->gi", inv, e), 0.0))
         return total, g_sigma, g_mu
 
-    def saturated(self, tol: float = 1e-10, max_iter: int = 5000) -> tuple[np.ndarray, np.ndarray, float, bool]:
+    def saturated(self, tol: float = 1e-10, max_iter: int = 20000) -> tuple[np.ndarray, np.ndarray, float, bool]:
         """Unrestricted mean and covariance by ML: closed form when complete, else the EM
         algorithm (Dempster, Laird & Rubin 1977) with E[x_m | x_o] = mu_m + B (x_o - mu_o),
         B = -K_mm^-1 K_mo and Cov(x_m | x_o) = K_mm^-1, K = Sigma^-1. Returns mu, Sigma,
@@ -106,7 +106,6 @@ class PatternData:
         eye = np.eye(w)
         mu = self.col_mean.copy()
         sigma = np.diag(np.maximum(self.col_var, 1e-8))
-        ll_old = -np.inf
         for _ in range(max_iter):
             k_full = np.linalg.inv(sigma)
             c_cond = np.where(mis_outer, np.linalg.inv(np.where(mis_outer, k_full[None], eye[None])), 0.0)
@@ -119,14 +118,18 @@ class PatternData:
             s2 = np.einsum("g,gij->ij", n, a[:, :, None] * a[:, None, :] + a[:, :, None] * px[:, None, :]
                            + px[:, :, None] * a[:, None, :] + p_map @ second @ p_map.transpose(0, 2, 1)
                            + c_cond)
-            mu = s1 / self.n_rows
-            sigma = s2 / self.n_rows - np.outer(mu, mu)
-            sigma = 0.5 * (sigma + sigma.T)
-            ll, _, _ = self.loglik(mu, sigma, gradient=False)
-            if abs(ll - ll_old) <= tol * max(1.0, abs(ll)):
+            mu_new = s1 / self.n_rows
+            sigma_new = s2 / self.n_rows - np.outer(mu_new, mu_new)
+            sigma_new = 0.5 * (sigma_new + sigma_new.T)
+            scale = np.sqrt(np.diag(sigma_new))
+            change = max(np.max(np.abs(mu_new - mu) / scale),
+                         np.max(np.abs(sigma_new - sigma) / np.outer(scale, scale)))
+            mu, sigma = mu_new, sigma_new
+            if change <= tol:
+                ll, _, _ = self.loglik(mu, sigma, gradient=False)
                 return mu, sigma, ll, True
-            ll_old = ll
-        return mu, sigma, ll_old, False
+        ll, _, _ = self.loglik(mu, sigma, gradient=False)
+        return mu, sigma, ll, False
 
     def independence_loglik(self) -> float:
         """Log-likelihood of the independence baseline (free means and variances, zero
