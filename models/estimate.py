@@ -42,7 +42,7 @@ def fit(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions(),
     with threadpool_limits(limits=1, user_api="blas"):
         if options.estimator == "exact":
             from models.exact import fit_exact
-            return fit_exact(diary, spec, options, monitor)
+            return fit_exact(diary, spec, options, monitor, notes)
         checkpoint(monitor, 0.0, "Building lag windows")
         started = time.perf_counter()
         windows = lag_windows(diary.select(spec.items), options.window_depth(spec))
@@ -111,6 +111,22 @@ def estimate_windows(objective: WindowObjective, notes: list[str], n_occasions: 
         flags=tuple(flags), extras={"notes": list(notes), "newton_steps": improved,
                                     "depth": objective.depth, "missing": options.missing},
     )
+
+
+def _scaled_monitor(monitor: Monitor | None, lo: float, hi: float) -> Monitor | None:
+    """A monitor that maps 0..1 of a sub-task onto lo..hi of the whole."""
+    return None if monitor is None else _ScaledMonitor(monitor, lo, hi)
+
+
+class _ScaledMonitor:
+    def __init__(self, monitor: Monitor, lo: float, hi: float):
+        self.monitor, self.lo, self.hi = monitor, lo, hi
+
+    def report(self, fraction: float, message: str) -> None:
+        self.monitor.report(self.lo + (self.hi - self.lo) * fraction, message)
+
+    def cancelled(self) -> bool:
+        return self.monitor.cancelled()
 
 
 # ----- optimisation ------------------------------------------------------------------------

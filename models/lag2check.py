@@ -22,7 +22,7 @@ from threadpoolctl import threadpool_limits
 
 from models.diary import Diary
 from models.errors import SpecError
-from models.estimate import _scales, estimate_windows
+from models.estimate import _scaled_monitor, _scales, estimate_windows
 from models.objective import WindowObjective
 from models.progress import Monitor, checkpoint
 from models.results import FitResult
@@ -109,10 +109,10 @@ def lag2_check(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions()
         windows = lag_windows(diary.select(restricted_spec.items), depth)
         checkpoint(monitor, 0.0, "Fitting the lag-1 model on depth-2 windows")
         obj_r = WindowObjective(windows, restricted_spec, opts)
-        restricted = estimate_windows(obj_r, notes, diary.n_occasions, 0.0, _scaled(monitor, 0.0, 0.4))
+        restricted = estimate_windows(obj_r, notes, diary.n_occasions, 0.0, _scaled_monitor(monitor, 0.0, 0.4))
         checkpoint(monitor, 0.4, "Fitting the model with lag-2 paths")
         obj_e = WindowObjective(windows, extended_spec, opts)
-        extended = estimate_windows(obj_e, notes, diary.n_occasions, 0.0, _scaled(monitor, 0.4, 0.75))
+        extended = estimate_windows(obj_e, notes, diary.n_occasions, 0.0, _scaled_monitor(monitor, 0.4, 0.75))
         checkpoint(monitor, 0.75, "Score tests")
         tests = _score_tests(obj_r, restricted, windows, opts, monitor)
     lr = max(2.0 * (extended.fit.loglik - restricted.fit.loglik), 0.0)
@@ -186,17 +186,3 @@ def _interior_mask(obj: WindowObjective, theta: np.ndarray) -> np.ndarray:
         if lo is not None and theta[n] - lo <= 1e-7 * max(float(np.mean(obj.item_var)), 1.0):
             out[n] = False
     return out
-
-
-class _scaled:
-    """A monitor that maps 0..1 of a sub-task onto lo..hi of the whole."""
-
-    def __init__(self, monitor: Monitor | None, lo: float, hi: float):
-        self.monitor, self.lo, self.hi = monitor, lo, hi
-
-    def report(self, fraction: float, message: str) -> None:
-        if self.monitor is not None:
-            self.monitor.report(self.lo + (self.hi - self.lo) * fraction, message)
-
-    def cancelled(self) -> bool:
-        return self.monitor is not None and self.monitor.cancelled()

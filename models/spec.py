@@ -256,12 +256,15 @@ class FitOptions:
         covariance of the oldest copies), or "exact" (Kalman filter likelihood).
     missing: "fiml" (full information over missingness patterns) or "listwise".
     depth: window depth (default: the lag order).
+    night_gap: exact estimator only: join the days with this many missed prompts between
+        them (the states carry over the night) instead of restarting each day (default).
     """
 
     estimator: str = "stationary"
     missing: str = "fiml"
     depth: int | None = None
     max_iter: int = 2000
+    night_gap: int | None = None
 
     def window_depth(self, spec: ModelSpec) -> int:
         d = spec.lags if self.depth is None else int(self.depth)
@@ -271,7 +274,7 @@ class FitOptions:
 
     def to_json(self) -> dict:
         return {"estimator": self.estimator, "missing": self.missing, "depth": self.depth,
-                "max_iter": self.max_iter}
+                "max_iter": self.max_iter, "night_gap": self.night_gap}
 
     @classmethod
     def from_json(cls, doc: dict) -> "FitOptions":
@@ -279,7 +282,8 @@ class FitOptions:
             return cls(estimator=str(doc.get("estimator", "stationary")),
                        missing=str(doc.get("missing", "fiml")),
                        depth=None if doc.get("depth") is None else int(doc["depth"]),
-                       max_iter=int(doc.get("max_iter", 2000)))
+                       max_iter=int(doc.get("max_iter", 2000)),
+                       night_gap=None if doc.get("night_gap") is None else int(doc["night_gap"]))
         except (TypeError, ValueError, AttributeError) as exc:
             raise SpecError(f"The estimator settings are malformed ({exc}).") from None
 
