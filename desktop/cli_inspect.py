@@ -15,6 +15,7 @@ from pathlib import Path
 from desktop.cli_common import add_diary_arguments, diary_from_args
 from models.errors import DataError
 from models.summary import diary_summary, format_summary
+from models.screening import format_screening, screen_diary, screening_json
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -26,11 +27,16 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     diary = diary_from_args(args)
     summary = diary_summary(diary)
+    screening = screen_diary(diary)
+    for name, extra in screening_json(screening).items():
+        summary["items"][name].update(extra)
     text = json.dumps(summary, indent=2, allow_nan=False)
     if args.json == "-":
         sys.stdout.write(text + "\n")
         return 0
     print(format_summary(summary))
+    print()
+    print(format_screening(screening))
     if args.json:
         out = Path(args.json)
         try:

@@ -1,0 +1,150 @@
+"""Dynamics tab: the path diagram of inertia and cross-lagged effects, and the inertia chart.
+
+States are circles; each free cross-lagged effect is an arrow from the state at t-lag to
+the state at t; each state's inertia (its own lagged path) is a loop on its circle. Values
+are the engine's; line width follows the standardized size (palette.line_width).
+"""
+
+from __future__ import annotations
+
+from PySide6.QtCore import Qt
+from PySide6.QtWidgets import QComboBox, QLabel, QSplitter, QVBoxLayout, QWidget
+
+from desktop.results.charts import bar_chart, plot_widget, style_plot
+from desktop.results.diagram import DiagramScene, DiagramView, Link, Node
+from desktop.results.tables import fmt, lagged_parameters, parameter_tooltip, paths_model
+from desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
+from models.results import FitResult, Parameter
+
+LABEL_MODES = {"standardized": "Standardized", "estimate": "Estimate"}
+
+
+def _heading(p: Parameter, lag: int) -> str:
+    if p.from_ == p.to and lag == 1:
+        return f"Inertia of {p.to}"
+    return f"{p.from_} (t-{lag}) → {p.to} (t)"
+
+
+def _label(p: Parameter, mode: str) -> str:
+    value = p.standardized if mode == "standardized" and p.standardized is not None else p.estimate
+    return fmt(value)
+
+
+def dynamics_links(result: FitResult, lag: int = 1, mode: str = "standardized") -> list[Link]:
+    """One Link per free lagged path at `lag` (loops for a state's own path)."""
+    return [Link(p.from_, p.to, p.estimate, p.standardized, _label(p, mode), parameter_tooltip(_heading(p, lag), p),
+                 directed=True, parameter=p)
+            for p in lagged_parameters(result, lag)]
+
+
+class DynamicsDiagram(DiagramScene):
+    """The dynamics path diagram of one result at one lag."""
+
+    def show_result(self, result: FitResult, lag: int = 1, mode: str = "standardized") -> None:
+        links = dynamics_links(result, lag, mode)
+        nodes = [Node(s, tooltip=f"State {s}") for s in result.states]
+        what = "standardized effects" if mode == "standardized" else "estimates"
+        own = "inertia" if lag == 1 else "own lag-2 path"
+        legend = [f"Arrows: the state at t-{lag} → the state at t. Loops: {own}. Labels: {what}.",
+                  "Hover over a path for its estimate, standardized value, SE and 95% interval."]
+        cross = [l for l in links if l.source != l.target]
+        message = "" if cross else "No cross-lagged effects are free in this model."
+        title = "Lag-1 dynamics" if lag == 1 else "Lag-2 paths"
+        self.draw(nodes, links, title=title, legend=legend, message=message)
+
+    def arrows(self) -> list:
+        """The drawn cross-lagged arrows (loops excluded)."""
+        return [i for i in self.link_items() if i.link.source != i.link.target]
+
+
+class DynamicsPanel(ResultsPanel):
+    """Diagram and inertia chart above, the table of lagged paths below."""
+
+    name = "dynamics"
+
+    def __init__(self, parent=None):
+        super().__init__("Dynamics: inertia and cross-lagged effects", parent)
+        self._result: FitResult | None = None
+        self.lag_box = QComboBox()
+        self.lag_box.setToolTip("Which lag to draw")
+        self.lag_box.currentIndexChanged.connect(self._redraw)
+        self.label_box = QComboBox()
+        for key, words in LABEL_MODES.items():
+            self.label_box.addItem(words, key)
+        self.label_box.setToolTip("What the numbers on the paths show")
+        self.label_box.currentIndexChanged.connect(self._redraw)
+        index = self.head.indexOf(self.export_button)
+        for offset, widget in enumerate((QLabel("Lag"), self.lag_box, QLabel("Labels"), self.label_box)):
+            self.head.insertWidget(index + offset, widget)
+        self.head.insertSpacing(index + 4, 12)
+
+        self.scene = DynamicsDiagram(self)
+        self.diagram_view = DiagramView(self.scene)
+        self.chart = plot_widget()
+        style_plot(self.chart.getPlotItem(), "Inertia with 95% interval")
+        self.chart_note = note_label()
+        chart_box = QWidget()
+        chart_layout = QVBoxLayout(chart_box)
+        chart_layout.setContentsMargins(0, 0, 0, 0)
+        chart_layout.addWidget(self.chart, 1)
+        chart_layout.addWidget(self.chart_note)
+        top = QSplitter(Qt.Orientation.Horizontal)
+        top.addWidget(self.diagram_view)
+        top.addWidget(chart_box)
+        top.setSizes([600, 400])
+        self.paths = paths_model(self)
+        self.paths_view = table_view(self.paths)
+        bottom = QWidget()
+        column = QVBoxLayout(bottom)
+        column.setContentsMargins(0, 0, 0, 0)
+        column.addWidget(section_label("Lagged paths"))
+        column.addWidget(self.paths_view)
+        split = QSplitter(Qt.Orientation.Vertical)
+        split.addWidget(top)
+        split.addWidget(bottom)
+        split.setSizes([640, 260])
+        self.body.addWidget(split)
+
+    def show_result(self, result: FitResult) -> None:
+        self._result = result
+        self.lag_box.blockSignals(True)
+        self.lag_box.clear()
+        for lag in range(1, max(result.spec.lags, 1) + 1):
+            self.lag_box.addItem(f"{lag}", lag)
+        self.lag_box.setEnabled(result.spec.lags > 1)
+        self.lag_box.blockSignals(False)
+        self._show_inertia(result)
+        self._redraw()
+
+    @property
+    def lag(self) -> int:
+        return self.lag_box.currentData() or 1
+
+    def _redraw(self) -> None:
+        if self._result is None:
+            return
+        self.scene.show_result(self._result, self.lag, self.label_box.currentData())
+        self.paths.set_rows(lagged_parameters(self._result, self.lag))
+
+    def _show_inertia(self, result: FitResult) -> None:
+        inertia = {p.to: p for p in lagged_parameters(result, 1) if p.from_ == p.to}
+        states = list(result.states)
+        chosen = [inertia.get(s) for s in states]
+        plot = self.chart.getPlotItem()
+        bar_chart(plot, states, [None if p is None else p.estimate for p in chosen],
+                  ["" if p is None else fmt(p.estimate) for p in chosen],
+                  low=[None if p is None or p.ci is None else p.ci[0] for p in chosen],
+                  high=[None if p is None or p.ci is None else p.ci[1] for p in chosen],
+                  value_axis="inertia (estimate)")
+        fixed = [s for s, p in zip(states, chosen) if p is None]
+        note = ("Whiskers: 95% interval (estimate ± 1.96 SE). Near 0: the state returns to its "
+                "usual level quickly; near 1: it lingers from prompt to prompt.")
+        if fixed:
+            note += " Inertia fixed in this model: " + ", ".join(fixed) + "."
+        self.chart_note.setText(note)
+
+    def pictures(self) -> dict:
+        return {"diagram": self.scene, "inertia chart": self.chart}
+
+    def tables(self) -> dict:
+        return {"lagged paths": self.paths}

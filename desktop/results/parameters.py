@@ -1,0 +1,94 @@
+"""Parameters tab: every parameter of the fit in one sortable, filterable table (CSV export).
+
+Sorting uses the raw engine numbers (tables.SORT_ROLE), so 10 sorts after 9; the CSV holds
+the table as shown.
+"""
+
+from __future__ import annotations
+
+from PySide6.QtCore import QRegularExpression, QSortFilterProxyModel, Qt
+from PySide6.QtWidgets import QComboBox, QLabel, QLineEdit
+
+from desktop.results.tables import KIND_NAMES, SORT_ROLE, parameters_model
+from desktop.results.widgets import ResultsPanel, note_label, table_view
+from models.results import CAUTION_SE, FitResult
+
+
+class ParameterFilter(QSortFilterProxyModel):
+    """Numeric sort; keeps rows of one kind (or all) whose state or item names match a text."""
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.setSortRole(SORT_ROLE)
+        self.setFilterCaseSensitivity(Qt.CaseSensitivity.CaseInsensitive)
+        self._kind = ""
+
+    def set_kind(self, kind: str) -> None:
+        if hasattr(self, "beginFilterChange"):  # Qt 6.9 and later
+            self.beginFilterChange()
+            self._kind = kind
+            self.endFilterChange()
+        else:
+            self._kind = kind
+            self.invalidateFilter()
+
+    def filterAcceptsRow(self, row: int, parent) -> bool:
+        source = self.sourceModel()
+        p = source.row_record(row)
+        if self._kind and p.kind != self._kind:
+            return False
+        pattern = self.filterRegularExpression()
+        if not pattern.pattern():
+            return True
+        return bool(pattern.match(p.from_).hasMatch() or pattern.match(p.to).hasMatch())
+
+
+class ParametersPanel(ResultsPanel):
+    name = "parameters"
+
+    def __init__(self, parent=None):
+        super().__init__("All parameters", parent)
+        self.kind_box = QComboBox()
+        self.kind_box.setToolTip("Show one kind of parameter")
+        self.kind_box.currentIndexChanged.connect(lambda _: self.proxy.set_kind(self.kind_box.currentData() or ""))
+        self.search = QLineEdit()
+        self.search.setPlaceholderText("Filter by name")
+        self.search.setClearButtonEnabled(True)
+        self.search.setFixedWidth(200)
+        self.search.textChanged.connect(self._set_text)
+        index = self.head.indexOf(self.export_button)
+        for offset, widget in enumerate((QLabel("Show"), self.kind_box, self.search)):
+            self.head.insertWidget(index + offset, widget)
+        self.head.insertSpacing(index + 3, 12)
+
+        self.model = parameters_model(self)
+        self.proxy = ParameterFilter(self)
+        self.proxy.setSourceModel(self.model)
+        self.table = table_view(self.proxy, stretch_last=True)
+        self.table.setSortingEnabled(True)
+        self.table.sortByColumn(-1, Qt.SortOrder.AscendingOrder)
+        self.body.addWidget(self.table, 1)
+        self.body.addWidget(note_label(
+            "Click a column title to sort. " + CAUTION_SE + " The 95% interval is estimate ± 1.96 SE; "
+            "z = estimate / SE. Fixed parameters are set by the model, not estimated."))
+
+    def _set_text(self, text: str) -> None:
+        self.proxy.setFilterRegularExpression(
+            QRegularExpression(QRegularExpression.escape(text),
+                               QRegularExpression.PatternOption.CaseInsensitiveOption))
+
+    def show_result(self, result: FitResult) -> None:
+        self.model.set_rows(result.parameters)
+        present = [k for k in KIND_NAMES if any(p.kind == k for p in result.parameters)]
+        current = self.kind_box.currentData()
+        self.kind_box.blockSignals(True)
+        self.kind_box.clear()
+        self.kind_box.addItem("All kinds", "")
+        for kind in present:
+            self.kind_box.addItem(KIND_NAMES[kind], kind)
+        self.kind_box.setCurrentIndex(max(0, self.kind_box.findData(current)) if current in present else 0)
+        self.kind_box.blockSignals(False)
+        self.proxy.set_kind(self.kind_box.currentData() or "")
+
+    def tables(self) -> dict:
+        return {"parameters as shown": self.proxy}

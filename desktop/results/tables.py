@@ -1,0 +1,350 @@
+"""Qt table models over a FitResult, and the one number format every results view uses.
+
+Every cell shows a number taken from the FitResult as `fmt` writes it; nothing is computed
+here. The display text is what the user sees and what CSV export writes; `SORT_ROLE`
+holds the raw value so that sorting is numeric.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from PySide6.QtCore import QAbstractTableModel, QModelIndex, QPersistentModelIndex, Qt
+from PySide6.QtGui import QBrush, QColor
+
+from desktop.results.palette import NEGATIVE, POSITIVE
+from models.results import FitResult, Parameter
+
+MISSING = "—"
+SORT_ROLE = Qt.ItemDataRole.UserRole + 1
+
+KIND_NAMES = {
+    "loading": "Loading",
+    "intercept": "Intercept",
+    "unique": "Unique variance",
+    "unique_autocorrelation": "Unique autocorrelation",
+    "inertia": "Inertia",
+    "cross_lagged": "Cross-lagged effect",
+    "lag2": "Lag-2 effect",
+    "innovation": "Innovation (co)variance",
+    "partial_correlation": "Innovation partial correlation",
+}
+
+
+def fmt(value: Any, style: str = "number") -> str:
+    """Display text of one engine number.
+
+    style "number": 3 decimals ("-0.000" shown as "0.000"); "p": a p-value, "<.001" below
+    .001, otherwise 3 decimals without the leading zero (".042", "1.000"); "int": a count.
+    None, NaN and infinities show as an em dash.
+    """
+    if value is None:
+        return MISSING
+    number = float(value)
+    if not math.isfinite(number):
+        return MISSING
+    if style == "int":
+        return str(int(round(number)))
+    if style == "p":
+        if number < 0.001:
+            return "<.001"
+        text = f"{number:.3f}"
+        return text[1:] if text.startswith("0.") else text
+    text = f"{number:.3f}"
+    return "0.000" if text == "-0.000" else text
+
+
+@dataclass(frozen=True)
+class Column:
+    """One table column: header, how to read the value from a row, and its number style.
+
+    style "text" shows the value as it is; other styles go through `fmt`.
+    """
+
+    header: str
+    value: Callable[[Any], Any]
+    style: str = "number"
+    tip: str = ""
+
+
+class RecordsModel(QAbstractTableModel):
+    """Read-only table of records (one per row) shown through a list of Columns."""
+
+    def __init__(self, columns: Sequence[Column], rows: Sequence[Any] = (), parent=None):
+        super().__init__(parent)
+        self._columns = tuple(columns)
+        self._rows: tuple[Any, ...] = tuple(rows)
+
+    def set_rows(self, rows: Sequence[Any]) -> None:
+        self.beginResetModel()
+        self._rows = tuple(rows)
+        self.endResetModel()
+
+    def row_record(self, row: int) -> Any:
+        return self._rows[row]
+
+    def column(self, col: int) -> Column:
+        return self._columns[col]
+
+    def column_of(self, header: str) -> int:
+        return [c.header for c in self._columns].index(header)
+
+    def raw(self, row: int, col: int) -> Any:
+        return self._columns[col].value(self._rows[row])
+
+    def rowCount(self, parent: QModelIndex | QPersistentModelIndex = QModelIndex()) -> int:
+        return 0 if parent.isValid() else len(self._rows)
+
+    def columnCount(self, parent: QModelIndex | QPersistentModelIndex = QModelIndex()) -> int:
+        return 0 if parent.isValid() else len(self._columns)
+
+    def data(self, index, role=Qt.ItemDataRole.DisplayRole):
+        if not index.isValid():
+            return None
+        column = self._columns[index.column()]
+        value = column.value(self._rows[index.row()])
+        if role == Qt.ItemDataRole.DisplayRole:
+            return str(value) if column.style == "text" else fmt(value, column.style)
+        if role == SORT_ROLE:
+            if column.style == "text":
+                return str(value)
+            return None if value is None or not math.isfinite(float(value)) else float(value)
+        if role == Qt.ItemDataRole.TextAlignmentRole:
+            horizontal = Qt.AlignmentFlag.AlignLeft if column.style == "text" else Qt.AlignmentFlag.AlignRight
+            return int(horizontal | Qt.AlignmentFlag.AlignVCenter)
+        return None
+
+    def headerData(self, section, orientation, role=Qt.ItemDataRole.DisplayRole):
+        if orientation != Qt.Orientation.Horizontal:
+            return None
+        column = self._columns[section]
+        if role == Qt.ItemDataRole.DisplayRole:
+            return column.header
+        if role == Qt.ItemDataRole.ToolTipRole and column.tip:
+            return column.tip
+        return None
+
+
+class MatrixModel(QAbstractTableModel):
+    """A states x states matrix of engine numbers, cells tinted by sign and size."""
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self._matrix = np.zeros((0, 0))
+        self._labels: tuple[str, ...] = ()
+
+    def set_matrix(self, matrix: np.ndarray | None, labels: Sequence[str]) -> None:
+        self.beginResetModel()
+        self._matrix = np.zeros((0, 0)) if matrix is None else np.asarray(matrix, dtype=float)
+        self._labels = tuple(labels) if matrix is not None else ()
+        self.endResetModel()
+
+    def value(self, row: int, col: int) -> float:
+        return float(self._matrix[row, col])
+
+    def rowCount(self, parent: QModelIndex | QPersistentModelIndex = QModelIndex()) -> int:
+        return 0 if parent.isValid() else self._matrix.shape[0]
+
+    def columnCount(self, parent: QModelIndex | QPersistentModelIndex = QModelIndex()) -> int:
+        return 0 if parent.isValid() else self._matrix.shape[1]
+
+    def data(self, index, role=Qt.ItemDataRole.DisplayRole):
+        if not index.isValid():
+            return None
+        value = self.value(index.row(), index.column())
+        if role == Qt.ItemDataRole.DisplayRole:
+            return fmt(value)
+        if role == Qt.ItemDataRole.TextAlignmentRole:
+            return int(Qt.AlignmentFlag.AlignCenter)
+        if role == Qt.ItemDataRole.BackgroundRole:
+            if index.row() == index.column() or not math.isfinite(value):
+                return QBrush(QColor("#f1f1f1"))
+            color = QColor(POSITIVE if value >= 0 else NEGATIVE)
+            color.setAlphaF(0.12 + 0.6 * min(abs(value), 1.0))
+            return QBrush(color)
+        return None
+
+    def headerData(self, section, orientation, role=Qt.ItemDataRole.DisplayRole):
+        if role == Qt.ItemDataRole.DisplayRole and section < len(self._labels):
+            return self._labels[section]
+        return None
+
+
+# ----- the tables of a FitResult ------------------------------------------------------
+def _ci(p: Parameter, end: int) -> float | None:
+    interval = p.ci
+    return None if interval is None else interval[end]
+
+
+def _status(p: Parameter) -> str:
+    return "free" if p.free else "fixed"
+
+
+@dataclass(frozen=True)
+class LoadingRow:
+    """A loading with the R-squared of its item."""
+
+    parameter: Parameter
+    r_squared: float
+    marker: bool
+
+
+def loading_rows(result: FitResult) -> list[LoadingRow]:
+    """One row per (state, item) loading, in the spec's order."""
+    rows = []
+    items = result.items
+    for state in result.spec.states:
+        for item in state.items:
+            p = result.get("loading", state.name, item)
+            marker = result.spec.identification == "marker" and item == state.marker_item
+            rows.append(LoadingRow(p, float(result.r_squared[items.index(item)]), marker))
+    return rows
+
+
+def _loading_note(row: LoadingRow) -> str:
+    if row.parameter.free:
+        return ""
+    return "marker item, fixed" if row.marker else "fixed"
+
+
+LOADING_COLUMNS = (
+    Column("State", lambda r: r.parameter.from_, "text"),
+    Column("Item", lambda r: r.parameter.to, "text"),
+    Column("Estimate", lambda r: r.parameter.estimate),
+    Column("Standardized", lambda r: r.parameter.standardized),
+    Column("SE", lambda r: r.parameter.se, tip="Standard error (approximate)"),
+    Column("95% low", lambda r: _ci(r.parameter, 0), tip="Lower end of the 95% interval"),
+    Column("95% high", lambda r: _ci(r.parameter, 1), tip="Upper end of the 95% interval"),
+    Column("R²", lambda r: r.r_squared, tip="Share of the item's variance explained by its state(s)"),
+    Column("Note", _loading_note, "text"),
+)
+
+
+def loadings_model(parent=None) -> RecordsModel:
+    return RecordsModel(LOADING_COLUMNS, parent=parent)
+
+
+def _lag_text(p: Parameter) -> str:
+    return f"t-{p.lag}" if p.lag else ""
+
+
+PARAMETER_COLUMNS = (
+    Column("Kind", lambda p: KIND_NAMES.get(p.kind, p.kind), "text"),
+    Column("From", lambda p: p.from_, "text"),
+    Column("To", lambda p: p.to, "text"),
+    Column("Lag", _lag_text, "text", tip="For lagged paths: how many prompts back the 'From' state is"),
+    Column("Estimate", lambda p: p.estimate),
+    Column("Standardized", lambda p: p.standardized),
+    Column("SE", lambda p: p.se, tip="Standard error (approximate)"),
+    Column("z", lambda p: p.z),
+    Column("p", lambda p: p.p, "p"),
+    Column("95% low", lambda p: _ci(p, 0)),
+    Column("95% high", lambda p: _ci(p, 1)),
+    Column("Status", _status, "text"),
+)
+
+
+def parameters_model(parent=None) -> RecordsModel:
+    return RecordsModel(PARAMETER_COLUMNS, parent=parent)
+
+
+PATH_COLUMNS = (
+    Column("From", lambda p: p.from_, "text"),
+    Column("To", lambda p: p.to, "text"),
+    Column("Lag", _lag_text, "text"),
+    Column("Kind", lambda p: KIND_NAMES.get(p.kind, p.kind), "text"),
+    Column("Estimate", lambda p: p.estimate),
+    Column("Standardized", lambda p: p.standardized),
+    Column("SE", lambda p: p.se),
+    Column("95% low", lambda p: _ci(p, 0)),
+    Column("95% high", lambda p: _ci(p, 1)),
+    Column("p", lambda p: p.p, "p"),
+)
+
+
+def paths_model(parent=None) -> RecordsModel:
+    return RecordsModel(PATH_COLUMNS, parent=parent)
+
+
+def lagged_parameters(result: FitResult, lag: int) -> list[Parameter]:
+    """Free lagged paths at `lag`: inertias first, then cross-lagged effects, in state order."""
+    kinds = ("inertia", "cross_lagged") if lag == 1 else ("lag2",)
+    chosen = [p for p in result.parameters if p.kind in kinds and p.free and (p.lag or 1) == lag]
+    order = {s: i for i, s in enumerate(result.states)}
+    return sorted(chosen, key=lambda p: (p.from_ != p.to, order.get(p.to, 0), order.get(p.from_, 0)))
+
+
+@dataclass(frozen=True)
+class FitRow:
+    """One line of the fit table: measure, engine value, number style, rule of thumb."""
+
+    measure: str
+    value: Any
+    style: str = "number"
+    guide: str = ""
+
+
+FIT_COLUMNS = (
+    Column("Measure", lambda r: r.measure, "text"),
+    Column("Value", lambda r: r.value),
+    Column("Rule of thumb (common practice, not a law)", lambda r: r.guide, "text"),
+)
+
+
+class FitIndicesModel(RecordsModel):
+    """Fit figures; the value column follows each row's own number style."""
+
+    def __init__(self, parent=None):
+        super().__init__(FIT_COLUMNS, parent=parent)
+
+    def data(self, index, role=Qt.ItemDataRole.DisplayRole):
+        if index.isValid() and index.column() == 1 and role == Qt.ItemDataRole.DisplayRole:
+            row: FitRow = self.row_record(index.row())
+            return str(row.value) if row.style == "text" else fmt(row.value, row.style)
+        return super().data(index, role)
+
+
+def fit_rows(result: FitResult) -> list[FitRow]:
+    """The fit figures of a result with short, plain-language reading guides."""
+    f = result.fit
+    low, high = f.rmsea_ci if f.rmsea_ci is not None else (None, None)
+    rows = [
+        FitRow("Chi-square", f.chi2, guide="Large relative to df: misfit (strict with many windows)"),
+        FitRow("Degrees of freedom (df)", f.df, "int"),
+        FitRow("p (chi-square)", f.p, "p", "Above .05: no clear evidence of misfit"),
+        FitRow("RMSEA", f.rmsea, guide="Around .06 or below is often read as close fit"),
+        FitRow("RMSEA 90% interval, low", low),
+        FitRow("RMSEA 90% interval, high", high, guide="A wide interval means the data say little"),
+        FitRow("p (RMSEA ≤ .05)", f.rmsea_pclose, "p"),
+        FitRow("CFI", f.cfi, guide="Around .95 or above is often read as good fit"),
+        FitRow("TLI", f.tli, guide="Around .95 or above is often read as good fit"),
+        FitRow("SRMR", f.srmr, guide="Around .08 or below is often read as acceptable"),
+        FitRow("Log-likelihood", f.loglik,
+               guide="Exact likelihood of the series" if f.exact else "Window pseudo-likelihood"),
+        FitRow("AIC", f.aic, guide="Lower is better, only between models of the same diary"),
+        FitRow("BIC", f.bic, guide="Lower is better, only between models of the same diary"),
+        FitRow("Free parameters", f.n_free, "int"),
+        FitRow("Lag windows", result.n_windows, "int"),
+        FitRow("Prompts (occasions)", result.n_occasions, "int"),
+        FitRow("Spectral radius of the lagged paths", result.spectral_radius,
+               guide="Below 1: the states settle back (stationary)"),
+    ]
+    return rows
+
+
+def fit_model(parent=None) -> FitIndicesModel:
+    return FitIndicesModel(parent)
+
+
+def parameter_tooltip(heading: str, p: Parameter) -> str:
+    """Hover text of one parameter: estimate, standardized, SE, 95% interval, p."""
+    lines = [heading, f"Estimate: {fmt(p.estimate)}", f"Standardized: {fmt(p.standardized)}",
+             f"SE: {fmt(p.se)}"]
+    if p.ci is not None:
+        lines.append(f"95% interval: {fmt(p.ci[0])} to {fmt(p.ci[1])}")
+        lines.append(f"p: {fmt(p.p, 'p')}")
+    return "\n".join(lines)

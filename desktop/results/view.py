@@ -1,0 +1,71 @@
+"""ResultsView: the tabs that show one FitResult (or a plain message when there is none)."""
+
+from __future__ import annotations
+
+from PySide6.QtCore import Qt
+from PySide6.QtWidgets import QHBoxLayout, QLabel, QStackedWidget, QTabWidget, QVBoxLayout, QWidget
+
+from desktop.results.dynamics_diagram import DynamicsPanel
+from desktop.results.fit_view import FitPanel
+from desktop.results.innovations import InnovationsPanel
+from desktop.results.measurement import MeasurementPanel
+from desktop.results.parameters import ParametersPanel
+from desktop.results.widgets import ResultsPanel
+from models.results import FitResult
+
+EMPTY_MESSAGE = ("No results yet.\n\nAssign items to states, choose the lagged paths, "
+                 "then press Estimate: the loadings, dynamics, innovations, fit and every "
+                 "parameter will appear here.")
+
+
+class ResultsView(QWidget):
+    """Tabs Measurement, Dynamics, Innovations, Fit, Parameters over one FitResult.
+
+    `show_result(None)` shows the empty state. Each tab is a ResultsPanel with
+    `pictures()` and `tables()` (what its Export button saves).
+    """
+
+    def __init__(self, parent: QWidget | None = None):
+        super().__init__(parent)
+        self._result: FitResult | None = None
+        self.measurement = MeasurementPanel()
+        self.dynamics = DynamicsPanel()
+        self.innovations = InnovationsPanel()
+        self.fit = FitPanel()
+        self.parameters = ParametersPanel()
+        self.tabs = QTabWidget()
+        self.tabs.setDocumentMode(True)
+        for panel, title in zip(self.panels(), ("Measurement", "Dynamics", "Innovations", "Fit", "Parameters")):
+            self.tabs.addTab(panel, title)
+        self.empty = QLabel(EMPTY_MESSAGE)
+        self.empty.setAlignment(Qt.AlignmentFlag.AlignCenter)
+        self.empty.setWordWrap(True)
+        self.empty.setMaximumWidth(560)
+        self.empty.setStyleSheet("color: #4a5358; font-size: 13pt;")
+        empty_page = QWidget()
+        centred = QHBoxLayout(empty_page)
+        centred.addWidget(self.empty)
+        self.empty_page = empty_page
+        self.stack = QStackedWidget()
+        self.stack.addWidget(empty_page)
+        self.stack.addWidget(self.tabs)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(0, 0, 0, 0)
+        layout.addWidget(self.stack)
+
+    @property
+    def result(self) -> FitResult | None:
+        return self._result
+
+    def panels(self) -> tuple[ResultsPanel, ...]:
+        return (self.measurement, self.dynamics, self.innovations, self.fit, self.parameters)
+
+    def show_result(self, result: FitResult | None) -> None:
+        """Show a result in every tab, or the empty message for None."""
+        self._result = result
+        if result is None:
+            self.stack.setCurrentWidget(self.empty_page)
+            return
+        for panel in self.panels():
+            panel.show_result(result)
+        self.stack.setCurrentWidget(self.tabs)
