@@ -71,7 +71,10 @@ def split_list(text: str | None) -> list[str] | None:
 
 
 def diary_from_args(args: argparse.Namespace) -> Diary:
-    """Read `args.data` into a Diary as the options say."""
+    """Read `args.data` into a Diary as the options say (a .lagwise project: its own diary)."""
+    if str(args.data).lower().endswith(".lagwise"):
+        from models.project import load_project_diary
+        return load_project_diary(args.data)
     return load_diary(
         args.data,
         items=split_list(args.items),

@@ -1,5 +1,9 @@
 """`lagwise fit DATA --state NAME=ITEM,ITEM ... [options]`: estimate and report a model.
 
+`lagwise fit PROJECT.lagwise` refits a saved project with its stored data, model and
+estimator settings (for reproducibility); `--save PROJECT.lagwise` writes the data, the model,
+the settings and the result as a project file (models.project).
+
 Exit codes: 0 success, 2 bad input (one line on stderr), 3 the optimiser did not converge
 (the report and JSON are still written, flagged).
 """
@@ -9,12 +13,18 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from dataclasses import replace
 from pathlib import Path
 
-from desktop.cli_common import add_diary_arguments, diary_from_args
-from models.errors import SpecError
+from desktop.cli_common import (
+    add_diary_arguments, diary_from_args, split_list, time_settings_from_args,
+)
+from models.errors import ProjectError, SpecError
 from models.estimate import fit
 from models.lag2check import lag2_check
+from models.project import (
+    Project, embed_file, is_project_file, open_project, project_diary, save_project,
+)
 from models.report import format_lag2, format_result
 from models.results import _finite
 from models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec, State, full_mask, inertia_mask
@@ -39,6 +49,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--lag2-check", action="store_true",
                         help="test whether lag 1 is enough (lag-2 paths and autocorrelated unique parts)")
     parser.add_argument("--json", metavar="OUT", help="write the result as JSON to OUT")
+    parser.add_argument("--save", metavar="PROJECT.lagwise",
+                        help="also save the data, model, settings and result as a project file")
+    parser.epilog = ("DATA may be a saved project (PROJECT.lagwise): it is refitted with its "
+                     "own data, model and estimator settings; only --json, --save and "
+                     "--lag2-check may be added.")
+
+
+PROJECT_RUN_OPTIONS = ("data", "json", "save", "lag2_check")
 
 
 def parse_states(texts: list[str] | None) -> tuple[State, ...]:
@@ -67,11 +85,18 @@ def spec_from_args(args: argparse.Namespace) -> ModelSpec:
 
 
 def run(args: argparse.Namespace) -> int:
-    spec = spec_from_args(args)
-    if args.items is None:
-        args.items = ",".join(spec.items)
-    diary = diary_from_args(args)
-    options = FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth)
+    if args.save is not None and not is_project_file(args.save):
+        raise ProjectError(f"--save {args.save}: a project file name ends in .lagwise")
+    project: Project | None = None
+    if is_project_file(args.data):
+        project = project_to_refit(args)
+        diary, spec, options = project_diary(project), project.spec, project.options
+    else:
+        spec = spec_from_args(args)
+        if args.items is None:
+            args.items = ",".join(spec.items)
+        diary = diary_from_args(args)
+        options = FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth)
     result = fit(diary, spec, options)
     print(format_result(result))
     doc = result.to_json()
@@ -82,8 +107,33 @@ def run(args: argparse.Namespace) -> int:
         doc["lag2_check"] = _finite(check.to_json())
     if args.json:
         Path(args.json).write_text(json.dumps(doc, indent=2, allow_nan=False), encoding="utf-8")
+    if args.save is not None:
+        if project is None:
+            project = Project(
+                data=embed_file(args.data), items=tuple(split_list(args.items)),
+                time=time_settings_from_args(args),
+                missing_codes=tuple(split_list(args.missing_codes) or ()),
+                prompts_per_day=args.prompts_per_day, spec=spec, options=options)
+        save_project(replace(project, result=result), args.save)
+        print(f"\nProject saved to {args.save}")
     if not result.converged:
         print("lagwise: the optimiser did not converge; results are flagged", file=sys.stderr)
         return 3
     return 0
 
+
+def project_to_refit(args: argparse.Namespace) -> Project:
+    """The project named as DATA; refuses options that would override what it stores."""
+    blank = argparse.ArgumentParser()
+    add_arguments(blank)
+    defaults = vars(blank.parse_args(["project.lagwise"]))
+    given = ["--" + name.replace("_", "-") for name, default in defaults.items()
+             if name not in PROJECT_RUN_OPTIONS and getattr(args, name, default) != default]
+    if given:
+        raise SpecError(f"{args.data} holds its own data settings, model and estimator "
+                        f"settings; leave out {', '.join(given)}")
+    project = open_project(args.data)
+    if project.spec is None or not project.spec.states:
+        raise ProjectError(f"{args.data}: the project has no model yet; build one in the "
+                           "window, or fit the data file with --state")
+    return project

@@ -206,7 +206,7 @@ class FitResult:
                 chi2=_opt(f["chi2"]), df=int(f["df"]), p=_opt(f["p"]), rmsea=_opt(f["rmsea"]),
                 rmsea_ci=None if f.get("rmsea_ci") is None else (float(f["rmsea_ci"][0]), float(f["rmsea_ci"][1])),
                 rmsea_pclose=_opt(f.get("rmsea_pclose")), cfi=_opt(f["cfi"]), tli=_opt(f["tli"]),
-                srmr=_opt(f["srmr"]), loglik=float(f["loglik"]), aic=float(f["aic"]), bic=float(f["bic"]),
+                srmr=_opt(f["srmr"]), loglik=_nan(f["loglik"]), aic=_nan(f["aic"]), bic=_nan(f["bic"]),
                 n_free=int(f["n_free"]), n_obs=int(f["n_obs"]), exact=bool(f.get("exact", False)))
             params = tuple(
                 Parameter(kind=str(q["kind"]), from_=str(q["from"]), to=str(q["to"]),
@@ -222,7 +222,7 @@ class FitResult:
                 unique=arr(m["unique"], (p,)),
                 lagged=tuple(arr(b, (k, k)) for b in m["lagged"]),
                 innovation=arr(m["innovation"], (k, k)), latent_cov=arr(m["latent_cov"], (k, k)),
-                r_squared=arr(m["r_squared"], (p,)), spectral_radius=float(doc["spectral_radius"]),
+                r_squared=arr(m["r_squared"], (p,)), spectral_radius=_nan(doc["spectral_radius"]),
                 flags=tuple(str(x) for x in doc.get("flags", [])),
                 cautions=tuple(str(x) for x in doc.get("cautions", [])) or (CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO, CAUTION_SE),
                 extras=dict(doc.get("extras", {})),
@@ -233,6 +233,11 @@ class FitResult:
 
 def _opt(value) -> float | None:
     return None if value is None else float(value)
+
+
+def _nan(value) -> float:
+    """A number that `to_json` may have written as null (non-finite)."""
+    return float("nan") if value is None else float(value)
 
 
 def _finite(obj):
