@@ -46,6 +46,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     est.add_argument("--estimator", choices=ESTIMATORS, default="stationary")
     est.add_argument("--missing", choices=MISSING, default="fiml")
     est.add_argument("--depth", type=int, help="window depth (default: the lag order)")
+    est.add_argument("--night-gap", type=int, metavar="N",
+                     help="exact estimator: join the days with N missed prompts between them "
+                          "instead of restarting each day")
+    est.add_argument("--max-iter", type=int, default=FitOptions.max_iter, metavar="N",
+                     help=f"optimiser iterations at most (default {FitOptions.max_iter})")
     parser.add_argument("--lag2-check", action="store_true",
                         help="test whether lag 1 is enough (lag-2 paths and autocorrelated unique parts)")
     parser.add_argument("--json", metavar="OUT", help="write the result as JSON to OUT")
@@ -96,7 +101,10 @@ def run(args: argparse.Namespace) -> int:
         if args.items is None:
             args.items = ",".join(spec.items)
         diary = diary_from_args(args)
-        options = FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth)
+        if args.night_gap is not None and args.estimator != "exact":
+            raise SpecError("--night-gap needs --estimator exact")
+        options = FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth,
+                             night_gap=args.night_gap, max_iter=args.max_iter)
     result = fit(diary, spec, options)
     print(format_result(result))
     doc = result.to_json()
