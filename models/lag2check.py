@@ -5,8 +5,9 @@
    df = number of added paths.
 2. Score tests (modification indices; Sorbom 1989; Saris, Satorra & Sorbom 1987) at the
    lag-1 estimates for each fixed lag-2 path and for a lag-1 autocorrelation of each item's
-   unique part: with g the gradient and I the expected information of the extended model at
-   the restricted estimate, for a fixed parameter j and the free set f
+   unique part (the latter on depth-1 windows: in depth-2 windows each pair of consecutive
+   occasions enters twice and its score test over-rejects): with g the gradient and I the
+   expected information of the extended model at the restricted estimate, for a fixed parameter j and the free set f
        MI_j = g_j^2 / c_j,  EPC_j = g_j / c_j,  c_j = I_jj - I_jf I_ff^-1 I_fj,
    referred to chi-square(1); Holm (1979) adjusted p-values beside the raw ones.
 All statistics use the window pseudo-likelihood (overlapping windows): they are approximate.
@@ -114,7 +115,17 @@ def lag2_check(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions()
         obj_e = WindowObjective(windows, extended_spec, opts)
         extended = estimate_windows(obj_e, notes, diary.n_occasions, 0.0, _scaled_monitor(monitor, 0.4, 0.75))
         checkpoint(monitor, 0.75, "Score tests")
-        tests = _score_tests(obj_r, restricted, windows, opts, monitor)
+        lag2_tests = _score_tests(obj_r, restricted, windows, opts, "lag2")
+        # a lag-1 feature is tested on lag-1 windows: in depth-2 windows every lag-1 pair of
+        # occasions enters twice (blocks (0,1) and (1,2)) and its score test over-rejects
+        checkpoint(monitor, 0.85, "Score tests of the unique autocorrelations (lag-1 windows)")
+        windows1 = lag_windows(diary.select(restricted_spec.items), 1)
+        obj_r1 = WindowObjective(windows1, restricted_spec, replace(opts, depth=1))
+        restricted1 = estimate_windows(obj_r1, notes, diary.n_occasions, 0.0, _scaled_monitor(monitor, 0.85, 0.95))
+        raw = lag2_tests + _score_tests(obj_r1, restricted1, windows1, replace(opts, depth=1),
+                                        "unique_autocorrelation")
+    p_holm = holm(np.array([t.p for t in raw])) if raw else np.array([])
+    tests = tuple(replace(t, p_holm=float(ph)) for t, ph in zip(raw, p_holm))
     lr = max(2.0 * (extended.fit.loglik - restricted.fit.loglik), 0.0)
     df = extended.fit.n_free - restricted.fit.n_free
     lr_p = float(chi2_dist.sf(lr, df))
@@ -128,24 +139,33 @@ def lag2_check(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions()
 def _verdict(lr_p: float, indicated: tuple[PathTest, ...]) -> str:
     if not indicated and lr_p >= ALPHA:
         return ("No sign that lag 2 is needed: the lag-1 model is not significantly worse than the "
-                f"model with lag-2 paths (p = {lr_p:.3f}), and no single path stands out after the "
+                f"model with lag-2 paths (p {_p(lr_p)}), and no single path stands out after the "
                 "Holm adjustment.")
     if not indicated:
-        return (f"Lag 2 may be needed overall (likelihood-ratio p = {lr_p:.3f}), but no single path "
+        return (f"Lag 2 may be needed overall (likelihood-ratio p {_p(lr_p)}), but no single path "
                 "stands out after the Holm adjustment.")
     top = indicated[0]
     where = (f"{top.from_} at t-2 to {top.to}" if top.kind == "lag2"
              else f"an autocorrelated unique part of '{top.to}'")
-    return (f"Lag 2 indicated, mainly for {where} (score {top.score:.1f}, Holm p = "
-            f"{top.p_holm:.3g}; likelihood-ratio p = {lr_p:.3g}).")
+    return (f"Lag 2 indicated, mainly for {where} (score {top.score:.1f}, Holm p "
+            f"{_p(top.p_holm)}; likelihood-ratio p {_p(lr_p)}).")
+
+
+def _p(value: float) -> str:
+    """'< .001' or '= .046', as p-values are written in the reports."""
+    return "< .001" if value < 0.001 else f"= {value:.3f}".replace("0.", ".", 1)
 
 
 def _score_tests(obj_r: WindowObjective, restricted: FitResult, windows, options: FitOptions,
-                 monitor: Monitor | None) -> tuple[PathTest, ...]:
-    """Score tests of all lag-2 paths and unique autocorrelations at the restricted estimate."""
+                 kind: str) -> tuple[PathTest, ...]:
+    """Score tests of every fixed parameter of `kind` ("lag2" or "unique_autocorrelation")
+    at the restricted estimate (p_holm left at p: adjusted by the caller over all tests)."""
     spec = obj_r.spec
-    extra_items = tuple(it for it in spec.items if it not in spec.unique_autocorrelation)
-    full_spec = replace(lag2_version(spec), unique_autocorrelation=spec.unique_autocorrelation + extra_items)
+    if kind == "lag2":
+        full_spec = lag2_version(spec)
+    else:
+        extra_items = tuple(it for it in spec.items if it not in spec.unique_autocorrelation)
+        full_spec = replace(spec, unique_autocorrelation=spec.unique_autocorrelation + extra_items)
     obj_f = WindowObjective(windows, full_spec, options)
     estimates = {(p.kind, p.from_, p.to): p.estimate for p in restricted.parameters}
     theta = np.array([estimates.get((e.kind, e.from_, e.to), 0.0) for e in obj_f.layout.free_entries])
@@ -171,9 +191,8 @@ def _score_tests(obj_r: WindowObjective, restricted: FitResult, windows, options
         else:
             std = epc
         rows.append((e.kind, e.from_, e.to, float(score), float(chi2_dist.sf(score, 1)), float(epc), float(std)))
-    p_holm = holm(np.array([r[4] for r in rows])) if rows else np.array([])
-    return tuple(PathTest(kind=r[0], from_=r[1], to=r[2], score=r[3], p=r[4], p_holm=float(ph),
-                          epc=r[5], std_epc=r[6]) for r, ph in zip(rows, p_holm))
+    return tuple(PathTest(kind=r[0], from_=r[1], to=r[2], score=r[3], p=r[4], p_holm=r[4],
+                          epc=r[5], std_epc=r[6]) for r in rows)
 
 
 def _free_keys(obj: WindowObjective) -> set[tuple[str, str, str]]:

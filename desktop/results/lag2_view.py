@@ -20,6 +20,7 @@ from PySide6.QtWidgets import QHBoxLayout, QLabel, QPushButton
 from desktop.results.palette import NEGATIVE, POSITIVE
 from desktop.results.tables import SORT_ROLE, Column, RecordsModel, fmt
 from desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
+from desktop.style import WARNING
 from models.lag2check import Lag2Check, PathTest, lag1_version
 from models.results import FitResult
 from models.spec import ModelSpec
@@ -41,6 +42,9 @@ READING_GUIDE = (
 MULTIPLICITY_NOTE = ("{n} paths are tested at once. A path counts as indicated when its Holm "
                      "p-value (Holm 1979) is below .05; indicated paths are shown in bold and "
                      "only they can be adopted.")
+
+RUN_TIP = ("Fit the lag-1 and the lag-2 model on the same lag windows and test every lag-2 "
+           "path (runs in the background)")
 
 _STALE = ("The model has changed since the last lag-2 check. Press “Run lag-2 check” to test "
           "the current model.")
@@ -125,9 +129,11 @@ class PathTestsModel(RecordsModel):
 class Lag2View(ResultsPanel):
     """The lag-2 check of the current model (see module docstring).
 
-    Signals: `adopt_requested(kind, from_, to)` for the selected indicated path
-    (kind "lag2": state `from_` at t-2 -> state `to` at t; kind "unique_autocorrelation":
-    item `to`), and `run_requested()` from the "Run lag-2 check" button.
+    Feed it `set_spec(spec)` whenever the model changes (or `show_result(result)`) and
+    `show_check(check)` when a check finishes. Signals: `adopt_requested(kind, from_, to)`
+    for the selected indicated path (kind "lag2": state `from_` at t-2 -> state `to` at t;
+    kind "unique_autocorrelation": item `to`; `adopted_spec` builds the new specification),
+    and `run_requested()` from the "Run lag-2 check" button.
     """
 
     name = "lag-2 check"
@@ -139,8 +145,7 @@ class Lag2View(ResultsPanel):
         self._check: Lag2Check | None = None
         self._spec: ModelSpec | None = None
         self.run_button = QPushButton("Run lag-2 check")
-        self.run_button.setToolTip("Fit the lag-1 and the lag-2 model on the same lag windows and "
-                                   "test every lag-2 path (runs in the background)")
+        self.run_button.setToolTip(RUN_TIP)
         self.run_button.clicked.connect(self.run_requested)
         self.head.insertWidget(self.head.indexOf(self.export_button), self.run_button)
 
@@ -156,7 +161,7 @@ class Lag2View(ResultsPanel):
         self.lr_line.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.body.addWidget(self.lr_line)
         self.problems = note_label()
-        self.problems.setStyleSheet("color: #8a4b00;")
+        self.problems.setStyleSheet(f"color: {WARNING};")
         self.body.addWidget(self.problems)
 
         self.body.addSpacing(4)
@@ -200,6 +205,10 @@ class Lag2View(ResultsPanel):
         """The model being edited: a check of another lag-1 model is cleared as out of date,
         and paths already in `spec` are no longer offered for adoption."""
         self._spec = spec
+        can_run = bool(spec.states) and spec.lags >= 1
+        self.run_button.setEnabled(can_run)
+        self.run_button.setToolTip(RUN_TIP if can_run else "The lag-2 check needs a model with lagged "
+                                   "paths: choose lag order 1 on the Dynamics page first.")
         if self._check is not None and self._check.restricted.spec != lag1_version(spec):
             self.show_check(None, _STALE)
         self._update_adopt()
@@ -219,12 +228,15 @@ class Lag2View(ResultsPanel):
         self._banner(html.escape(check.verdict), "indicated" if check.indicated or check.lr_p < 0.05 else "quiet")
         self.lr_line.setText(
             f"Likelihood-ratio test, lag-1 model against the model with all {check.lr_df} lag-2 paths "
-            f"free ({fmt(check.restricted.n_windows, 'int')} lag windows of three prompts): "
+            f"free ({fmt(check.restricted.n_windows, 'int')} lag windows of "
+            f"{fmt(check.restricted.extras.get('depth', 2) + 1, 'int')} prompts): "
             f"chi-square {fmt(check.lr_chi2)} on {check.lr_df} df, p {fmt(check.lr_p, 'p')}.")
         self.lr_line.show()
-        problems = [f"The {name} did not converge ({fit.message}): treat its numbers as provisional."
-                    for name, fit in (("lag-1 model", check.restricted),
-                                      ("model with lag-2 paths", check.extended)) if not fit.converged]
+        problems = []
+        for name, fitted in (("lag-1 model", check.restricted), ("model with lag-2 paths", check.extended)):
+            if not fitted.converged:
+                problems.append(f"The {name} did not converge ({fitted.message}): treat the tests as provisional.")
+            problems += [f"The {name}: {flag}" for flag in fitted.flags]
         self.problems.setText(" ".join(problems))
         self.problems.setVisible(bool(problems))
         self.multiplicity.setText(MULTIPLICITY_NOTE.format(n=len(check.paths)))
