@@ -1,0 +1,150 @@
+"""Starting the window: `lagwise` (run_gui) and `lagwise demo` (run_demo).
+
+The QApplication is made once, high-DPI safe (fractional scale factors are passed through),
+with the Lagwise look. `lagwise demo --screenshot FILE` loads the bundled demo, estimates
+it and renders the window offscreen to a PNG without needing a display. On Linux without a
+display, opening the window is refused with a hint instead of Qt aborting.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+from pathlib import Path
+
+from models.errors import LagwiseError, ProjectError
+
+DEMO_FOLDER = Path(__file__).resolve().parents[1] / "resources" / "demo"
+DEMO_DIARY = DEMO_FOLDER / "demo_diary.csv"
+DEMO_TRUTH = DEMO_FOLDER / "demo_truth.json"
+SCREENSHOT_SIZE = (1440, 900)
+NO_DISPLAY = ("no display is available to open the window (DISPLAY and WAYLAND_DISPLAY are "
+              "not set); try 'lagwise demo --screenshot demo.png' to render the demo to a "
+              "picture instead")
+
+
+def has_display() -> bool:
+    """False on Linux/BSD with no X11 or Wayland display and no Qt platform chosen."""
+    if not sys.platform.startswith(("linux", "freebsd", "openbsd", "netbsd")):
+        return True
+    return any(os.environ.get(name) for name in ("DISPLAY", "WAYLAND_DISPLAY", "QT_QPA_PLATFORM"))
+
+
+def make_app(argv: list[str] | None = None):
+    """The QApplication (made once), with names for QSettings and the Lagwise style."""
+    from PySide6.QtCore import Qt
+    from PySide6.QtGui import QGuiApplication
+    from PySide6.QtWidgets import QApplication
+
+    from desktop import style
+
+    app = QApplication.instance()
+    if app is None:
+        QGuiApplication.setHighDpiScaleFactorRoundingPolicy(
+            Qt.HighDpiScaleFactorRoundingPolicy.PassThrough)
+        app = QApplication([sys.argv[0] if sys.argv else "lagwise", *(argv or [])])
+    app.setOrganizationName("Lagwise")
+    app.setApplicationName("Lagwise")
+    style.apply_style(app)
+    return app
+
+
+def load_demo(session) -> None:
+    """Put the demo diary and its model (resources/demo) into `session`."""
+    from desktop.session import ImportSettings
+    from models.diary import TimeSettings
+    from models.readers import read_table
+    from models.spec import ModelSpec
+    from models.timegrid import diary_from_frame
+
+    if not DEMO_DIARY.exists() or not DEMO_TRUTH.exists():
+        raise ProjectError(f"the demo files are missing from {DEMO_FOLDER}")
+    frame = read_table(DEMO_DIARY)
+    time = TimeSettings(mode="grid", day="day", prompt="prompt")
+    items = tuple(str(c) for c in frame.columns if c not in time.columns())
+    diary = diary_from_frame(frame, items, time, source=str(DEMO_DIARY))
+    try:
+        truth = json.loads(DEMO_TRUTH.read_text(encoding="utf-8"))
+    except (OSError, ValueError) as exc:
+        raise ProjectError(f"{DEMO_TRUTH}: cannot read the demo model ({exc})") from None
+    spec = ModelSpec.from_json(truth["spec"])
+    settings = ImportSettings(path=str(DEMO_DIARY), items=items, time=time)
+    session.load_data(frame, diary, settings, spec=spec)
+
+
+def add_demo_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--screenshot", metavar="FILE",
+                        help="estimate the demo and save a picture of the window to FILE (PNG) "
+                             "without opening it")
+
+
+def run_demo(args: argparse.Namespace) -> int:
+    """Open the demo in the window, or with --screenshot render it to a PNG and return 0."""
+    screenshot = getattr(args, "screenshot", None)
+    if screenshot:
+        from PySide6.QtWidgets import QApplication
+
+        if QApplication.instance() is None:
+            os.environ["QT_QPA_PLATFORM"] = "offscreen"
+        return _demo_screenshot(Path(screenshot))
+    if not has_display():
+        print(f"lagwise: {NO_DISPLAY}", file=sys.stderr)
+        return 2
+    app = make_app()
+    from desktop.mainwindow import MainWindow
+
+    window = MainWindow()
+    load_demo(window.session)
+    window.show()
+    window.estimate()
+    return int(app.exec())
+
+
+def run_gui(argv: list[str] | None = None) -> int:
+    """Open the window; a data file given on the command line goes to the import dialog."""
+    parser = argparse.ArgumentParser(prog="lagwise", description="Open the Lagwise window.")
+    parser.add_argument("file", nargs="?", help="a diary file to import")
+    args = parser.parse_args(list(argv or []))
+    if args.file is not None:
+        path = Path(args.file)
+        if path.suffix.lower() == ".lagwise":
+            raise ProjectError(f"{path}: opening project files in the window is not available "
+                               "yet; import the diary file instead")
+        if not path.exists():
+            raise LagwiseError(f"{path}: no such file")
+    if not has_display():
+        print(f"lagwise: {NO_DISPLAY}", file=sys.stderr)
+        return 2
+    app = make_app()
+    from desktop.mainwindow import MainWindow
+
+    window = MainWindow()
+    window.show()
+    if args.file is not None:
+        window.import_data(args.file)
+    return int(app.exec())
+
+
+def _demo_screenshot(path: Path) -> int:
+    app = make_app()
+    from desktop.export import save_widget_png
+    from desktop.mainwindow import PAGES, MainWindow
+    from models.estimate import fit
+
+    window = MainWindow()
+    load_demo(window.session)
+    snapshot = window.session.snapshot()
+    result = fit(snapshot.diary, snapshot.spec, snapshot.options)
+    window.session.set_result(result, snapshot)
+    window.resize(*SCREENSHOT_SIZE)
+    window.show_page(PAGES.index("Results"))
+    window.results.tabs.setCurrentWidget(window.results.dynamics)
+    window.show()
+    for _ in range(3):
+        app.processEvents()
+    save_widget_png(window, path, scale=1.0)
+    window.hide()  # not close(): a screenshot must not change the remembered window layout
+    print(f"saved {path} ({SCREENSHOT_SIZE[0]} x {SCREENSHOT_SIZE[1]})")
+    return 0

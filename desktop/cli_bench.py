@@ -1,0 +1,53 @@
+"""`lagwise bench [--quick] [--repeats N] [--all-peers] [--semopy-threads 1|default]
+[--no-memory]`: speed and memory of
+the estimators against semopy on simulated diaries (models.benchmark), printed as a table
+with PASS/MISS lines for the targets. Always exits 0: a benchmark reports, it does not fail.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from models.benchmark import format_report, run_benchmark
+
+
+class _Progress:
+    """Progress lines on stderr, so the table on stdout stays clean."""
+
+    def report(self, fraction: float, message: str) -> None:
+        print(f"[{fraction:4.0%}] {message}", file=sys.stderr, flush=True)
+
+    def cancelled(self) -> bool:
+        return False
+
+
+def _positive(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a whole number") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError("must be at least 1")
+    return value
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--quick", action="store_true",
+                        help="only the small diary, one run each, and a 10,000-prompt memory run")
+    parser.add_argument("--repeats", type=_positive, metavar="N",
+                        help="runs per timing, the best kept (default 3, or 1 with --quick)")
+    parser.add_argument("--all-peers", action="store_true",
+                        help="also time semopy with item intercepts on the large diary (slow)")
+    parser.add_argument("--semopy-threads", choices=("1", "default"), default="1",
+                        help="BLAS threads for semopy: 1 like Lagwise (default), or its default")
+    parser.add_argument("--no-memory", action="store_true",
+                        help="skip the peak-memory run")
+
+
+def run(args: argparse.Namespace) -> int:
+    report = run_benchmark(quick=args.quick, repeats=args.repeats, all_peers=args.all_peers,
+                           memory=not args.no_memory, semopy_threads=args.semopy_threads,
+                           monitor=_Progress())
+    print(format_report(report))
+    return 0

@@ -1,0 +1,166 @@
+"""Saving what the window shows: pictures as PNG or SVG, tables as CSV.
+
+Every view that shows numbers can export them and every picture can be saved
+(DESIGN.md section 4). A "picture" is any QWidget (pyqtgraph plots are QWidgets too),
+a QGraphicsView or a QGraphicsScene. Tables are saved from their Qt item model exactly
+as the user sees them (the display text of every cell, header row first).
+"""
+
+from __future__ import annotations
+
+import csv
+from pathlib import Path
+
+from PySide6.QtCore import QAbstractItemModel, QModelIndex, QPoint, QRectF, QSize, Qt
+from PySide6.QtGui import QAction, QColor, QImage, QPainter
+from PySide6.QtSvg import QSvgGenerator
+from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMenu, QMessageBox, QWidget
+
+Picture = QWidget | QGraphicsScene
+
+
+def save_widget_png(target: Picture, path: str | Path, scale: float = 2.0) -> Path:
+    """Render a widget, view or scene into a PNG file (`scale` x its size for sharp print)."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    if isinstance(target, QGraphicsScene):
+        image = _scene_image(target, scale)
+    else:
+        image = _widget_image(target, scale)
+    if not image.save(str(path), "PNG"):
+        raise OSError(f"Could not write the picture to {path}.")
+    return path
+
+
+def save_scene_svg(target: Picture, path: str | Path, title: str = "Lagwise") -> Path:
+    """Write a scene, view or widget as a vector SVG picture."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    rect = _picture_rect(target)
+    generator = QSvgGenerator()
+    generator.setFileName(str(path))
+    generator.setTitle(title)
+    generator.setSize(QSize(max(1, round(rect.width())), max(1, round(rect.height()))))
+    generator.setViewBox(QRectF(0, 0, rect.width(), rect.height()))
+    painter = QPainter()
+    if not painter.begin(generator):
+        raise OSError(f"Could not write the picture to {path}.")
+    try:
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+        if isinstance(target, QGraphicsScene):
+            target.render(painter, QRectF(0, 0, rect.width(), rect.height()), rect)
+        else:
+            QWidget.render(target, painter, QPoint())
+    finally:
+        painter.end()
+    if not path.exists():
+        raise OSError(f"Could not write the picture to {path}.")
+    return path
+
+
+def save_picture(target: Picture, path: str | Path) -> Path:
+    """Save as SVG when the file name ends in .svg, otherwise as PNG."""
+    if Path(path).suffix.lower() == ".svg":
+        return save_scene_svg(target, path)
+    return save_widget_png(target, path)
+
+
+def table_rows(model: QAbstractItemModel) -> list[list[str]]:
+    """The header row and every row of a table model as display text."""
+    columns = model.columnCount(QModelIndex())
+    header = [_text(model.headerData(c, Qt.Orientation.Horizontal, Qt.ItemDataRole.DisplayRole))
+              for c in range(columns)]
+    rows = [header]
+    for r in range(model.rowCount(QModelIndex())):
+        rows.append([_text(model.data(model.index(r, c), Qt.ItemDataRole.DisplayRole))
+                     for c in range(columns)])
+    return rows
+
+
+def save_table_csv(model: QAbstractItemModel, path: str | Path) -> Path:
+    """Write a table model (as displayed, header first) to a UTF-8 CSV file."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    with path.open("w", newline="", encoding="utf-8") as handle:
+        csv.writer(handle).writerows(table_rows(model))
+    return path
+
+
+def export_menu(parent: QWidget, picture: Picture | None = None,
+                table_model: QAbstractItemModel | None = None, name: str = "lagwise") -> QMenu:
+    """A menu with "Save picture as PNG/SVG" and "Save numbers as CSV" actions.
+
+    Attach it to a tool button or a context menu; `name` is the suggested file name.
+    """
+    menu = QMenu("Export", parent)
+    if picture is not None:
+        png = QAction("Save picture as PNG…", menu)
+        png.triggered.connect(lambda: _ask_and_save(parent, picture, name, "png"))
+        svg = QAction("Save picture as SVG…", menu)
+        svg.triggered.connect(lambda: _ask_and_save(parent, picture, name, "svg"))
+        menu.addAction(png)
+        menu.addAction(svg)
+    if table_model is not None:
+        table = QAction("Save numbers as CSV…", menu)
+        table.triggered.connect(lambda: _ask_and_save(parent, table_model, name, "csv"))
+        menu.addAction(table)
+    return menu
+
+
+# ----- helpers -----------------------------------------------------------------------
+_FILTERS = {"png": "PNG picture (*.png)", "svg": "SVG picture (*.svg)", "csv": "CSV table (*.csv)"}
+
+
+def _ask_and_save(parent: QWidget, target, name: str, kind: str) -> None:
+    path, _ = QFileDialog.getSaveFileName(parent, "Save as", f"{name}.{kind}", _FILTERS[kind])
+    if not path:
+        return
+    if not path.lower().endswith("." + kind):
+        path += "." + kind
+    try:
+        if kind == "csv":
+            save_table_csv(target, path)
+        elif kind == "svg":
+            save_scene_svg(target, path)
+        else:
+            save_widget_png(target, path)
+    except OSError as exc:
+        QMessageBox.warning(parent, "Could not save", str(exc))
+
+
+def _picture_rect(target: Picture) -> QRectF:
+    if isinstance(target, QGraphicsScene):
+        return target.itemsBoundingRect().adjusted(-10, -10, 10, 10)
+    size = target.size()
+    return QRectF(0, 0, size.width(), size.height())
+
+
+def _widget_image(widget: QWidget, scale: float) -> QImage:
+    """Paint the widget (on screen or not) into an image `scale` times its size."""
+    widget.ensurePolished()
+    size = widget.size()
+    image = QImage(max(1, round(size.width() * scale)), max(1, round(size.height() * scale)),
+                   QImage.Format.Format_ARGB32_Premultiplied)
+    image.setDevicePixelRatio(scale)
+    image.fill(QColor("white"))
+    painter = QPainter(image)
+    painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+    QWidget.render(widget, painter, QPoint())  # the widget as shown, not only a view's scene
+    painter.end()
+    return image
+
+
+def _scene_image(scene: QGraphicsScene, scale: float) -> QImage:
+    rect = _picture_rect(scene)
+    image = QImage(max(1, round(rect.width() * scale)), max(1, round(rect.height() * scale)),
+                   QImage.Format.Format_ARGB32_Premultiplied)
+    image.fill(QColor("white"))
+    painter = QPainter(image)
+    painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+    scene.render(painter, QRectF(0, 0, image.width(), image.height()), rect)
+    painter.end()
+    return image
+
+
+def _text(value) -> str:
+    return "" if value is None else str(value)

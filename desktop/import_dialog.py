@@ -1,0 +1,395 @@
+"""The import dialog: a data file becomes a diary, column by column.
+
+Every column gets a role (item, day, prompt number, timestamp, ignore), guessed from its
+name and contents and changeable by the user. The preview below updates as roles change:
+how many occasions, days, answered prompts and lag windows the diary would have, the data
+layer's notes, or its error message. Nothing reaches the project until the user accepts.
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import numpy as np
+from PySide6.QtCore import QAbstractTableModel, QModelIndex, Qt, Signal
+from PySide6.QtWidgets import (
+    QComboBox, QDialog, QDialogButtonBox, QFileDialog, QFormLayout, QGroupBox, QHBoxLayout,
+    QHeaderView, QLabel, QLineEdit, QPushButton, QSpinBox, QSplitter, QTableView, QTableWidget,
+    QTableWidgetItem, QVBoxLayout, QWidget,
+)
+
+from desktop import style
+from desktop.session import ImportSettings
+from models.diary import Diary, TimeSettings
+from models.errors import LagwiseError
+from models.readers import SUPPORTED_SUFFIXES, looks_like_dates, numeric_cells, read_table
+from models.summary import diary_summary
+from models.timegrid import diary_from_frame
+
+ROLES: tuple[str, ...] = ("item", "day", "prompt number", "timestamp", "ignore")
+SINGLE_ROLES = ("day", "prompt number", "timestamp")  # at most one column each
+FILE_FILTER = ("Diary files (" + " ".join(f"*{s}" for s in SUPPORTED_SUFFIXES) + ");;"
+               "All files (*)")
+PREVIEW_ROWS = 8
+
+TIME_WORDS = frozenset({"time", "timestamp", "datetime", "clock", "moment"})
+DAY_WORDS = frozenset({"day", "date", "days", "dag", "datum"})
+PROMPT_WORDS = frozenset({"prompt", "beep", "signal", "occasion", "prompts", "beeps"})
+ID_WORDS = frozenset({"id", "pid", "participant", "subject", "person", "case"})
+
+
+def name_words(name: str) -> set[str]:
+    """Lower-case words of a column name: 'beepTime', 'beep_time' -> {'beep', 'time'}."""
+    spaced = re.sub(r"([a-z])([A-Z])", r"\1 \2", name)
+    return {w for w in re.split(r"[^A-Za-z]+", spaced.lower()) if w}
+
+
+def guess_role(name: str, column) -> str:
+    """A sensible first role for a column from its name and contents.
+
+    Names with time/timestamp/datetime -> timestamp; day/date -> day; prompt/beep/signal ->
+    prompt number; identifiers -> ignore; other columns holding numbers -> item; text -> ignore.
+    """
+    words = name_words(name)
+    if words & TIME_WORDS:
+        return "timestamp"
+    if words & DAY_WORDS:
+        return "day"
+    if words & PROMPT_WORDS:
+        return "prompt number"
+    if words and words <= ID_WORDS | {"nr", "no", "number"}:
+        return "ignore"
+    values, bad = numeric_cells(column)
+    filled = bad | ~np.isnan(values)
+    if filled.any() and (~bad & filled).sum() > 0.5 * filled.sum():
+        return "item"
+    if looks_like_dates(column) and filled.any():
+        return "timestamp"
+    return "ignore"
+
+
+def counted(n: int, noun: str, bold: bool = False) -> str:
+    """'1 day', '3 days' (the number in bold for rich text)."""
+    number = f"<b>{n}</b>" if bold else str(n)
+    return f"{number} {noun}{'' if n == 1 else 's'}"
+
+
+def time_settings(roles: dict[str, str], days_independent: bool = True,
+                  max_gap_minutes: float | None = None) -> TimeSettings:
+    """Time settings that follow from the roles: day + prompt -> grid, timestamp -> by time."""
+    pick = {role: name for name, role in roles.items() if role in SINGLE_ROLES}
+    day, prompt, stamp = pick.get("day"), pick.get("prompt number"), pick.get("timestamp")
+    if day or prompt:
+        if stamp and not (day and prompt):
+            return TimeSettings(mode="timestamp", time=stamp, days_independent=days_independent,
+                                max_gap_minutes=max_gap_minutes)
+        return TimeSettings(mode="grid", day=day, prompt=prompt, time=stamp,
+                            days_independent=days_independent)
+    if stamp:
+        return TimeSettings(mode="timestamp", time=stamp, days_independent=days_independent,
+                            max_gap_minutes=max_gap_minutes)
+    return TimeSettings(mode="order", days_independent=days_independent)
+
+
+class _FrameModel(QAbstractTableModel):
+    """The first rows of the file as the user typed them."""
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self._columns: list[str] = []
+        self._rows: list[list[str]] = []
+        self._index: list[str] = []
+
+    def set_frame(self, frame) -> None:
+        self.beginResetModel()
+        if frame is None:
+            self._columns, self._rows, self._index = [], [], []
+        else:
+            head = frame.head(PREVIEW_ROWS)
+            self._columns = [str(c) for c in head.columns]
+            self._rows = [[_show(v) for v in row] for row in head.itertuples(index=False)]
+            self._index = [str(i) for i in head.index]
+        self.endResetModel()
+
+    def rowCount(self, parent=QModelIndex()) -> int:
+        return 0 if parent.isValid() else len(self._rows)
+
+    def columnCount(self, parent=QModelIndex()) -> int:
+        return 0 if parent.isValid() else len(self._columns)
+
+    def data(self, index, role=Qt.ItemDataRole.DisplayRole):
+        if role == Qt.ItemDataRole.DisplayRole and index.isValid():
+            return self._rows[index.row()][index.column()]
+        return None
+
+    def headerData(self, section, orientation, role=Qt.ItemDataRole.DisplayRole):
+        if role != Qt.ItemDataRole.DisplayRole:
+            return None
+        if orientation == Qt.Orientation.Horizontal:
+            return self._columns[section]
+        return self._index[section]
+
+
+def _show(value) -> str:
+    """A cell as text: empty for no value, 48 rather than 48.0."""
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        return "" if value != value else f"{value:g}"
+    return str(value)
+
+
+class ImportDialog(QDialog):
+    """Choose a file, give every column a role, check the preview, accept."""
+
+    previewChanged = Signal()
+
+    def __init__(self, parent: QWidget | None = None, path: str | Path | None = None,
+                 days_independent: bool = True) -> None:
+        super().__init__(parent)
+        self.setWindowTitle("Import a diary")
+        self.setObjectName("importDialog")
+        self.resize(1000, 640)
+        self._frame = None
+        self._path = ""
+        self._diary: Diary | None = None
+        self._settings: ImportSettings | None = None
+        self._days_independent = days_independent
+        self._boxes: dict[str, QComboBox] = {}
+        self.start_folder = ""  # where "Choose file…" starts
+        self._build()
+        if path is not None:
+            self.open_path(path)
+
+    # ----- building ------------------------------------------------------------------
+    def _build(self) -> None:
+        layout = QVBoxLayout(self)
+        top = QHBoxLayout()
+        self.path_label = QLabel("No file chosen.")
+        self.path_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        choose = QPushButton("&Choose file…")
+        choose.clicked.connect(self.choose_file)
+        top.addWidget(self.path_label, 1)
+        top.addWidget(choose)
+        layout.addLayout(top)
+
+        splitter = QSplitter(Qt.Orientation.Horizontal)
+        left = QGroupBox("Columns and their roles")
+        left_layout = QVBoxLayout(left)
+        self.roles_table = QTableWidget(0, 3)
+        self.roles_table.setHorizontalHeaderLabels(["Column", "First values", "Role"])
+        self.roles_table.verticalHeader().setVisible(False)
+        header = self.roles_table.horizontalHeader()
+        header.setSectionResizeMode(0, QHeaderView.ResizeMode.ResizeToContents)
+        header.setSectionResizeMode(1, QHeaderView.ResizeMode.Stretch)
+        header.setSectionResizeMode(2, QHeaderView.ResizeMode.ResizeToContents)
+        self.roles_table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
+        left_layout.addWidget(self.roles_table)
+        hint = QLabel("Item: an answer to analyse. Day and prompt number place answers on a "
+                      "daily grid; a timestamp places them by clock time.")
+        hint.setWordWrap(True)
+        hint.setStyleSheet(f"color: {style.MUTED};")
+        left_layout.addWidget(hint)
+        splitter.addWidget(left)
+
+        right = QWidget()
+        right_layout = QVBoxLayout(right)
+        right_layout.setContentsMargins(0, 0, 0, 0)
+        options = QGroupBox("Reading")
+        form = QFormLayout(options)
+        self.missing_edit = QLineEdit()
+        self.missing_edit.setPlaceholderText("for example -99, 999, refused")
+        self.missing_edit.setToolTip("Values that mean 'no answer', separated by commas.")
+        self.missing_edit.editingFinished.connect(self.update_preview)
+        form.addRow("&Missing-value codes:", self.missing_edit)
+        self.per_day_spin = QSpinBox()
+        self.per_day_spin.setRange(0, 100)
+        self.per_day_spin.setSpecialValueText("as in the file")
+        self.per_day_spin.setToolTip("The number of scheduled prompts a day (grid diaries). "
+                                     "'As in the file' uses the highest prompt number found.")
+        self.per_day_spin.valueChanged.connect(self.update_preview)
+        form.addRow("&Prompts per day:", self.per_day_spin)
+        self.gap_spin = QSpinBox()
+        self.gap_spin.setRange(0, 24 * 60)
+        self.gap_spin.setSuffix(" min")
+        self.gap_spin.setSpecialValueText("no limit")
+        self.gap_spin.setToolTip("Diaries placed by timestamp: a pause longer than this starts "
+                                 "a new segment (no lag window spans it).")
+        self.gap_spin.valueChanged.connect(self.update_preview)
+        form.addRow("Longest &gap in a segment:", self.gap_spin)
+        right_layout.addWidget(options)
+
+        preview = QGroupBox("Preview of the diary")
+        preview_layout = QVBoxLayout(preview)
+        self.summary_label = QLabel("—")
+        self.summary_label.setObjectName("importSummary")
+        self.summary_label.setWordWrap(True)
+        preview_layout.addWidget(self.summary_label)
+        self.notes_label = QLabel("")
+        self.notes_label.setWordWrap(True)
+        self.notes_label.setStyleSheet(f"color: {style.NOTE};")
+        preview_layout.addWidget(self.notes_label)
+        self.error_label = QLabel("")
+        self.error_label.setObjectName("importError")
+        self.error_label.setWordWrap(True)
+        self.error_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.error_label.setStyleSheet(f"color: {style.WARNING}; font-weight: bold;")
+        preview_layout.addWidget(self.error_label)
+        self.rows_view = QTableView()
+        self.rows_model = _FrameModel(self)
+        self.rows_view.setModel(self.rows_model)
+        self.rows_view.horizontalHeader().setSectionResizeMode(
+            QHeaderView.ResizeMode.ResizeToContents)
+        preview_layout.addWidget(QLabel("First rows of the file:"))
+        preview_layout.addWidget(self.rows_view, 1)
+        right_layout.addWidget(preview, 1)
+        splitter.addWidget(right)
+        splitter.setSizes([460, 540])
+        layout.addWidget(splitter, 1)
+
+        self.buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Ok
+                                        | QDialogButtonBox.StandardButton.Cancel)
+        self.buttons.button(QDialogButtonBox.StandardButton.Ok).setText("&Import")
+        self.buttons.accepted.connect(self.accept)
+        self.buttons.rejected.connect(self.reject)
+        layout.addWidget(self.buttons)
+        self._set_ok(False)
+
+    # ----- public --------------------------------------------------------------------
+    def choose_file(self) -> None:
+        folder = str(Path(self._path).parent) if self._path else self.start_folder
+        path, _ = QFileDialog.getOpenFileName(self, "Open a diary file", folder, FILE_FILTER)
+        if path:
+            self.open_path(path)
+
+    def open_path(self, path: str | Path) -> None:
+        """Read the file and guess every column's role; a bad file shows its message here."""
+        self._path = str(path)
+        self.path_label.setText(self._path)
+        try:
+            frame = read_table(path)
+        except LagwiseError as exc:
+            self._frame = None
+            self._fill_roles({})
+            self.rows_model.set_frame(None)
+            self._show_error(str(exc))
+            return
+        self._frame = frame
+        self.rows_model.set_frame(frame)
+        roles: dict[str, str] = {}
+        for name in frame.columns:
+            role = guess_role(str(name), frame[name])
+            if role in SINGLE_ROLES and role in roles.values():
+                role = "ignore"
+            roles[str(name)] = role
+        self._fill_roles(roles)
+        self.update_preview()
+
+    def role_box(self, column: str) -> QComboBox:
+        """The role chooser of one column."""
+        return self._boxes[column]
+
+    def roles(self) -> dict[str, str]:
+        return {name: box.currentText() for name, box in self._boxes.items()}
+
+    def set_role(self, column: str, role: str) -> None:
+        self._boxes[column].setCurrentText(role)
+
+    def missing_codes(self) -> tuple[str, ...]:
+        return tuple(c.strip() for c in self.missing_edit.text().split(",") if c.strip())
+
+    def diary(self) -> Diary | None:
+        """The diary of the current roles (None while they do not make one)."""
+        return self._diary
+
+    def frame(self):
+        return self._frame
+
+    def settings(self) -> ImportSettings | None:
+        return self._settings
+
+    # ----- preview -------------------------------------------------------------------
+    def update_preview(self) -> None:
+        """Rebuild the diary from the current roles through the data layer and describe it."""
+        self._diary, self._settings = None, None
+        if self._frame is None:
+            self._set_ok(False)
+            return
+        roles = self.roles()
+        items = tuple(name for name, role in roles.items() if role == "item")
+        gap = self.gap_spin.value() or None
+        time = time_settings(roles, self._days_independent, float(gap) if gap else None)
+        per_day = self.per_day_spin.value() or None
+        codes = self.missing_codes()
+        if len(items) < 2:
+            self._show_error("Choose at least two item columns (role 'item').")
+            return
+        try:
+            diary = diary_from_frame(self._frame, items, time, missing_codes=codes,
+                                     source=self._path, prompts_per_day=per_day)
+        except LagwiseError as exc:
+            self._show_error(str(exc))
+            return
+        self._diary = diary
+        self._settings = ImportSettings(path=self._path, items=items, time=time,
+                                        missing_codes=codes, prompts_per_day=per_day)
+        summary = diary_summary(diary)
+        occasions, answered = summary["occasions"], summary["answered"]
+        windows = summary["windows"]["1"] + summary["partial_windows"]["1"]
+        mode = {"grid": "a grid of days and prompt numbers", "timestamp": "their timestamps",
+                "order": "file order (no day or time column)"}[time.mode]
+        self.summary_label.setText(
+            f"{counted(diary.n_items, 'item', True)} · {counted(occasions, 'occasion', True)} · "
+            f"{counted(summary['days'], 'day', True)} · "
+            f"{counted(answered, 'prompt', True)} answered ({occasions - answered} missed) · "
+            f"{counted(windows, 'lag window', True)} of two consecutive prompts "
+            f"({summary['windows']['1']} complete)<br>Prompts are placed by {mode}.")
+        self.notes_label.setText("<br>".join(f"Note: {w}" for w in summary["warnings"]))
+        self.error_label.setText("")
+        self._set_ok(True)
+        self.previewChanged.emit()
+
+    # ----- helpers -------------------------------------------------------------------
+    def _fill_roles(self, roles: dict[str, str]) -> None:
+        self._boxes.clear()
+        self.roles_table.setRowCount(len(roles))
+        for row, (name, role) in enumerate(roles.items()):
+            self.roles_table.setItem(row, 0, _cell(name))
+            self.roles_table.setItem(row, 1, _cell(self._examples(name)))
+            box = QComboBox()
+            box.addItems(ROLES)
+            box.setCurrentText(role)
+            box.setAccessibleName(f"Role of column {name}")
+            box.currentTextChanged.connect(lambda text, name=name: self._role_changed(name, text))
+            self.roles_table.setCellWidget(row, 2, box)
+            self._boxes[name] = box
+
+    def _role_changed(self, column: str, role: str) -> None:
+        if role in SINGLE_ROLES:  # one day, prompt and timestamp column each
+            for name, box in self._boxes.items():
+                if name != column and box.currentText() == role:
+                    box.blockSignals(True)
+                    box.setCurrentText("ignore")
+                    box.blockSignals(False)
+        self.update_preview()
+
+    def _examples(self, name: str) -> str:
+        cells = [_show(v) for v in self._frame[name].head(4)]
+        return ", ".join(c for c in cells if c)
+
+    def _show_error(self, message: str) -> None:
+        self.summary_label.setText("—")
+        self.notes_label.setText("")
+        self.error_label.setText(message)
+        self._set_ok(False)
+        self.previewChanged.emit()
+
+    def _set_ok(self, enabled: bool) -> None:
+        self.buttons.button(QDialogButtonBox.StandardButton.Ok).setEnabled(enabled)
+
+
+def _cell(text: str) -> QTableWidgetItem:
+    item = QTableWidgetItem(text)
+    item.setFlags(Qt.ItemFlag.ItemIsEnabled | Qt.ItemFlag.ItemIsSelectable)
+    return item
