@@ -143,6 +143,8 @@ def _scales(objective: WindowObjective, theta0: np.ndarray) -> np.ndarray:
             out[n] = max(abs(theta0[n]), 1e-3 * float(np.mean(objective.item_var)))
         elif e.block == "lam":
             out[n] = max(abs(theta0[n]), 0.1)
+        elif e.block == "c":
+            out[n] = float(np.sqrt(np.mean(objective.item_var)))
         else:
             out[n] = 0.5
     return out
@@ -337,4 +339,6 @@ def _standardized(e, value: float, mats, sd_eta: np.ndarray, sd_y: np.ndarray) -
     if e.block == "phif":
         a, b = e.index
         return value / np.sqrt(mats.phif[a, a] * mats.phif[b, b])
+    if e.block == "c":
+        return value / sd_eta[e.index[0]]
     return None

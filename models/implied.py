@@ -7,6 +7,9 @@ oldest q copies are exogenous with covariance P. Then
     Phi_xi = M Psi~ M',  M = (I - A)^-1,  Psi~ = blockdiag(Psi, ..., Psi, P)
     Sigma  = (I kron Lambda) Phi_xi (I kron Lambda)' + Theta~,   mu = (nu, ..., nu)
 with Theta~ block (a, b) = diag(d^|a-b| theta) (unique parts autocorrelated with d).
+First-copy-free adds latent intercepts c for the regressed copies: the copies' latent means
+are m = M c~ (c~ = c for regressed copies, 0 for the oldest) and mu = (nu, ..., nu) + (I kron
+Lambda) m, so the window means are free of stationarity too.
 Estimator "stationary": P is the companion-form stationary covariance (discrete Lyapunov
 equation), which makes Sigma block-Toeplitz. Estimator "first-copy-free": P is free.
 The Lyapunov step is differentiated by its adjoint: for f(P) with df/dP = H and
@@ -35,6 +38,7 @@ class Implied:
     sigma: np.ndarray
     lam_big: np.ndarray
     m_inv: np.ndarray
+    latent_mean: np.ndarray | None
     phi_xi: np.ndarray
     comp: np.ndarray | None
     p_old: np.ndarray | None
@@ -72,7 +76,14 @@ def implied_moments(m: Matrices, depth: int, estimator: str) -> Implied:
     theta_blocks = m.theta[None, None, :] * m.d[None, None, :] ** lagdist[:, :, None]
     sigma = lam_big @ phi_xi @ lam_big.T + _block_diagonals(theta_blocks)
     mu = np.tile(m.nu, copies)
-    return Implied(mu=mu, sigma=sigma, lam_big=lam_big, m_inv=m_inv, phi_xi=phi_xi, comp=comp, p_old=p_old)
+    latent_mean = None
+    if m.c is not None:
+        c_big = np.zeros(kk)
+        c_big[:n_reg * k] = np.tile(m.c, n_reg)
+        latent_mean = m_inv @ c_big
+        mu = mu + lam_big @ latent_mean
+    return Implied(mu=mu, sigma=sigma, lam_big=lam_big, m_inv=m_inv, latent_mean=latent_mean,
+                   phi_xi=phi_xi, comp=comp, p_old=p_old)
 
 
 def _block_diagonals(blocks: np.ndarray) -> np.ndarray:
@@ -100,13 +111,20 @@ def matrix_gradients(m: Matrices, imp: Implied, g_sigma: np.ndarray, g_mu: np.nd
                           * m.d[None, None, :] ** np.maximum(lagdist - 1, 0), 0.0), axis=(0, 1))
     # loadings
     g_lam_big = 2.0 * g_sigma @ imp.lam_big @ imp.phi_xi
-    g_lam = sum(g_lam_big[j * p:(j + 1) * p, j * k:(j + 1) * k] for j in range(copies))
     # latent covariance -> Psi~, A
     h_mat = imp.lam_big.T @ g_sigma @ imp.lam_big
     g_psi_big = imp.m_inv.T @ h_mat @ imp.m_inv
     g_a = 2.0 * imp.m_inv.T @ h_mat @ imp.phi_xi
-    g_lagged = np.zeros_like(m.lagged)
     n_reg = copies - q if q > 0 else copies
+    g_c = None
+    if imp.latent_mean is not None:
+        # mu += (I kron Lambda) M c~ : d/dLambda, d/dA = M' g m', d/dc~ = M' g with g = Lambda~' g_mu
+        g_lam_big = g_lam_big + np.outer(g_mu, imp.latent_mean)
+        g_m = imp.m_inv.T @ (imp.lam_big.T @ g_mu)
+        g_a = g_a + np.outer(g_m, imp.latent_mean)
+        g_c = g_m[:n_reg * k].reshape(n_reg, k).sum(axis=0)
+    g_lam = sum(g_lam_big[j * p:(j + 1) * p, j * k:(j + 1) * k] for j in range(copies))
+    g_lagged = np.zeros_like(m.lagged)
     for j in range(copies - q if q > 0 else 0):
         for lag in range(1, q + 1):
             g_lagged[lag - 1] += g_a[j * k:(j + 1) * k, (j + lag) * k:(j + lag + 1) * k]
@@ -122,4 +140,5 @@ def matrix_gradients(m: Matrices, imp: Implied, g_sigma: np.ndarray, g_mu: np.nd
             g_comp = 2.0 * w @ imp.comp @ imp.p_old
             for lag in range(1, q + 1):
                 g_lagged[lag - 1] += g_comp[:k, (lag - 1) * k:lag * k]
-    return Gradients(nu=g_nu, lam=g_lam, theta=g_theta, d=g_d, lagged=g_lagged, psi=g_psi, phif=g_phif)
+    return Gradients(nu=g_nu, lam=g_lam, theta=g_theta, d=g_d, lagged=g_lagged, psi=g_psi,
+                     phif=g_phif, c=g_c)

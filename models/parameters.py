@@ -5,7 +5,9 @@ Blocks (usual symbols): nu (intercepts), Lambda (loadings), Theta (unique varian
 d (lag-1 autocorrelation of unique parts), B_l (lagged paths), Psi (innovations) — as free
 covariances, or (partial form) innovation variances v and partial correlations rho with
 Psi = D C D, C = R^-1, R = I - rho (off-diagonal), D = diag(sqrt(v / diag C)) — and, for the
-first-copy-free estimator, Phi_F (free covariance of the oldest q copies of the states).
+first-copy-free estimator, Phi_F (free covariance of the oldest q copies of the states) and c
+(latent intercepts of the regressed copies; the oldest copies have latent mean 0), so that its
+window means are not tied to stationarity either.
 """
 
 from __future__ import annotations
@@ -49,6 +51,7 @@ class Matrices:
     lagged: np.ndarray  # (q, k, k)
     psi: np.ndarray     # (k, k)
     phif: np.ndarray | None = None  # (qk, qk), first-copy-free only
+    c: np.ndarray | None = None     # (k,), first-copy-free only: latent intercepts
     pv: np.ndarray | None = None    # partial form: innovation variances
     rmat: np.ndarray | None = None  # partial form: R = I - rho
 
@@ -64,6 +67,7 @@ class Gradients:
     lagged: np.ndarray
     psi: np.ndarray
     phif: np.ndarray | None = None
+    c: np.ndarray | None = None
 
 
 def partial_to_psi(pv: np.ndarray, rmat: np.ndarray) -> np.ndarray:
@@ -136,6 +140,8 @@ class ParameterLayout:
             for a in range(self.q * self.k):
                 for b in range(a + 1):
                     out.append(Entry("first_copy", names[b], names[a], 0, "phif", (a, b), True))
+            for i, s in enumerate(states):
+                out.append(Entry("latent_intercept", s, s, 0, "c", (i,), True))
         return out
 
     # ----- vector <-> matrices -------------------------------------------------------
@@ -149,6 +155,7 @@ class ParameterLayout:
             m.rmat = np.eye(k)
         if self.estimator == "first-copy-free" and q > 0:
             m.phif = np.zeros((q * k, q * k))
+            m.c = np.zeros(k)
         it = iter(theta)
         for e in self.entries:
             v = float(next(it)) if e.free else e.value
@@ -173,6 +180,8 @@ class ParameterLayout:
             elif e.block == "phif":
                 a, b = e.index
                 m.phif[a, b] = m.phif[b, a] = v
+            elif e.block == "c":
+                m.c[e.index] = v
         if partial:
             m.psi = partial_to_psi(m.pv, m.rmat)
         return m
@@ -199,6 +208,8 @@ class ParameterLayout:
                 out.append(-m.rmat[e.index])
             elif e.block == "phif":
                 out.append(m.phif[e.index])
+            elif e.block == "c":
+                out.append(m.c[e.index])
         return np.asarray(out, dtype=float)
 
     def gradient_vector(self, m: Matrices, g: Gradients) -> np.ndarray:
@@ -229,6 +240,8 @@ class ParameterLayout:
             elif e.block == "phif":
                 a, b = e.index
                 out[n] = g.phif[a, a] if a == b else g.phif[a, b] + g.phif[b, a]
+            elif e.block == "c":
+                out[n] = g.c[e.index]
         return out
 
     def bounds(self) -> list[tuple[float | None, float | None]]:

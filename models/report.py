@@ -16,6 +16,7 @@ KIND_TITLES = (
     ("innovation", "Innovations (variances and covariances)"),
     ("partial_correlation", "Partial correlations of innovations"),
     ("first_copy", "Covariance of the oldest window copies (first-copy-free)"),
+    ("latent_intercept", "Latent intercepts of the later window copies (first-copy-free)"),
 )
 
 

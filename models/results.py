@@ -12,11 +12,6 @@ import numpy as np
 
 from models.spec import FitOptions, ModelSpec
 
-PARAMETER_KINDS: tuple[str, ...] = (
-    "loading", "intercept", "unique", "unique_autocorrelation", "inertia", "cross_lagged",
-    "lag2", "innovation", "partial_correlation",
-)
-
 CAUTION_IDIOGRAPHIC = (
     "These are one person's estimates from a limited number of prompts: they are uncertain, "
     "they describe this diary only, and they are not a diagnosis. Interpret them with clinical "

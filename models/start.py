@@ -122,5 +122,6 @@ def start_matrices(layout: ParameterLayout, data: np.ndarray, depth: int) -> Mat
         m.rmat = rmat
     if layout.estimator == "first-copy-free" and q > 0:
         m.phif = companion_covariance(list(lagged), psi)
+        m.c = np.zeros(k)
     # keep only what the layout frees, then rebuild the dependent matrices consistently
     return layout.unpack(layout.pack(m))
