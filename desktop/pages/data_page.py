@@ -1,12 +1,17 @@
-"""The Data page: the diary as the person answered it.
+"""The Data page: the diary as the person answered it, and its screening.
 
-Per-item time series (days shaded alternately, missed prompts as gaps with a grey tick
-below the line), compliance per day, and answered/missing counts per item. Every count
-comes from models.summary; this page only draws.
+Tab "Series": per-item time series (days shaded alternately, missed prompts as gaps with a
+grey tick below the line), compliance per day, and answered/missing counts per item. Every
+count comes from models.summary; this page only draws.
+Tab "Screening": the ScreeningView (models.screening) of the session's diary with the
+session's preparation steps and the free parameters of the current model; ticking a step
+there is an undoable edit of the session's preparation. The screening is recomputed only
+when its inputs changed, and only while the tab is shown (it takes a few tenths of a second).
 """
 
 from __future__ import annotations
 
+from html import escape
 from pathlib import Path
 
 import numpy as np
@@ -15,13 +20,17 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QStandardItem, QStandardItemModel
 from PySide6.QtWidgets import (
     QAbstractItemView, QHBoxLayout, QHeaderView, QLabel, QListWidget, QListWidgetItem,
-    QScrollArea, QSplitter, QTableView, QToolButton, QVBoxLayout, QWidget,
+    QScrollArea, QSplitter, QTableView, QTabWidget, QToolButton, QVBoxLayout, QWidget,
 )
 
 from desktop import style
 from desktop.export import export_menu
 from desktop.import_dialog import counted
+from desktop.pages.screening_view import ScreeningView
 from desktop.session import Session
+from models.errors import LagwiseError
+from models.parameters import ParameterLayout
+from models.preparation import describe
 from models.summary import diary_summary
 
 ROW_HEIGHT = 120   # pixels per item plot
@@ -37,8 +46,14 @@ class DataPage(QWidget):
         self.setObjectName("dataPage")
         self._session = session
         self._summary: dict | None = None
+        self._screened: tuple | None = None  # the inputs the screening view last got
         self._build()
         session.dataChanged.connect(self.refresh)
+        for signal in (session.specChanged, session.optionsChanged, session.preparationChanged):
+            signal.connect(self.update_screening)
+        session.preparationChanged.connect(self._show_summary)
+        self.screening.steps_changed.connect(self._steps_chosen)
+        self.tabs.currentChanged.connect(lambda _: self.update_screening())
         self.refresh()
 
     # ----- building ------------------------------------------------------------------
@@ -53,6 +68,10 @@ class DataPage(QWidget):
         self.summary_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         layout.addWidget(self.summary_label)
 
+        self.tabs = QTabWidget()
+        self.tabs.setObjectName("dataTabs")
+        self.tabs.setDocumentMode(True)
+        layout.addWidget(self.tabs, 1)
         splitter = QSplitter(Qt.Orientation.Vertical)
         splitter.setObjectName("dataSplitter")
         top = QWidget()
@@ -103,7 +122,15 @@ class DataPage(QWidget):
         bottom_layout.addLayout(table_box, 2)
         splitter.addWidget(bottom)
         splitter.setSizes([520, 260])
-        layout.addWidget(splitter, 1)
+        self.tabs.addTab(splitter, "Series")
+        self.screening = ScreeningView()
+        self.screening_scroll = QScrollArea()  # the window may be narrower than the screening
+        self.screening_scroll.setWidgetResizable(True)
+        self.screening_scroll.setFrameShape(QScrollArea.Shape.NoFrame)
+        self.screening_scroll.setWidget(self.screening)
+        self.tabs.addTab(self.screening_scroll, "Screening")
+        self.tabs.setTabToolTip(1, "Trends, floor effects, dead items, daily and weekly patterns, "
+                                   "whether the diary is long enough, and preparation steps")
 
         self._export_buttons["series"].setMenu(export_menu(self, self.series, None, "item-series"))
         self._export_buttons["compliance"].setMenu(export_menu(self, self.compliance, None,
@@ -143,6 +170,49 @@ class DataPage(QWidget):
         self._draw_series()
         self._draw_compliance()
         self._fill_missing()
+        self.update_screening()
+
+    # ----- screening -----------------------------------------------------------------
+    def n_free(self) -> int | None:
+        """Free parameters of the session's model on its diary (None: no valid model)."""
+        session = self._session
+        if session.diary is None:
+            return None
+        try:
+            session.spec.validate(session.diary.items)
+            return ParameterLayout(session.spec, np.ones(len(session.spec.items)),
+                                   session.options.estimator).n_free
+        except LagwiseError:
+            return None
+
+    def update_screening(self, force: bool = False) -> None:
+        """Give the screening view the session's diary, steps and free parameters, when the
+        Screening tab is shown (or `force`) and they differ from what it last got."""
+        if not force and (self.tabs.currentWidget() is not self.screening_scroll
+                          or not self.isVisible()):
+            return
+        session = self._session
+        inputs = (session.diary, session.preparation, self.n_free())
+        last = self._screened
+        if last is not None and last[0] is inputs[0] and last[1:] == inputs[1:]:
+            return
+        self._screened = inputs
+        self.screening.set_diary(*inputs)
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        self.update_screening()
+
+    def _steps_chosen(self, steps: tuple) -> None:
+        """A step ticked in the screening view: record it in the session (undoable)."""
+        session = self._session
+        n_free = self._screened[2] if self._screened else None
+        self._screened = (session.diary, tuple(steps), n_free)
+        try:
+            session.set_preparation(steps, "Preparation steps")
+        except LagwiseError:  # the view checks the steps first; keep both in step regardless
+            self._screened = None
+            self.update_screening(force=True)
 
     def _show_summary(self) -> None:
         summary = self._summary
@@ -162,6 +232,10 @@ class DataPage(QWidget):
                 f"({summary['windows']['1']} complete).")
         if summary["warnings"]:
             text += "<br>" + "<br>".join(f"Note: {w}" for w in summary["warnings"])
+        steps = self._session.preparation
+        if steps:
+            text += (f"<br>Before estimation: {escape(describe(steps))} (see Screening). The series "
+                     "below are the answers as given.")
         self.summary_label.setText(text)
 
     def shown_items(self) -> list[str]:

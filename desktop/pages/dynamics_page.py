@@ -3,8 +3,11 @@
 For each lag a states x states grid of check boxes frees or fixes each path (row = the
 state at prompt t, column = the state at prompt t-lag; the lag-1 diagonal is inertia),
 with quick choices all / inertia only / none. Below: the innovation form, how the states
-are scaled, the estimator, missing-data handling and the night rule. Every change is one
-undoable edit of the session.
+are scaled, the estimator (each explained in plain words), the lag-window settings (missed
+prompts, window length; disabled for the exact estimator, which uses no windows) and the
+night rule: whether days are separate segments, and for the exact estimator whether the
+states restart each day or carry over the night as a number of missed prompts. Every change
+is one undoable edit of the session.
 """
 
 from __future__ import annotations
@@ -16,20 +19,43 @@ import numpy as np
 from PySide6.QtCore import Qt, QTimer
 from PySide6.QtWidgets import (
     QAbstractItemView, QButtonGroup, QCheckBox, QComboBox, QFormLayout, QGroupBox, QHBoxLayout,
-    QHeaderView, QLabel, QPushButton, QRadioButton, QScrollArea, QTableWidget, QTableWidgetItem,
-    QVBoxLayout, QWidget,
+    QHeaderView, QLabel, QPushButton, QRadioButton, QScrollArea, QSpinBox, QTableWidget,
+    QTableWidgetItem, QVBoxLayout, QWidget,
 )
 
 from desktop import style
 from desktop.session import Session
 from models.errors import LagwiseError
-from models.spec import ESTIMATORS, MISSING, ModelSpec, full_mask, inertia_mask
+from models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec, full_mask, inertia_mask
 
 ESTIMATOR_NAMES = {
-    "stationary": "Stationary lag windows (recommended)",
+    "stationary": "Stationary lag windows (recommended start)",
     "first-copy-free": "Lag windows, first copy free (no stationarity assumed)",
-    "exact": "Exact likelihood of the whole series (Kalman filter)",
+    "exact": "Exact (Kalman filter, whole series)",
 }
+ESTIMATOR_HELP = {
+    "stationary": "Cuts the diary into short lag windows of consecutive prompts and fits them all "
+                  "at once, assuming the person's dynamics stay the same throughout. Fast and "
+                  "reliable. The windows overlap, so its fit figures (chi-square, AIC, BIC) are "
+                  "approximate.",
+    "first-copy-free": "The same lag windows without assuming a stable process: the oldest "
+                       "prompt of each window is left free. A useful cross-check of the "
+                       "stationary estimate; it needs more windows.",
+    "exact": "Follows the whole series prompt by prompt with the Kalman filter: every answered "
+             "prompt counts, missed prompts are bridged, and the log-likelihood, AIC and BIC are "
+             "exact, so they compare models properly. Also gives each state's score at every "
+             "prompt. Slower; starts from the stationary estimate.",
+}
+WINDOW_ONLY_TIP = ("The exact estimator follows the whole series with the Kalman filter: it uses "
+                   "no lag windows and bridges missed prompts itself, so this setting does not "
+                   "apply.")
+EXACT_ONLY_TIP = ("Only the exact estimator can carry the states over a night; lag windows use "
+                  "the box above.")
+NIGHT_GAP_DEFAULT = 6
+NIGHT_GAP_TIP = ("How many prompts the night would hold at the day's rhythm. For example 10 "
+                 "prompts over 15 waking hours (one every 90 minutes) and 9 hours of sleep: "
+                 "about 6. The longer the night, the less of the evening carries over to the "
+                 "morning.")
 MISSING_NAMES = {
     "fiml": "Use every answer (full information)",
     "listwise": "Complete lag windows only (listwise)",
@@ -209,23 +235,67 @@ class DynamicsPage(QWidget):
         self.estimator_combo.setAccessibleName("Estimator")
         for key in available_estimators():
             self.estimator_combo.addItem(ESTIMATOR_NAMES.get(key, key), key)
-        self.estimator_combo.currentIndexChanged.connect(self._options_chosen)
+            self.estimator_combo.setItemData(self.estimator_combo.count() - 1,
+                                             ESTIMATOR_HELP.get(key, ""), Qt.ItemDataRole.ToolTipRole)
+        self.estimator_combo.currentIndexChanged.connect(self._estimator_chosen)
         form.addRow("&Estimator:", self.estimator_combo)
+        self.estimator_help = _note()
+        self.estimator_help.setObjectName("estimatorHelp")
+        form.addRow(self.estimator_help)
         self.missing_combo = QComboBox()
         self.missing_combo.setAccessibleName("Missing prompts")
         for key in MISSING:
             self.missing_combo.addItem(MISSING_NAMES.get(key, key), key)
         self.missing_combo.currentIndexChanged.connect(self._options_chosen)
-        form.addRow("&Missed prompts:", self.missing_combo)
+        self.missing_label = QLabel("&Missed prompts:")
+        self.missing_label.setBuddy(self.missing_combo)
+        form.addRow(self.missing_label, self.missing_combo)
+        self.depth_combo = QComboBox()
+        self.depth_combo.setAccessibleName("Prompts per lag window")
+        self.depth_combo.currentIndexChanged.connect(self._options_chosen)
+        self.depth_label = QLabel("Lag &window:")
+        self.depth_label.setBuddy(self.depth_combo)
+        form.addRow(self.depth_label, self.depth_combo)
         self.night_check = QCheckBox("Days are &independent: no lag window spans a night")
-        self.night_check.setToolTip("When ticked, the last prompt of a day is not linked to the "
-                                    "first prompt of the next day (common practice).")
         self.night_check.toggled.connect(self._night_toggled)
         form.addRow(self.night_check)
-        self.night_note = QLabel()
-        self.night_note.setWordWrap(True)
-        self.night_note.setStyleSheet(f"color: {style.MUTED};")
+        self.night_note = _note()
         form.addRow(self.night_note)
+
+        self.exact_night = QWidget()
+        exact_layout = QVBoxLayout(self.exact_night)
+        exact_layout.setContentsMargins(0, 4, 0, 0)
+        exact_layout.setSpacing(4)
+        exact_layout.addWidget(QLabel("Over the night (exact estimator):"))
+        self.exact_night_group = QButtonGroup(self)
+        self.restart_radio = QRadioButton("&Restart each day: the states start afresh each morning")
+        self.restart_radio.setToolTip("At the first prompt of each day the states start from their "
+                                      "usual level and spread (common practice).")
+        self.carry_radio = QRadioButton("&Carry over the night as")
+        self.carry_radio.setToolTip("The states run on through the night, as if this many prompts "
+                                    "had been missed between the last prompt of a day and the "
+                                    "first of the next.")
+        self.night_gap_spin = QSpinBox()
+        self.night_gap_spin.setObjectName("nightGap")
+        self.night_gap_spin.setAccessibleName("Missed prompts per night")
+        self.night_gap_spin.setRange(0, 99)
+        self.night_gap_spin.setValue(NIGHT_GAP_DEFAULT)
+        self.night_gap_spin.setKeyboardTracking(False)  # one edit per typed number
+        self.night_gap_spin.setToolTip(NIGHT_GAP_TIP)
+        self.night_gap_spin.valueChanged.connect(self._night_gap_changed)
+        self.exact_night_group.addButton(self.restart_radio, 0)
+        self.exact_night_group.addButton(self.carry_radio, 1)
+        self.exact_night_group.idClicked.connect(self._night_rule_chosen)
+        exact_layout.addWidget(self.restart_radio)
+        carry_row = QHBoxLayout()
+        carry_row.addWidget(self.carry_radio)
+        carry_row.addWidget(self.night_gap_spin)
+        carry_row.addWidget(QLabel("missed prompts"))
+        carry_row.addStretch(1)
+        exact_layout.addLayout(carry_row)
+        self.exact_night_note = _note()
+        exact_layout.addWidget(self.exact_night_note)
+        form.addRow(self.exact_night)
         right.addWidget(estimate_box)
         self.problem_label = QLabel()
         self.problem_label.setObjectName("dynamicsMessages")
@@ -250,19 +320,10 @@ class DynamicsPage(QWidget):
             (self.marker_radio if spec.identification == "marker"
              else self.variance_radio).setChecked(True)
             _select(self.estimator_combo, options.estimator)
+            self.estimator_help.setText(ESTIMATOR_HELP.get(options.estimator, ""))
             _select(self.missing_combo, options.missing)
-            settings = self._session.import_settings
-            self.night_check.setChecked(settings is None or settings.time.days_independent)
-            self.night_check.setEnabled(settings is not None and settings.time.mode != "order")
-            if self._night_error:
-                self.night_note.setText(f"<span style='color:{style.WARNING}'>"
-                                        f"{self._night_error}</span>")
-                self._night_error = ""
-            elif settings is not None and settings.time.mode == "order":
-                self.night_note.setText("The diary has no day or time column: all prompts "
-                                        "form one run.")
-            else:
-                self.night_note.setText("")
+            self._fill_depth(spec, options)
+            self._show_night_rules(options)
             _, problem = self._session.validation()
             self.problem_label.setText(
                 "" if problem is None or self._session.diary is None else
@@ -270,6 +331,72 @@ class DynamicsPage(QWidget):
                 f"{problem}</span>")
         finally:
             self._syncing = False
+
+    def _fill_depth(self, spec: ModelSpec, options: FitOptions) -> None:
+        """Window lengths: as the lag order (default), or one to three prompts more."""
+        lags = max(spec.lags, 1)
+        combo = self.depth_combo
+        combo.clear()
+        combo.addItem(f"{lags + 1} prompts (as the lag order)", None)
+        depths = [lags + 1, lags + 2, lags + 3]
+        if options.depth is not None and options.depth not in depths and options.depth != lags:
+            depths = sorted({*depths, options.depth})
+        for depth in depths:
+            combo.addItem(f"{depth + 1} prompts (depth {depth})", depth)
+        chosen = None if options.depth == lags else options.depth
+        combo.setCurrentIndex(max(combo.findData(chosen), 0))
+        combo.setToolTip("How many consecutive prompts each lag window holds. More than the lag "
+                         "order adds information on the dynamics but leaves fewer complete "
+                         "windows.")
+
+    def _show_night_rules(self, options: FitOptions) -> None:
+        exact = options.estimator == "exact"
+        for widget, label in ((self.missing_combo, self.missing_label),
+                              (self.depth_combo, self.depth_label)):
+            widget.setEnabled(not exact)
+            label.setEnabled(not exact)
+            if exact:
+                widget.setToolTip(WINDOW_ONLY_TIP)
+                label.setToolTip(WINDOW_ONLY_TIP)
+            else:
+                label.setToolTip("")
+        if not exact:
+            self.missing_combo.setToolTip("How lag windows with a missed prompt are used")
+        settings = self._session.import_settings
+        has_days = settings is not None and settings.time.mode != "order"
+        separate = settings is None or settings.time.days_independent
+        self.night_check.setChecked(separate)
+        self.night_check.setEnabled(has_days and not exact)
+        self.night_check.setToolTip(
+            "With the exact estimator the choice below decides what happens over a night."
+            if exact else "When ticked, the last prompt of a day is not linked to the first "
+                          "prompt of the next day (common practice).")
+        if self._night_error:
+            self.night_note.setText(f"<span style='color:{style.WARNING}'>"
+                                    f"{self._night_error}</span>")
+            self._night_error = ""
+        elif settings is not None and settings.time.mode == "order":
+            self.night_note.setText("The diary has no day or time column: all prompts "
+                                    "form one run.")
+        else:
+            self.night_note.setText("")
+        self.night_note.setVisible(bool(self.night_note.text()))
+        self.exact_night.setEnabled(exact and has_days)
+        self.exact_night.setToolTip("" if exact else EXACT_ONLY_TIP)
+        self.exact_night_group.setExclusive(False)
+        self.restart_radio.setChecked(exact and separate and options.night_gap is None)
+        self.carry_radio.setChecked(exact and separate and options.night_gap is not None)
+        self.exact_night_group.setExclusive(True)
+        if options.night_gap is not None:
+            self.night_gap_spin.setValue(options.night_gap)
+        if exact and has_days and not separate:
+            self.exact_night_note.setText(
+                "The days are joined into one run, so the states go straight through every "
+                "night with no prompt missed between. Choose a rule above to treat the nights "
+                "apart.")
+        else:
+            self.exact_night_note.setText("")
+        self.exact_night_note.setVisible(bool(self.exact_night_note.text()))
 
     def _fill_partial(self, spec: ModelSpec) -> None:
         partial = spec.innovations == "partial" and spec.k > 1
@@ -349,12 +476,48 @@ class DynamicsPage(QWidget):
         self._session.edit_spec(replace(self._session.spec, identification=identification),
                                 f"Scale: {identification}")
 
+    def _estimator_chosen(self) -> None:
+        if self._syncing:
+            return
+        estimator = self.estimator_combo.currentData()
+        options = replace(self._session.options, estimator=estimator)
+        if estimator != "exact":
+            options = replace(options, night_gap=None)  # an exact-only setting
+        self._session.edit_options(options, f"Estimator: {estimator}")
+
     def _options_chosen(self) -> None:
         if self._syncing:
             return
-        options = replace(self._session.options, estimator=self.estimator_combo.currentData(),
-                          missing=self.missing_combo.currentData())
-        self._session.edit_options(options, "Estimation settings")
+        options = replace(self._session.options, missing=self.missing_combo.currentData(),
+                          depth=self.depth_combo.currentData())
+        self._session.edit_options(options, "Lag-window settings")
+
+    def set_night_rule(self, night_gap: int | None) -> None:
+        """Exact estimator: restart each day (None) or carry over the night as `night_gap`
+        missed prompts. Days joined into one run are first made separate again; both edits
+        are one undo step."""
+        session = self._session
+        settings = session.import_settings
+        text = ("Night rule: restart each day" if night_gap is None
+                else f"Night rule: carry over as {night_gap} missed prompts")
+        session.undo_stack.beginMacro(text)
+        try:
+            if settings is not None and not settings.time.days_independent:
+                session.edit_time(replace(settings.time, days_independent=True), text)
+            session.edit_options(replace(session.options, night_gap=night_gap), text)
+        except LagwiseError as exc:
+            self._night_error = str(exc)
+        finally:
+            session.undo_stack.endMacro()
+        self._refresh_timer.start()
+
+    def _night_rule_chosen(self, which: int) -> None:
+        if not self._syncing:
+            self.set_night_rule(None if which == 0 else self.night_gap_spin.value())
+
+    def _night_gap_changed(self, value: int) -> None:
+        if not self._syncing and self.carry_radio.isChecked():
+            self.set_night_rule(value)
 
     def _night_toggled(self, independent: bool) -> None:
         settings = self._session.import_settings
@@ -367,6 +530,13 @@ class DynamicsPage(QWidget):
         except LagwiseError as exc:
             self._night_error = str(exc)
             self._refresh_timer.start()
+
+
+def _note() -> QLabel:
+    label = QLabel()
+    label.setWordWrap(True)
+    label.setStyleSheet(f"color: {style.MUTED};")
+    return label
 
 
 def _select(combo: QComboBox, key: str) -> None:

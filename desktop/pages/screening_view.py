@@ -168,6 +168,8 @@ class ScreeningView(QWidget):
         self.plots.setObjectName("screeningPlots")
         self.plots.setBackground(style.PAPER)
         self.plots.ci.setSpacing(4)
+        for col in (0, 1):
+            self.plots.ci.layout.setColumnStretchFactor(col, 1)
         self.plots.setMinimumHeight(4 * PLOT_ROW_HEIGHT + 30)
         self._headers = [pg.LabelItem(size="10pt") for _ in range(2)]
         self._grid = [{key: self._new_plot() for key in PLOT_ROWS} for _ in range(2)]
@@ -434,8 +436,8 @@ class ScreeningView(QWidget):
              []])
         plot.setXRange(-0.5, diary.n_occasions - 0.5, padding=0)
         plot.setYRange(low, high, padding=0)
-        plot.setTitle(escape(f"Series; dashed: linear trend ({_slope_words(t)}, "
-                             f"p {_p_words(t.p)})"), size="9pt")
+        plot.setTitle(escape(f"Series; dashed: trend (p {_p_words(t.p)})"), size="9pt")
+        plot.setToolTip(f"Linear trend: {_slope_words(t)}, p {_p_words(t.p)}")
         for i in answered:
             self._record("series", version, int(i), _occasion_label(diary, int(i)), y[i])
         for i in answered[[0, -1]] if answered.size and t.slope is not None else ():
@@ -458,8 +460,8 @@ class ScreeningView(QWidget):
         plot.setYRange(-1.1 * top, 1.1 * top, padding=0)
         plot.setXRange(0.4, len(lags) + 0.6, padding=0)
         plot.getAxis("bottom").setTicks([[(float(h), str(int(h))) for h in lags], []])
-        plot.setTitle("Autocorrelation by lag (prompts within a segment); "
-                      "dashed: ±1.96/√pairs", size="9pt")
+        plot.setTitle("Autocorrelation by lag; dashed: ±1.96/√pairs", size="9pt")
+        plot.setToolTip("Autocorrelation of the item between prompts of the same segment")
         for h, r, n in zip(lags, screen.acf, screen.acf_pairs):
             self._record("autocorrelation", version, int(h), f"lag {int(h)}", r, n)
 

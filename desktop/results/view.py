@@ -1,4 +1,8 @@
-"""ResultsView: the tabs that show one FitResult (or a plain message when there is none)."""
+"""ResultsView: the tabs that show one FitResult (or a plain message when there is none).
+
+Besides the five tabs over the estimate, "State scores" (exact estimator only) and
+"Lag-2 check" (a Lag2View, exposed as `lag2`, whose signals the window wires).
+"""
 
 from __future__ import annotations
 
@@ -9,8 +13,11 @@ from desktop.results.dynamics_diagram import DynamicsPanel
 from desktop.results.fit_view import FitPanel
 from desktop.results.innovations import InnovationsPanel
 from desktop.results.measurement import MeasurementPanel
+from desktop.results.lag2_view import Lag2View
 from desktop.results.parameters import ParametersPanel
+from desktop.results.state_scores import StateScoresPanel
 from desktop.results.widgets import ResultsPanel
+from models.diary import Diary
 from models.results import FitResult
 
 EMPTY_MESSAGE = ("No results yet.\n\nAssign items to states, choose the lagged paths, "
@@ -19,10 +26,12 @@ EMPTY_MESSAGE = ("No results yet.\n\nAssign items to states, choose the lagged p
 
 
 class ResultsView(QWidget):
-    """Tabs Measurement, Dynamics, Innovations, Fit, Parameters over one FitResult.
+    """Tabs Measurement, Dynamics, Innovations, Fit, Parameters, State scores, Lag-2 check.
 
     `show_result(None)` shows the empty state. Each tab is a ResultsPanel with
-    `pictures()` and `tables()` (what its Export button saves).
+    `pictures()` and `tables()` (what its Export button saves). `panels()` are the five tabs
+    over the estimate itself; `state_scores` draws the exact estimator's scores on the days of
+    the diary given to `set_diary`; `lag2` shows a lag-2 check passed to `lag2.show_check`.
     """
 
     def __init__(self, parent: QWidget | None = None):
@@ -33,9 +42,12 @@ class ResultsView(QWidget):
         self.innovations = InnovationsPanel()
         self.fit = FitPanel()
         self.parameters = ParametersPanel()
+        self.state_scores = StateScoresPanel()
+        self.lag2 = Lag2View()
         self.tabs = QTabWidget()
         self.tabs.setDocumentMode(True)
-        for panel, title in zip(self.panels(), ("Measurement", "Dynamics", "Innovations", "Fit", "Parameters")):
+        for panel, title in zip(self.all_panels(), ("Measurement", "Dynamics", "Innovations", "Fit",
+                                                    "Parameters", "State scores", "Lag-2 check")):
             self.tabs.addTab(panel, title)
         self.empty = QLabel(EMPTY_MESSAGE)
         self.empty.setAlignment(Qt.AlignmentFlag.AlignCenter)
@@ -60,12 +72,20 @@ class ResultsView(QWidget):
     def panels(self) -> tuple[ResultsPanel, ...]:
         return (self.measurement, self.dynamics, self.innovations, self.fit, self.parameters)
 
+    def all_panels(self) -> tuple[ResultsPanel, ...]:
+        """Every tab, in order: the estimate's panels, the state scores, the lag-2 check."""
+        return (*self.panels(), self.state_scores, self.lag2)
+
+    def set_diary(self, diary: Diary | None) -> None:
+        """The session's diary, whose days and missed prompts the state scores are drawn on."""
+        self.state_scores.set_diary(diary)
+
     def show_result(self, result: FitResult | None) -> None:
         """Show a result in every tab, or the empty message for None."""
         self._result = result
         if result is None:
             self.stack.setCurrentWidget(self.empty_page)
             return
-        for panel in self.panels():
+        for panel in self.all_panels():
             panel.show_result(result)
         self.stack.setCurrentWidget(self.tabs)
