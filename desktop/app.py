@@ -2,8 +2,10 @@
 
 The QApplication is made once, high-DPI safe (fractional scale factors are passed through),
 with the Lagwise look. `lagwise demo --screenshot FILE` loads the bundled demo, estimates
-it and renders the window offscreen to a PNG without needing a display. On Linux without a
-display, opening the window is refused with a hint instead of Qt aborting.
+it and renders the window offscreen to a PNG without needing a display. `lagwise FILE` opens
+a project (.lagwise) or imports a data file; at start-up the window offers to restore work
+autosaved before a crash. On Linux without a display, opening the window is refused with a
+hint instead of Qt aborting.
 """
 
 from __future__ import annotations
@@ -72,6 +74,8 @@ def load_demo(session) -> None:
     spec = ModelSpec.from_json(truth["spec"])
     settings = ImportSettings(path=str(DEMO_DIARY), items=items, time=time)
     session.load_data(frame, diary, settings, spec=spec)
+    session.set_untitled_name("demo")
+    session.mark_saved(None)  # the bundled demo as shipped: nothing to save yet
 
 
 def add_demo_arguments(parser: argparse.ArgumentParser) -> None:
@@ -103,28 +107,39 @@ def run_demo(args: argparse.Namespace) -> int:
 
 
 def run_gui(argv: list[str] | None = None) -> int:
-    """Open the window; a data file given on the command line goes to the import dialog."""
+    """Open the window; a project file given on the command line is opened, a data file goes
+    to the import dialog."""
     parser = argparse.ArgumentParser(prog="lagwise", description="Open the Lagwise window.")
-    parser.add_argument("file", nargs="?", help="a diary file to import")
+    parser.add_argument("file", nargs="?", help="a project (.lagwise) to open or a diary file "
+                                                "to import")
     args = parser.parse_args(list(argv or []))
-    if args.file is not None:
-        path = Path(args.file)
-        if path.suffix.lower() == ".lagwise":
-            raise ProjectError(f"{path}: opening project files in the window is not available "
-                               "yet; import the diary file instead")
-        if not path.exists():
-            raise LagwiseError(f"{path}: no such file")
+    if args.file is not None and not Path(args.file).exists():
+        raise LagwiseError(f"{args.file}: no such file")
     if not has_display():
         print(f"lagwise: {NO_DISPLAY}", file=sys.stderr)
         return 2
     app = make_app()
+    start_window(args.file)
+    return int(app.exec())
+
+
+def start_window(file: str | Path | None = None):
+    """Show a new main window, offer to restore work autosaved before a crash, then open the
+    project (.lagwise) or import the data `file` if one is given. Returns the window."""
     from desktop.mainwindow import MainWindow
+    from models.project import is_project_file
 
     window = MainWindow()
     window.show()
-    if args.file is not None:
-        window.import_data(args.file)
-    return int(app.exec())
+    if window.files.offer_recovery():
+        if file is not None:
+            window.statusBar().showMessage(f"Restored the autosaved work; {Path(file).name} "
+                                           "was not opened.", 15000)
+    elif file is not None and is_project_file(file):
+        window.files.open(file)
+    elif file is not None:
+        window.import_data(file)
+    return window
 
 
 def _demo_screenshot(path: Path) -> int:

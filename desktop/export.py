@@ -12,11 +12,12 @@ import csv
 from pathlib import Path
 
 from PySide6.QtCore import QAbstractItemModel, QModelIndex, QPoint, QRectF, QSize, Qt
-from PySide6.QtGui import QAction, QColor, QImage, QPainter
+from PySide6.QtGui import QAction, QColor, QGuiApplication, QImage, QPainter
 from PySide6.QtSvg import QSvgGenerator
 from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMenu, QMessageBox, QWidget
 
 Picture = QWidget | QGraphicsScene
+DEFAULT_DPI = 96  # the usual logical resolution of a desktop screen (common practice)
 
 
 def save_widget_png(target: Picture, path: str | Path, scale: float = 2.0) -> Path:
@@ -40,6 +41,7 @@ def save_scene_svg(target: Picture, path: str | Path, title: str = "Lagwise") ->
     generator = QSvgGenerator()
     generator.setFileName(str(path))
     generator.setTitle(title)
+    generator.setResolution(svg_resolution(target))
     generator.setSize(QSize(max(1, round(rect.width())), max(1, round(rect.height()))))
     generator.setViewBox(QRectF(0, 0, rect.width(), rect.height()))
     painter = QPainter()
@@ -56,6 +58,24 @@ def save_scene_svg(target: Picture, path: str | Path, title: str = "Lagwise") ->
     if not path.exists():
         raise OSError(f"Could not write the picture to {path}.")
     return path
+
+
+def svg_resolution(target: Picture | None = None) -> int:
+    """Dots per inch for an SVG: the logical DPI of the target's screen (96 without one).
+
+    QSvgGenerator assumes 72 dpi unless told; a widget painted at the screen's logical DPI
+    (text in points) would then come out shrunk by 72/96 in the picture.
+    """
+    screen = None
+    if isinstance(target, QGraphicsScene) and target.views():
+        target = target.views()[0]
+    if isinstance(target, QWidget):
+        screen = target.screen()
+    if screen is None:
+        screen = QGuiApplication.primaryScreen()
+    if screen is None:
+        return DEFAULT_DPI
+    return max(1, round(screen.logicalDotsPerInch()))
 
 
 def save_picture(target: Picture, path: str | Path) -> Path:

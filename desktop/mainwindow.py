@@ -1,9 +1,13 @@
-"""The main window: pages Data, States, Dynamics, Results; menus; estimation in a worker.
+"""The main window: pages Data, States, Dynamics, Results; menus; long work in a worker.
 
-The window owns one Session (the document) and one Worker. Estimate sends a frozen
-snapshot of the diary, model and settings to `models.estimate.fit` off the UI thread;
-progress shows in the status bar with a Cancel button; a LagwiseError becomes a dialog;
-a cancelled run leaves the shown results as they were. Window size, position and the
+The window owns one Session (the document, also the project file's content), one Worker
+and the project-file commands (desktop.project_files: New, Open, Save, Save As, Open
+Recent, autosave and recovery). Estimate sends a frozen snapshot of the prepared diary,
+model and settings to `models.estimate.fit` off the UI thread; the lag-2 check tab's
+"Run" sends one to `models.lag2check.lag2_check` through the same worker. Progress shows
+in the status bar with a Cancel button; a LagwiseError becomes a dialog; a cancelled run
+leaves the shown results as they were. The title shows the project's name and a mark for
+unsaved changes; closing with unsaved changes asks first. Window size, position and the
 splitter layout are remembered between runs (QSettings).
 """
 
@@ -16,21 +20,24 @@ from PySide6.QtCore import QByteArray, QObject, QSettings, QSize, Qt, Slot
 from PySide6.QtGui import QAction, QCloseEvent, QKeySequence
 from PySide6.QtWidgets import (
     QApplication, QFileDialog, QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QMainWindow,
-    QMessageBox, QProgressBar, QPushButton, QScrollArea, QSplitter, QStackedWidget, QToolBar,
-    QVBoxLayout, QWidget,
+    QMenu, QMessageBox, QProgressBar, QPushButton, QScrollArea, QSplitter, QStackedWidget,
+    QToolBar, QVBoxLayout, QWidget,
 )
 
 from desktop import style
 from desktop.import_dialog import FILE_FILTER, ImportDialog
+from desktop.notes_dialog import NotesDialog
 from desktop.pages.data_page import DataPage
 from desktop.pages.dynamics_page import DynamicsPage
 from desktop.pages.states_page import StatesPage
+from desktop.project_files import ProjectFiles
 from desktop.results import ResultsView
+from desktop.results.lag2_view import adopted_spec
 from desktop.session import Session, Snapshot
 from desktop.worker import Worker
 from models.errors import LagwiseError
 from models.estimate import fit
-from models.results import FitResult
+from models.lag2check import lag2_check
 
 PAGES = ("Data", "States", "Dynamics", "Results")
 SETTINGS_GEOMETRY = "window/geometry"
@@ -38,6 +45,12 @@ SETTINGS_STATE = "window/state"
 SETTINGS_PAGE = "window/page"
 SETTINGS_FOLDER = "import/folder"
 SETTINGS_SPLITTERS = "splitters/"
+JOB_ESTIMATE = "estimate"
+JOB_LAG2 = "lag-2 check"
+_JOB_WORDS = {JOB_ESTIMATE: ("Estimating…", "Estimation"),
+              JOB_LAG2: ("Running the lag-2 check…", "The lag-2 check")}
+_LAG2_DATA_CHANGED = ("The data or their preparation changed since the last lag-2 check. Press "
+                      "“Run lag-2 check” to test the model on the present data.")
 
 
 class _TwinAction(QAction):
@@ -67,7 +80,10 @@ class MainWindow(QMainWindow):
         self.setWindowTitle("Lagwise")
         self.session = session if session is not None else Session(self)
         self.worker = Worker(self)
+        self.files = ProjectFiles(self, self.session)
         self._running: Snapshot | None = None
+        self._running_document = -1
+        self._close_confirmed = False
         self._build_pages()
         self._build_actions()
         self._build_menus()
@@ -144,6 +160,21 @@ class MainWindow(QMainWindow):
 
     def _build_actions(self) -> None:
         K = QKeySequence.StandardKey
+        files = self.files
+        self.new_action = self._action("&New project", K.New, files.new,
+                                       "Start an empty, untitled project")
+        self.open_action = self._action("&Open project…", "Ctrl+Shift+O",
+                                        lambda: files.open(),
+                                        "Open a Lagwise project (.lagwise)")
+        self.save_action = self._action("&Save project", K.Save, files.save,
+                                        "Save the project (data, model, results and notes)")
+        self.save_as_action = self._action("Save project &as…", "Ctrl+Shift+S", files.save_as,
+                                           "Save the project under a new name")
+        self.recent_menu = QMenu("Open &recent", self)
+        self.recent_menu.setObjectName("recentMenu")
+        self.recent_menu.aboutToShow.connect(self._prune_recent)
+        self.notes_action = self._action("Project &notes…", None, self.edit_notes,
+                                         "Notes kept in the project file")
         self.import_action = self._action("&Import data…", K.Open, self.import_data,
                                           "Read a diary from a CSV, TSV, Excel, SPSS or Stata file")
         self.demo_action = self._action("Open &demo", None, self.open_demo,
@@ -166,7 +197,14 @@ class MainWindow(QMainWindow):
 
     def _build_menus(self) -> None:
         bar = self.menuBar()
-        file_menu = bar.addMenu("&File")
+        self.file_menu = file_menu = bar.addMenu("&File")
+        file_menu.addAction(self.new_action)
+        file_menu.addAction(self.open_action)
+        file_menu.addMenu(self.recent_menu)
+        file_menu.addSeparator()
+        file_menu.addAction(self.save_action)
+        file_menu.addAction(self.save_as_action)
+        file_menu.addSeparator()
         file_menu.addAction(self.import_action)
         file_menu.addAction(self.demo_action)
         file_menu.addSeparator()
@@ -174,6 +212,8 @@ class MainWindow(QMainWindow):
         edit_menu = bar.addMenu("&Edit")
         edit_menu.addAction(self.undo_action)
         edit_menu.addAction(self.redo_action)
+        edit_menu.addSeparator()
+        edit_menu.addAction(self.notes_action)
         model_menu = bar.addMenu("&Model")
         model_menu.addAction(self.estimate_action)
         model_menu.addAction(self.cancel_action)
@@ -188,6 +228,7 @@ class MainWindow(QMainWindow):
         tools.setMovable(False)
         tools.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextOnly)
         tools.addAction(self.import_action)
+        tools.addAction(self._short_twin(self.save_action, "Save"))
         tools.addSeparator()
         tools.addAction(self._short_twin(self.undo_action, "Undo"))
         tools.addAction(self._short_twin(self.redo_action, "Redo"))
@@ -216,13 +257,17 @@ class MainWindow(QMainWindow):
 
     def _connect(self) -> None:
         s = self.session
+        s.fileChanged.connect(self._update_title)
+        s.modifiedChanged.connect(self._update_title)
         s.dataChanged.connect(self._update_title)
         for signal in (s.dataChanged, s.specChanged, s.optionsChanged, s.resultChanged):
             signal.connect(self._update_actions)
         s.resultChanged.connect(self._show_result)
-        s.specChanged.connect(self._show_result_note)
-        s.optionsChanged.connect(self._show_result_note)
-        s.dataChanged.connect(self._show_result_note)
+        for signal in (s.specChanged, s.optionsChanged, s.dataChanged, s.preparationChanged):
+            signal.connect(self._show_result_note)
+        self.files.recentChanged.connect(self._fill_recent_menu)
+        s.documentReplaced.connect(self.worker.cancel)
+        self._connect_lag2()
         self.worker.started.connect(self._run_started)
         self.worker.progress.connect(self._run_progress)
         self.worker.done.connect(self._run_done)
@@ -257,18 +302,27 @@ class MainWindow(QMainWindow):
         return dialog
 
     def _import_accepted(self, dialog: ImportDialog) -> None:
-        diary, settings = dialog.diary(), dialog.settings()
+        """A new diary starts a new, untitled project (after the unsaved-changes question)."""
+        diary, settings, frame = dialog.diary(), dialog.settings(), dialog.frame()
         if diary is None or settings is None:
             return
         QSettings().setValue(SETTINGS_FOLDER, str(Path(settings.path).parent))
-        self.worker.cancel()
-        self.session.load_data(dialog.frame(), diary, settings)
-        self.statusBar().showMessage(
-            f"Imported {Path(settings.path).name}: {diary.n_items} items, "
-            f"{diary.n_occasions} prompts. Next: give the items states.", 8000)
-        self.show_page(0)
+
+        def load() -> None:
+            self.files.discard_recoveries()
+            self.session.load_data(frame, diary, settings)
+            self.statusBar().showMessage(
+                f"Imported {Path(settings.path).name}: {diary.n_items} items, "
+                f"{diary.n_occasions} prompts. Next: give the items states.", 8000)
+            self.show_page(0)
+
+        self.files.confirm_discard(load, "importing another diary")
 
     def open_demo(self) -> None:
+        """Open the bundled demo (after the unsaved-changes question)."""
+        self.files.confirm_discard(self._open_demo_now, "opening the demo")
+
+    def _open_demo_now(self) -> None:
         from desktop.app import load_demo
 
         try:
@@ -276,23 +330,46 @@ class MainWindow(QMainWindow):
         except LagwiseError as exc:
             QMessageBox.warning(self, "Could not open the demo", str(exc))
             return
+        self.files.discard_recoveries()
         self.statusBar().showMessage("Opened the demo diary (an invented person).", 8000)
 
     # ----- estimation ----------------------------------------------------------------
     def estimate(self) -> bool:
         """Start estimating the current model; False (with a message) when it cannot start."""
-        snapshot = self.session.snapshot()
+        snapshot = self._ready_snapshot("The model cannot be estimated yet")
+        if snapshot is None:
+            return False
+        self._running, self._running_document = snapshot, self.session.document
+        self.worker.start(fit, snapshot.diary, snapshot.spec, snapshot.options, job=JOB_ESTIMATE)
+        return True
+
+    def run_lag2_check(self) -> bool:
+        """Start the lag-2 check of the current model (models.lag2check.lag2_check) in the
+        worker; False (with a message) when it cannot start."""
+        snapshot = self._ready_snapshot("The lag-2 check cannot run yet")
+        if snapshot is None:
+            return False
+        self._running, self._running_document = snapshot, self.session.document
+        self.worker.start(lag2_check, snapshot.diary, snapshot.spec, snapshot.options,
+                          job=JOB_LAG2)
+        return True
+
+    def _ready_snapshot(self, title: str) -> Snapshot | None:
+        """The frozen inputs for a run, or None after telling the user what is missing."""
+        try:
+            snapshot = self.session.snapshot()
+        except LagwiseError as exc:  # a preparation step that does not fit the diary
+            QMessageBox.warning(self, title, str(exc))
+            return None
         if snapshot is None:
             QMessageBox.information(self, "Nothing to estimate",
                                     "Import a diary first (File ▸ Import data…).")
-            return False
+            return None
         _, problem = self.session.validation()
         if problem:
-            QMessageBox.warning(self, "The model cannot be estimated yet", problem)
-            return False
-        self._running = snapshot
-        self.worker.start(fit, snapshot.diary, snapshot.spec, snapshot.options)
-        return True
+            QMessageBox.warning(self, title, problem)
+            return None
+        return snapshot
 
     def cancel_estimate(self) -> None:
         if self.worker.busy:
@@ -302,7 +379,7 @@ class MainWindow(QMainWindow):
     @Slot()
     def _run_started(self) -> None:
         self.progress.setValue(0)
-        self.progress_label.setText("Estimating…")
+        self.progress_label.setText(_JOB_WORDS.get(self.worker.job, ("Working…", ""))[0])
         for widget in (self.progress_label, self.progress, self.cancel_button):
             widget.show()
         self.statusBar().clearMessage()
@@ -314,18 +391,28 @@ class MainWindow(QMainWindow):
         self.progress_label.setText(message)
 
     @Slot(object)
-    def _run_done(self, result: FitResult) -> None:
+    def _run_done(self, result) -> None:
+        if self._running_document != self.session.document:  # the document was replaced
+            return
+        if self.worker.job == JOB_LAG2:
+            self.results.lag2.show_check(result)
+            self.results.lag2.set_spec(self.session.spec)  # edited meanwhile: out of date
+            self.statusBar().showMessage(f"Lag-2 check finished: {result.verdict}", 15000)
+            self.show_page(PAGES.index("Results"))
+            self.results.tabs.setCurrentWidget(self.results.lag2)
+            return
         self.session.set_result(result, self._running)
         verdict = "converged" if result.converged else "did NOT converge"
         self.statusBar().showMessage(
-            f"Estimated in {result.seconds:.2f} s from {result.n_windows} lag windows; "
+            f"Estimated in {result.seconds:.2f} s from {result.data_used}; "
             f"the estimation {verdict}.", 15000)
         self.show_page(PAGES.index("Results"))
 
     @Slot(str, str)
     def _run_error(self, message: str, details: str) -> None:
-        self.statusBar().showMessage("Estimation failed; the previous results are kept.", 15000)
-        box = QMessageBox(QMessageBox.Icon.Warning, "Estimation failed", message,
+        what = _JOB_WORDS.get(self.worker.job, ("", "The run"))[1]
+        self.statusBar().showMessage(f"{what} failed; the previous results are kept.", 15000)
+        box = QMessageBox(QMessageBox.Icon.Warning, f"{what} failed", message,
                           QMessageBox.StandardButton.Ok, self)
         if details:
             box.setDetailedText(details)
@@ -334,7 +421,8 @@ class MainWindow(QMainWindow):
 
     @Slot(str)
     def _run_cancelled(self, message: str) -> None:
-        self.statusBar().showMessage("Estimation stopped; the previous results are kept.", 15000)
+        what = _JOB_WORDS.get(self.worker.job, ("", "The run"))[1]
+        self.statusBar().showMessage(f"{what} stopped; the previous results are kept.", 15000)
 
     @Slot()
     def _run_idle(self) -> None:
@@ -345,7 +433,10 @@ class MainWindow(QMainWindow):
 
     # ----- showing -------------------------------------------------------------------
     def _show_result(self) -> None:
+        """A new result in every tab (the lag-2 tab keeps following the model being edited)."""
+        self.results.set_diary(self.session.diary)
         self.results.show_result(self.session.result)
+        self.results.lag2.set_spec(self.session.spec)
         self._show_result_note()
 
     def _show_result_note(self) -> None:
@@ -361,19 +452,96 @@ class MainWindow(QMainWindow):
                          f"since this estimate.</b> Press Estimate (Ctrl+E) to update.</span>")
         verdict = ("the estimation converged" if result.converged else
                    f"<b>the estimation did not converge</b> ({result.message})")
-        parts.append(f"Estimator: {result.estimator}; {result.n_windows} lag windows from "
+        parts.append(f"Estimator: {result.estimator}; {result.data_used} from "
                      f"{result.n_occasions} prompts; {verdict}.")
         self.result_note.setText(" ".join(parts))
 
     def _update_title(self) -> None:
-        settings = self.session.import_settings
-        name = Path(settings.path).name if settings is not None else ""
-        self.setWindowTitle(f"{name} — Lagwise" if name else "Lagwise")
+        """'NAME[*] — Lagwise': the project's name, '*' while there are unsaved changes."""
+        self.setWindowTitle(f"{self.session.name}[*] — Lagwise")
+        self.setWindowModified(self.session.is_modified())
 
     def _update_actions(self) -> None:
         has_data = self.session.diary is not None
         self.estimate_action.setEnabled(has_data and self.session.spec.k > 0)
         self.cancel_action.setEnabled(self.worker.busy)
+        self.save_action.setEnabled(has_data)
+        self.save_as_action.setEnabled(has_data)
+
+    # ----- the lag-2 check -----------------------------------------------------------
+    def _connect_lag2(self) -> None:
+        lag2 = self.results.lag2
+        lag2.run_requested.connect(self.run_lag2_check)
+        lag2.adopt_requested.connect(self.adopt_path)
+        self.session.specChanged.connect(self._lag2_follow_spec)
+        self.session.documentReplaced.connect(self._lag2_clear)
+        self.session.dataChanged.connect(self._lag2_data_changed)
+        self.session.preparationChanged.connect(self._lag2_data_changed)
+        self.session.dataChanged.connect(self._diary_changed)
+        lag2.set_spec(self.session.spec)
+
+    def adopt_path(self, kind: str, from_: str, to: str) -> None:
+        """Add a path indicated by the lag-2 check to the model (undoable)."""
+        if kind == "lag2":
+            text = f"Adopt lag-2 path {from_} (t-2) → {to}"
+        else:
+            text = f"Adopt unique autocorrelation of {to}"
+        try:
+            spec = adopted_spec(self.session.spec, kind, from_, to)
+        except (LagwiseError, ValueError) as exc:
+            QMessageBox.warning(self, "The path cannot be adopted", str(exc))
+            return
+        self.session.edit_spec(spec, text)
+        self.statusBar().showMessage(f"{text}. Press Estimate to fit the extended model "
+                                     "(Edit ▸ Undo takes it back).", 15000)
+
+    @Slot()
+    def _lag2_follow_spec(self) -> None:
+        self.results.lag2.set_spec(self.session.spec)
+
+    @Slot()
+    def _lag2_clear(self) -> None:
+        self.results.lag2.show_check(None)
+
+    @Slot()
+    def _diary_changed(self) -> None:
+        self.results.set_diary(self.session.diary)
+
+    @Slot()
+    def _lag2_data_changed(self) -> None:
+        lag2 = self.results.lag2
+        if lag2.check is not None:
+            lag2.show_check(None, _LAG2_DATA_CHANGED)
+
+    # ----- project notes -------------------------------------------------------------
+    def edit_notes(self) -> NotesDialog:
+        """Edit > Project notes: accepted notes become an undoable edit of the document."""
+        dialog = NotesDialog(self.session.notes, self)
+        dialog.accepted.connect(lambda: self.session.set_notes(dialog.text()))
+        dialog.finished.connect(dialog.deleteLater)
+        dialog.open()
+        return dialog
+
+    def _prune_recent(self) -> None:
+        """Before Open recent shows: drop projects that no longer exist, and say so."""
+        gone = self.files.prune_recent()
+        if gone:
+            self.statusBar().showMessage(
+                "Removed from the recent projects (no longer found): "
+                + ", ".join(p.name for p in gone), 10000)
+        self._fill_recent_menu()
+
+    def _fill_recent_menu(self) -> None:
+        menu = self.recent_menu
+        menu.clear()
+        paths = self.files.recent()
+        for number, path in enumerate(paths, start=1):
+            action = menu.addAction(f"&{number} {path.name}")
+            action.setStatusTip(str(path))
+            action.setData(str(path))
+            action.triggered.connect(lambda _=False, p=path: self.files.open_recent(p))
+        if not paths:
+            menu.addAction("No recent projects").setEnabled(False)
 
     def about(self) -> None:
         QMessageBox.about(
@@ -417,7 +585,15 @@ class MainWindow(QMainWindow):
         return [s for s in self.findChildren(QSplitter) if s.objectName()]
 
     def closeEvent(self, event: QCloseEvent) -> None:
-        """Stop a running estimate and wait for it, then remember the layout."""
+        """Ask about unsaved changes (Save / Discard / Cancel), stop a running estimate and
+        wait for it, remove this document's autosaves, then remember the layout."""
+        if not self._close_confirmed and self.session.is_modified():
+            event.ignore()
+            self.files.confirm_discard(self._close_now, "closing")
+            return
+        self._close_confirmed = False
+        self.files.autosave_timer.stop()
+        self.files.discard_recoveries()
         if self.worker.busy:
             self.statusBar().showMessage("Stopping the estimation…")
             QApplication.setOverrideCursor(Qt.CursorShape.WaitCursor)
@@ -427,3 +603,8 @@ class MainWindow(QMainWindow):
                 QApplication.restoreOverrideCursor()
         self.save_layout()
         event.accept()
+
+    def _close_now(self) -> None:
+        self._close_confirmed = True
+        if not self.close():
+            self._close_confirmed = False

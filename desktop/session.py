@@ -1,21 +1,30 @@
-"""The document the window edits: the diary, how it was imported, the model, the last result.
+"""The document the window edits: the diary, how it was imported, its preparation steps,
+the model, the last result and the project notes.
 
-A `Session` holds immutable values only (Diary, ImportSettings, ModelSpec, FitOptions,
-FitResult) and announces every change through Qt signals; views subscribe to it. Every
-edit of the model goes through the undo stack as a command that swaps one immutable
-snapshot for another, so undo and redo are exact and cheap. A running estimate gets a
-`snapshot()` of the values, never the session itself.
+A `Session` holds immutable values only (Diary, ImportSettings, preparation Steps,
+ModelSpec, FitOptions, FitResult) and announces every change through Qt signals; views
+subscribe to it. Every edit of the model, the steps or the notes goes through the undo stack
+as a command that swaps one immutable value for another, so undo and redo are exact and
+cheap. A running estimate gets a `snapshot()` of the values (the diary with the steps
+applied), never the session itself.
+
+The session is also the project document (models.project.Project): `to_project` and
+`load_project` convert, and `is_modified` says whether it differs from its file (an undoable
+edit since the last save, a new import or a new result).
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from pathlib import Path
 
-from PySide6.QtCore import QObject, Signal
+from PySide6.QtCore import QObject, Signal, Slot
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
 from models.diary import Diary, TimeSettings
 from models.errors import SpecError
+from models.preparation import Step, apply_steps, steps_from_json, steps_to_json
+from models.project import Project, ProjectData, embed_table, project_diary
 from models.results import FitResult
 from models.spec import FitOptions, ModelSpec
 from models.timegrid import diary_from_frame
@@ -37,11 +46,22 @@ class ImportSettings:
 
 @dataclass(frozen=True)
 class Snapshot:
-    """Frozen inputs of one estimate."""
+    """Frozen inputs of one estimate.
+
+    diary: the prepared diary the estimate uses (`raw` with the `preparation` steps applied);
+    raw: the diary as imported (None: the same as `diary`).
+    """
 
     diary: Diary
     spec: ModelSpec
     options: FitOptions
+    preparation: tuple[Step, ...] = ()
+    raw: Diary | None = None
+
+    @property
+    def source(self) -> Diary:
+        """The imported diary the estimate was prepared from."""
+        return self.raw if self.raw is not None else self.diary
 
 
 EMPTY_SPEC = ModelSpec(states=())
@@ -54,6 +74,11 @@ class Session(QObject):
     specChanged = Signal()      # model specification replaced
     optionsChanged = Signal()   # estimator settings replaced
     resultChanged = Signal()    # a new result (or none)
+    preparationChanged = Signal()  # preparation steps replaced
+    notesChanged = Signal()     # project notes replaced
+    fileChanged = Signal()      # the project file (and so the name) changed
+    modifiedChanged = Signal(bool)  # unsaved changes appeared or were saved
+    documentReplaced = Signal()  # a new import, an opened project, or File > New
 
     def __init__(self, parent: QObject | None = None) -> None:
         super().__init__(parent)
@@ -65,6 +90,16 @@ class Session(QObject):
         self._options = FitOptions()
         self._result: FitResult | None = None
         self._result_inputs: Snapshot | None = None
+        self._preparation: tuple[Step, ...] = ()
+        self._prepared: tuple[Diary, tuple[Step, ...], Diary] | None = None  # cache
+        self._data: ProjectData | None = None
+        self._notes = ""
+        self._file: Path | None = None
+        self._created = ""
+        self._untitled = "untitled"
+        self._unsaved = False
+        self._document = 0
+        self.undo_stack.cleanChanged.connect(self._clean_changed)
 
     # ----- reading -------------------------------------------------------------------
     @property
@@ -91,16 +126,43 @@ class Session(QObject):
     def items(self) -> tuple[str, ...]:
         return () if self._diary is None else self._diary.items
 
-    def snapshot(self) -> Snapshot | None:
-        """The frozen inputs for an estimate (None while no diary is loaded)."""
+    @property
+    def preparation(self) -> tuple[Step, ...]:
+        """The preparation steps applied to the diary before estimation, in order."""
+        return self._preparation
+
+    def prepared_diary(self) -> Diary | None:
+        """The diary with the preparation steps applied (models.preparation.apply_steps).
+
+        Raises DataError when a step cannot be applied to the present diary.
+        """
         if self._diary is None:
             return None
-        return Snapshot(self._diary, self._spec, self._options)
+        if not self._preparation:
+            return self._diary
+        cached = self._prepared
+        if cached is not None and cached[0] is self._diary and cached[1] == self._preparation:
+            return cached[2]
+        prepared = apply_steps(self._diary, self._preparation)
+        self._prepared = (self._diary, self._preparation, prepared)
+        return prepared
+
+    def snapshot(self) -> Snapshot | None:
+        """The frozen inputs for an estimate (None while no diary is loaded).
+
+        Its diary is the prepared one; raises DataError when a step cannot be applied.
+        """
+        if self._diary is None:
+            return None
+        return Snapshot(self.prepared_diary(), self._spec, self._options, self._preparation,
+                        self._diary)
 
     def result_is_current(self) -> bool:
-        """True when the shown result was estimated from the present diary, model and settings."""
+        """True when the shown result was estimated from the present diary, preparation steps,
+        model and settings."""
         inputs = self._result_inputs
-        return (self._result is not None and inputs is not None and inputs.diary is self._diary
+        return (self._result is not None and inputs is not None
+                and inputs.source is self._diary and inputs.preparation == self._preparation
                 and inputs.spec == self._spec and inputs.options == self._options)
 
     def validation(self) -> tuple[list[str], str | None]:
@@ -113,27 +175,161 @@ class Session(QObject):
 
     # ----- replacing the whole document ----------------------------------------------
     def load_data(self, frame, diary: Diary, settings: ImportSettings,
-                  spec: ModelSpec | None = None, options: FitOptions | None = None) -> None:
-        """Start on a new diary: the model is reset (or set to `spec`) and undo history cleared."""
+                  spec: ModelSpec | None = None, options: FitOptions | None = None,
+                  preparation: tuple[Step, ...] = (), notes: str | None = None,
+                  data: ProjectData | None = None) -> None:
+        """Start on a new diary: a new, untitled project whose model is reset (or set to
+        `spec`), preparation steps set to `preparation` and undo history cleared. The new
+        diary counts as unsaved.
+
+        data: where the table came from, as a project stores it (None: embedded from `frame`
+        and `settings.path`).
+        """
         self.undo_stack.clear()
         self._frame = frame
         self._diary = diary
         self._import = settings
+        self._data = data if data is not None else embed_table(frame, settings.path)
         self._spec = spec if spec is not None else EMPTY_SPEC
         if options is not None:
             self._options = options
+        self._preparation = tuple(preparation)
+        if notes is not None:
+            self._notes = notes
         self._result = None
         self._result_inputs = None
-        self.dataChanged.emit()
-        self.specChanged.emit()
-        self.optionsChanged.emit()
-        self.resultChanged.emit()
+        self._untitled = "untitled"
+        if self._file is not None:  # a new diary starts a new, untitled project
+            self._file, self._created = None, ""
+            self.fileChanged.emit()
+        self._set_unsaved(True)
+        self._emit_all()
+
+    def clear(self) -> None:
+        """An empty, untitled document (File > New)."""
+        self.undo_stack.clear()
+        self._frame = self._diary = self._import = self._data = None
+        self._spec, self._options = EMPTY_SPEC, FitOptions()
+        self._preparation, self._notes = (), ""
+        self._result = self._result_inputs = None
+        self._file, self._created, self._untitled = None, "", "untitled"
+        self.fileChanged.emit()
+        self._set_unsaved(False)
+        self._emit_all()
 
     def set_result(self, result: FitResult | None, inputs: Snapshot | None = None) -> None:
-        """Show `result`, estimated from `inputs` (not an edit: it is not undoable)."""
+        """Show `result`, estimated from `inputs` (not an edit: it is not undoable, but the
+        document counts as unsaved)."""
         self._result = result
         self._result_inputs = inputs
+        self._set_unsaved(True)
         self.resultChanged.emit()
+
+    @property
+    def document(self) -> int:
+        """A number that changes whenever the whole document is replaced (an import, an
+        opened project, New): a run started on an earlier document is not shown."""
+        return self._document
+
+    def _emit_all(self) -> None:
+        self._document += 1
+        self.documentReplaced.emit()
+        for signal in (self.dataChanged, self.specChanged, self.optionsChanged,
+                       self.preparationChanged, self.notesChanged, self.resultChanged):
+            signal.emit()
+
+    # ----- project files -------------------------------------------------------------
+    @property
+    def file(self) -> Path | None:
+        """The project file the document was opened from or last saved to (None: untitled)."""
+        return self._file
+
+    @property
+    def name(self) -> str:
+        """The project's name for the window title ('untitled' before the first save)."""
+        return self._file.stem if self._file is not None else self._untitled
+
+    def set_untitled_name(self, name: str) -> None:
+        """The name shown while the document has no file (for example 'demo')."""
+        self._untitled = name
+        self.fileChanged.emit()
+
+    @property
+    def notes(self) -> str:
+        return self._notes
+
+    def is_modified(self) -> bool:
+        """True when the document differs from its file: an undoable edit since the last save,
+        a new import or a new result."""
+        return self._unsaved or not self.undo_stack.isClean()
+
+    def to_project(self) -> Project:
+        """The document as a models.project.Project (to save or autosave)."""
+        settings = self._import
+        spec = self._spec if self._spec.k > 0 else None
+        return Project(
+            data=self._data,
+            items=None if settings is None else settings.items,
+            time=TimeSettings() if settings is None else settings.time,
+            missing_codes=() if settings is None else settings.missing_codes,
+            prompts_per_day=None if settings is None else settings.prompts_per_day,
+            preparation=tuple(steps_to_json(self._preparation)),
+            spec=spec, options=self._options, result=self._result, notes=self._notes,
+            created=self._created, file=self._file)
+
+    def load_project(self, project: Project, table, saved: bool = True) -> None:
+        """Put an opened project into the session: its data (`table`: the project's raw
+        table, models.project.project_table), steps, model, settings, notes and stored
+        results, shown without refitting.
+
+        The diary is rebuilt and the steps tried before anything changes, so a DataError
+        leaves the session untouched. `saved` False (a restored autosave): the document
+        counts as unsaved.
+        """
+        raw = project_diary(project, table, prepared=False)
+        steps = steps_from_json(list(project.preparation))
+        if steps:
+            apply_steps(raw, steps)
+        data = project.data
+        source = str(data.link) if data is not None and data.link is not None else (
+            data.file_name if data is not None else "table")
+        settings = ImportSettings(path=source, items=raw.items, time=project.time,
+                                  missing_codes=tuple(project.missing_codes),
+                                  prompts_per_day=project.prompts_per_day)
+        if data is not None and data.table is None:
+            data = replace(data, table=table)
+        self.load_data(table, raw, settings, spec=project.spec or EMPTY_SPEC,
+                       options=project.options, preparation=steps, notes=project.notes,
+                       data=data)
+        self._file, self._created = project.file, project.created
+        self.fileChanged.emit()
+        result = project.result
+        if result is not None:
+            snapshot = self.snapshot()
+            if result.spec != self._spec or result.options != self._options:
+                # estimated from an earlier model: shown, marked as not current
+                snapshot = replace(snapshot, spec=result.spec, options=result.options)
+            self.set_result(result, snapshot)
+        if saved:
+            self.mark_saved(project.file)
+
+    def mark_saved(self, file: Path | None, created: str | None = None) -> None:
+        """The document now equals the project file `file` (after a save or an open)."""
+        if file != self._file:
+            self._file = file
+            self.fileChanged.emit()
+        if created is not None:
+            self._created = created
+        self.undo_stack.setClean()
+        self._set_unsaved(False)
+
+    @Slot(bool)
+    def _clean_changed(self, _clean: bool) -> None:
+        self.modifiedChanged.emit(self.is_modified())
+
+    def _set_unsaved(self, unsaved: bool) -> None:
+        self._unsaved = unsaved
+        self.modifiedChanged.emit(self.is_modified())
 
     # ----- undoable edits ------------------------------------------------------------
     def edit_spec(self, spec: ModelSpec, text: str) -> None:
@@ -160,6 +356,25 @@ class Session(QObject):
                                  missing_codes=settings.missing_codes, source=settings.path,
                                  prompts_per_day=settings.prompts_per_day)
         self.undo_stack.push(_DataSwap(self, (self._import, self._diary), (settings, diary), text))
+
+    def set_preparation(self, steps, text: str) -> None:
+        """Replace the preparation steps (undoable); no-op when nothing changes.
+
+        The steps are tried on the diary first: a DataError leaves the session untouched.
+        """
+        steps = tuple(steps)
+        if steps == self._preparation:
+            return
+        if self._diary is not None and steps:
+            apply_steps(self._diary, steps)
+        self.undo_stack.push(_Swap(self, "_preparation", self.preparationChanged,
+                                   self._preparation, steps, text))
+
+    def set_notes(self, notes: str, text: str = "Project notes") -> None:
+        """Replace the project notes (undoable)."""
+        if notes != self._notes:
+            self.undo_stack.push(_Swap(self, "_notes", self.notesChanged, self._notes, notes,
+                                       text))
 
     # ----- used by the commands ------------------------------------------------------
     def _set_data(self, settings: ImportSettings, diary: Diary) -> None:

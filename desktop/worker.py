@@ -1,7 +1,8 @@
 """One worker adapter: long work off the UI thread, with progress and cancellation.
 
-`Worker.start(function, *args)` runs ``function(*args, monitor=monitor)`` on a thread of
-its own pool. The monitor is the small protocol of models/progress.py: ``report(fraction,
+`Worker.start(function, *args, job=...)` runs ``function(*args, monitor=monitor)`` on a
+thread of its own pool; `job` names the kind of work (for example "estimate" or
+"lag2 check") and `Worker.job` tells the receiver of a signal which kind the current run is. The monitor is the small protocol of models/progress.py: ``report(fraction,
 message)`` and ``cancelled()``. What happens is delivered to the GUI thread over queued
 signals: started, progress, done(result), error(message), cancelled(message), and idle
 when nothing runs any more. Starting a new run cancels the previous one; signals of a
@@ -101,14 +102,24 @@ class Worker(QObject):
         self._run = 0
         self._monitor: _Monitor | None = None
         self._jobs: dict[int, _Job] = {}
+        self._job = ""
 
     @property
     def busy(self) -> bool:
         return bool(self._jobs)
 
-    def start(self, function, *args, **kwargs) -> None:
-        """Run ``function(*args, monitor=..., **kwargs)``; a running job is cancelled first."""
+    @property
+    def job(self) -> str:
+        """The kind of the current (latest started) run; its signals are the ones delivered."""
+        return self._job
+
+    def start(self, function, *args, job: str = "job", **kwargs) -> None:
+        """Run ``function(*args, monitor=..., **kwargs)``; a running job is cancelled first.
+
+        `job` names the kind of run (see `job`); it is not passed to the function.
+        """
         self.cancel()
+        self._job = job
         self._run += 1
         self._monitor = _Monitor(self._run, self._relay)
         job = _Job(self._run, function, args, kwargs, self._monitor, self._relay)

@@ -40,8 +40,7 @@ def format_result(result: FitResult) -> str:
                  f"({result.iterations} iterations, {result.seconds:.2f} s)")
     if not result.converged:
         lines.append(f"  optimiser: {result.message}")
-    used = "answered occasions" if result.fit.exact else "lag windows used"
-    lines.append(f"  {result.n_occasions} occasions, {result.n_windows} {used}, "
+    lines.append(f"  {result.n_occasions} occasions, {result.data_used} used, "
                  f"{result.fit.n_free} free parameters, spectral radius {result.spectral_radius:.3f}")
     for title_kind, title in KIND_TITLES:
         rows = result.table(title_kind)

@@ -128,6 +128,12 @@ class FitResult:
         return self.spec.state_names
 
     @property
+    def data_used(self) -> str:
+        """What the estimate used, in words: lag windows, or answered prompts (exact)."""
+        unit = "answered prompts" if self.fit.exact else "lag windows"
+        return f"{self.n_windows} {unit}"
+
+    @property
     def stationary(self) -> bool:
         return self.spectral_radius < 1.0
 
