@@ -163,7 +163,7 @@ class MainWindow(QMainWindow):
         files = self.files
         self.new_action = self._action("&New project", K.New, files.new,
                                        "Start an empty, untitled project")
-        self.open_action = self._action("&Open project…", "Ctrl+Shift+O",
+        self.open_action = self._action("&Open project…", K.Open,
                                         lambda: files.open(),
                                         "Open a Lagwise project (.lagwise)")
         self.save_action = self._action("&Save project", K.Save, files.save,
@@ -175,7 +175,7 @@ class MainWindow(QMainWindow):
         self.recent_menu.aboutToShow.connect(self._prune_recent)
         self.notes_action = self._action("Project &notes…", None, self.edit_notes,
                                          "Notes kept in the project file")
-        self.import_action = self._action("&Import data…", K.Open, self.import_data,
+        self.import_action = self._action("&Import data…", "Ctrl+I", self.import_data,
                                           "Read a diary from a CSV, TSV, Excel, SPSS or Stata file")
         self.demo_action = self._action("Open &demo", None, self.open_demo,
                                         "Open the invented demo diary with its model")

@@ -218,7 +218,7 @@ class DataPage(QWidget):
         summary = self._summary
         if summary is None:
             self.summary_label.setText(
-                "No diary yet. Import a data file with <b>File ▸ Import data…</b> (Ctrl+O) "
+                "No diary yet. Import a data file with <b>File ▸ Import data…</b> (Ctrl+I) "
                 "or open the demo with <b>File ▸ Open demo</b>.")
             return
         occasions, answered = summary["occasions"], summary["answered"]

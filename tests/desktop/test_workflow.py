@@ -493,10 +493,11 @@ def test_window_layout_is_remembered(qtbot, lagwise_app):
 
 def test_keyboard_reaches_every_command(window):
     shortcuts = {a.text().replace("&", ""): a.shortcut().toString()
-                 for a in (window.import_action, window.estimate_action, window.undo_action,
+                 for a in (window.import_action, window.open_action, window.estimate_action, window.undo_action,
                            window.redo_action, *window.page_actions)}
     assert shortcuts["Estimate"] == "Ctrl+E"
-    assert shortcuts["Import data…"] == "Ctrl+O"
+    assert shortcuts["Import data…"] == "Ctrl+I"
+    assert shortcuts["Open project…"] == "Ctrl+O"
     assert all(shortcuts[f"{i + 1} {name}"] == f"Ctrl+{i + 1}" for i, name in enumerate(PAGES))
     assert window.undo_action.shortcut().toString() == "Ctrl+Z"
     assert window.redo_action.shortcut().toString() == "Ctrl+Shift+Z"
