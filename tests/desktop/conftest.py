@@ -43,3 +43,14 @@ def artifacts() -> Path:
     """test-artifacts/ at the repository root, created on first use."""
     ARTIFACTS.mkdir(parents=True, exist_ok=True)
     return ARTIFACTS
+
+
+@pytest.fixture
+def session(lagwise_app):
+    """A session holding the bundled demo diary and its model."""
+    from desktop.app import load_demo
+    from desktop.session import Session
+
+    s = Session()
+    load_demo(s)
+    return s

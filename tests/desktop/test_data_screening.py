@@ -12,19 +12,10 @@ import pytest
 from PySide6.QtCore import Qt
 
 import desktop.pages.screening_view as screening_module
-from desktop.app import load_demo
 from desktop.export import save_widget_png
 from desktop.pages.data_page import DataPage
-from desktop.session import Session
 from models.preparation import Step
 from models.screening import format_p, screen_diary
-
-
-@pytest.fixture
-def session(lagwise_app):
-    s = Session()
-    load_demo(s)
-    return s
 
 
 @pytest.fixture

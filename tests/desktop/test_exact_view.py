@@ -15,16 +15,8 @@ from desktop.app import load_demo
 from desktop.export import save_widget_png
 from desktop.mainwindow import PAGES, MainWindow
 from desktop.pages.dynamics_page import ESTIMATOR_HELP, DynamicsPage
-from desktop.session import Session
 
 ESTIMATE_TIMEOUT_MS = 120_000
-
-
-@pytest.fixture
-def session(lagwise_app):
-    s = Session()
-    load_demo(s)
-    return s
 
 
 @pytest.fixture
