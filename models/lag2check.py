@@ -15,6 +15,7 @@ All statistics use the window pseudo-likelihood (overlapping windows): they are 
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -110,10 +111,12 @@ def lag2_check(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions()
         windows = lag_windows(diary.select(restricted_spec.items), depth)
         checkpoint(monitor, 0.0, "Fitting the lag-1 model on depth-2 windows")
         obj_r = WindowObjective(windows, restricted_spec, opts)
-        restricted = estimate_windows(obj_r, notes, diary.n_occasions, 0.0, _scaled_monitor(monitor, 0.0, 0.4))
+        restricted = estimate_windows(obj_r, notes, diary.n_occasions, time.perf_counter(),
+                                      _scaled_monitor(monitor, 0.0, 0.4))
         checkpoint(monitor, 0.4, "Fitting the model with lag-2 paths")
         obj_e = WindowObjective(windows, extended_spec, opts)
-        extended = estimate_windows(obj_e, notes, diary.n_occasions, 0.0, _scaled_monitor(monitor, 0.4, 0.75))
+        extended = estimate_windows(obj_e, notes, diary.n_occasions, time.perf_counter(),
+                                    _scaled_monitor(monitor, 0.4, 0.75))
         checkpoint(monitor, 0.75, "Score tests")
         lag2_tests = _score_tests(obj_r, restricted, windows, opts, "lag2")
         # a lag-1 feature is tested on lag-1 windows: in depth-2 windows every lag-1 pair of
@@ -121,7 +124,8 @@ def lag2_check(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions()
         checkpoint(monitor, 0.85, "Score tests of the unique autocorrelations (lag-1 windows)")
         windows1 = lag_windows(diary.select(restricted_spec.items), 1)
         obj_r1 = WindowObjective(windows1, restricted_spec, replace(opts, depth=1))
-        restricted1 = estimate_windows(obj_r1, notes, diary.n_occasions, 0.0, _scaled_monitor(monitor, 0.85, 0.95))
+        restricted1 = estimate_windows(obj_r1, notes, diary.n_occasions, time.perf_counter(),
+                                       _scaled_monitor(monitor, 0.85, 0.95))
         raw = lag2_tests + _score_tests(obj_r1, restricted1, windows1, replace(opts, depth=1),
                                         "unique_autocorrelation")
     p_holm = holm(np.array([t.p for t in raw])) if raw else np.array([])

@@ -67,7 +67,7 @@ class WindowObjective:
             d_mu[i] = (plus.mu - minus.mu) / (2 * step)
         imp = self.implied(theta)
         data = self.data
-        inv = np.where(data.obs_outer, np.linalg.inv(data._padded(imp.sigma)), 0.0)
+        inv = np.where(data.obs_outer, np.linalg.inv(data.padded(imp.sigma)), 0.0)
         info = np.zeros((m, m))
         for g in range(data.n_patterns):
             a = inv[g] @ d_sigma @ inv[g]                       # (m, w, w)

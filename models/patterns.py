@@ -60,14 +60,15 @@ class PatternData:
     def n_patterns(self) -> int:
         return int(self.counts.size)
 
-    def _padded(self, sigma: np.ndarray) -> np.ndarray:
+    def padded(self, sigma: np.ndarray) -> np.ndarray:
+        """Each pattern's covariance at full width, the identity on its missing rows and columns."""
         eye = np.eye(self.width, dtype=bool)
         return np.where(self.obs_outer, sigma[None], np.where(eye, 1.0, 0.0)[None])
 
     def loglik(self, mu: np.ndarray, sigma: np.ndarray, gradient: bool = True
                ) -> tuple[float, np.ndarray | None, np.ndarray | None]:
         """Log-likelihood and (optionally) its gradients w.r.t. Sigma (as in tr(G dSigma)) and mu."""
-        padded = self._padded(sigma)
+        padded = self.padded(sigma)
         try:
             chol = np.linalg.cholesky(padded)
         except np.linalg.LinAlgError:
