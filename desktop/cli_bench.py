@@ -1,7 +1,8 @@
 """`lagwise bench [--quick] [--repeats N] [--all-peers] [--semopy-threads 1|default]
-[--no-memory]`: speed and memory of
-the estimators against semopy on simulated diaries (models.benchmark), printed as a table
-with PASS/MISS lines for the targets. Always exits 0: a benchmark reports, it does not fail.
+[--no-memory] [--exact-only | --no-exact]`: speed and memory of the window estimators against
+semopy and of the exact estimator against statsmodels on simulated diaries (models.benchmark),
+printed as tables with PASS/MISS lines for the targets. Always exits 0: a benchmark reports,
+it does not fail.
 """
 
 from __future__ import annotations
@@ -34,7 +35,7 @@ def _positive(text: str) -> int:
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--quick", action="store_true",
-                        help="only the small diary, one run each, and a 10,000-prompt memory run")
+                        help="only the small diaries, one run each, and 10,000-prompt memory runs")
     parser.add_argument("--repeats", type=_positive, metavar="N",
                         help="runs per timing, the best kept (default 3, or 1 with --quick)")
     parser.add_argument("--all-peers", action="store_true",
@@ -42,12 +43,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--semopy-threads", choices=("1", "default"), default="1",
                         help="BLAS threads for semopy: 1 like Lagwise (default), or its default")
     parser.add_argument("--no-memory", action="store_true",
-                        help="skip the peak-memory run")
+                        help="skip the peak-memory runs")
+    sections = parser.add_mutually_exclusive_group()
+    sections.add_argument("--exact-only", action="store_true",
+                          help="only the exact estimator against statsmodels")
+    sections.add_argument("--no-exact", action="store_true",
+                          help="only the window estimators against semopy")
 
 
 def run(args: argparse.Namespace) -> int:
     report = run_benchmark(quick=args.quick, repeats=args.repeats, all_peers=args.all_peers,
                            memory=not args.no_memory, semopy_threads=args.semopy_threads,
+                           windows=not args.exact_only, exact=not args.no_exact,
                            monitor=_Progress())
     print(format_report(report))
     return 0

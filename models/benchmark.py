@@ -1,24 +1,42 @@
-"""Speed and memory of the window estimators, measured against semopy in the same process.
+"""Speed and memory of the estimators, against semopy and statsmodels in the same process.
 
-Three measurements (issue 3, item 6), each on a diary simulated here from a known stationary
-model (k states x m items, 10 prompts a day, complete answers):
+Window estimators: three measurements (issue 3, item 6), each on a diary simulated here from a
+known stationary model (k states x m items, 10 prompts a day, complete answers):
 - speed: wall-clock seconds of `models.estimate.fit` with the first-copy-free estimator
   (windows, start values, optimisation, standard errors, fit indices) against semopy fitting
   the same first-copy-free window model on the same complete windows and giving the same
   outputs (model built from its text, data loaded, optimised, parameter table with standard
   errors, fit statistics) -> ratio semopy / Lagwise. Both run with BLAS on one thread (the
   Lagwise estimator always does; `semopy_threads="default"` leaves semopy's BLAS threads
-  alone). The semopy peers: covariance-only ML ("free" means, semopy's default objective, the faster peer) and,
-  where it finishes in reasonable time, ModelMeans with the same item intercepts as Lagwise
-  (models.reference_sem). Each time is the best of `repeats` runs after an untimed warm-up
-  run (common practice for benchmarks: the minimum is least disturbed by other work on the
-  machine);
+  alone). The semopy peers: covariance-only ML ("free" means, semopy's default objective,
+  the faster peer) and, where it finishes in reasonable time, ModelMeans with the same item
+  intercepts as Lagwise (models.reference_sem). Each time is the best of `repeats` runs after
+  an untimed warm-up run (common practice for benchmarks: the minimum is least disturbed by
+  other work on the machine);
 - the stationary estimator against the first-copy-free one on the same diary -> ratio;
 - peak memory of one default fit (stationary, full information) of a long diary with missed
   prompts, in a fresh Python process so the peak is that run's alone: the peak resident set
   size where the platform reports it (Linux, macOS), else tracemalloc's peak.
 Targets: Lagwise at least 4x faster than semopy; stationary within 1.5x of first-copy-free;
-peak memory under 1 GB. These are reported as PASS/MISS lines, never as timed tests.
+peak memory under 1 GB.
+
+Exact estimator (issue 7, item 5), on diaries of 3 states x 3 items with days of 8 prompts:
+- speed: `fit(..., FitOptions(estimator="exact"))` (window start, optimisation, standard
+  errors, state scores) on T = 1,000 complete prompts against statsmodels' DynamicFactor
+  fitting the one-factor model (one factor, AR(1), a constant per item) to the same data at
+  its defaults (L-BFGS with at most 50 iterations; standard errors from the outer product of
+  gradients, cheaper than the observed information Lagwise computes), both on one BLAS
+  thread -> ratio statsmodels / Lagwise, with both log-likelihoods. The two are different
+  models (three states restarting each day; one factor over one unbroken series), so the
+  log-likelihoods are reported, not compared; what is checked is that Lagwise's filter at
+  statsmodels' estimate gives statsmodels' log-likelihood (the same filter, like for like).
+  statsmodels' fit takes about 20 s here, so its runs get no warm-up run;
+- evaluation cost: one log-likelihood and one gradient at T = 1,000, 10,000 and 100,000
+  prompts (10% missed), the time per occasion and the growth exponent of the gradient time
+  between the two largest diaries, log(t_b / t_a) / log(T_b / T_a) (1 = linear);
+- peak memory of one exact fit of T = 100,000 prompts (10% missed), in a fresh process.
+Targets: statsmodels takes at least 5x the Lagwise time; growth exponent at most 1.1; peak
+memory under 1 GB. These are reported as PASS/MISS lines, never as timed tests.
 """
 
 from __future__ import annotations
@@ -28,6 +46,7 @@ import json
 import subprocess
 import sys
 import time
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -45,6 +64,8 @@ MEMORY_TARGET_BYTES = 1024 ** 3
 # with row-sized products): one fit of the 6 x 5, T = 2,000 diary took about 2 minutes on a
 # 2-core machine, so above this many occasions it runs only when asked
 MEANS_PEER_LIMIT = 500
+EXACT_SPEED_TARGET = 5.0
+EXACT_GROWTH_TARGET = 1.1
 
 
 @dataclass(frozen=True)
@@ -54,16 +75,24 @@ class Case:
     states: int
     items: int
     occasions: int
+    prompts: int = PROMPTS_PER_DAY
 
     @property
     def label(self) -> str:
-        return f"{self.states} states x {self.items} items, T = {self.occasions:,}"
+        days = "" if self.prompts == PROMPTS_PER_DAY else f", days of {self.prompts}"
+        return f"{self.states} states x {self.items} items, T = {self.occasions:,}{days}"
 
 
 SPEED_CASES = (Case(3, 4, 200), Case(6, 5, 2000))
 QUICK_SPEED_CASES = (Case(3, 4, 200),)
 MEMORY_CASE = Case(6, 5, 100_000)
 QUICK_MEMORY_CASE = Case(6, 5, 10_000)
+EXACT_CASE = Case(3, 3, 1000, prompts=8)
+QUICK_EXACT_CASE = Case(3, 3, 400, prompts=8)
+EXACT_SIZES = (1_000, 10_000, 100_000)
+QUICK_EXACT_SIZES = (1_000, 10_000)
+EXACT_MEMORY_CASE = Case(3, 3, 100_000, prompts=8)
+QUICK_EXACT_MEMORY_CASE = Case(3, 3, 10_000, prompts=8)
 
 
 def bench_model(states: int, items: int) -> tuple[ModelSpec, dict]:
@@ -90,16 +119,17 @@ def bench_diary(case: Case, seed: int = 1, p_missed: float = 0.0) -> tuple[Model
     from models.simulate import simulate_diary
 
     spec, truth = bench_model(case.states, case.items)
-    days = max(1, case.occasions // PROMPTS_PER_DAY)
-    diary = simulate_diary(spec, days=days, prompts_per_day=PROMPTS_PER_DAY, p_missed=p_missed,
+    days = max(1, case.occasions // case.prompts)
+    diary = simulate_diary(spec, days=days, prompts_per_day=case.prompts, p_missed=p_missed,
                            seed=seed, **truth)
     return spec, diary
 
 
-def _best_time(run, repeats: int):
+def _best_time(run, repeats: int, warm_up: bool = True):
     """Best wall-clock seconds of `repeats` calls, after one untimed warm-up call (imports
     and first-call costs are not part of a fit's time), and the last call's result."""
-    run()
+    if warm_up:
+        run()
     best, out = np.inf, None
     for _ in range(max(1, repeats)):
         start = time.perf_counter()
@@ -142,8 +172,49 @@ class MemoryResult:
     baseline_bytes: int
     method: str
     seconds: float
-    n_windows: int
+    n_windows: int          # windows, or answered occasions for the exact estimator
     converged: bool
+    estimator: str = "stationary"
+
+
+@dataclass(frozen=True)
+class ExactSpeedResult:
+    """Lagwise's exact fit against statsmodels' one-factor DynamicFactor on one diary."""
+
+    case: Case
+    lagwise_seconds: float
+    lagwise_loglik: float
+    lagwise_converged: bool
+    lagwise_iterations: int
+    peer_seconds: float
+    peer_loglik: float
+    peer_converged: bool
+    peer_iterations: int
+    peer_check: float      # |Lagwise's filter at statsmodels' estimate - statsmodels' llf|
+
+    @property
+    def ratio(self) -> float:
+        return self.peer_seconds / self.lagwise_seconds
+
+
+@dataclass(frozen=True)
+class ExactEvaluation:
+    """Best seconds of one exact log-likelihood and of one gradient on a diary of T prompts."""
+
+    occasions: int
+    loglik_seconds: float
+    gradient_seconds: float
+    loglik: float
+
+
+def growth_exponent(evaluations: list[ExactEvaluation]) -> float | None:
+    """log(t_b / t_a) / log(T_b / T_a) of the gradient time between the two largest diaries
+    (1 = linear; at the smallest, fixed costs per call still weigh)."""
+    if len(evaluations) < 2:
+        return None
+    first, last = evaluations[-2], evaluations[-1]
+    return float(np.log(last.gradient_seconds / first.gradient_seconds)
+                 / np.log(last.occasions / first.occasions))
 
 
 @dataclass
@@ -152,6 +223,9 @@ class BenchReport:
     memory: MemoryResult | None = None
     repeats: int = 1
     semopy_threads: str = "1"
+    exact_speed: ExactSpeedResult | None = None
+    exact_evaluations: list[ExactEvaluation] = field(default_factory=list)
+    exact_memory: MemoryResult | None = None
 
 
 def measure_speed(case: Case, repeats: int = 3, means_peer: bool | None = None,
@@ -187,10 +261,82 @@ def measure_speed(case: Case, repeats: int = 3, means_peer: bool | None = None,
                        stationary_converged=st.converged, peers=tuple(peers))
 
 
-def measure_memory(case: Case, timeout: float = 3600.0) -> MemoryResult:
-    """Peak memory of one default fit of `case` (10% missed prompts) in a fresh process."""
+def _one_factor_peer(values: np.ndarray):
+    """statsmodels' DynamicFactor, one factor with AR(1) and a constant per item, fitted at its
+    defaults; its standard errors are computed inside the timed run."""
+    from statsmodels.tsa.statespace.dynamic_factor import DynamicFactor
+    from threadpoolctl import threadpool_limits
+
+    with threadpool_limits(limits=1, user_api="blas"), warnings.catch_warnings():
+        warnings.simplefilter("ignore")   # its convergence warning is reported below instead
+        model = DynamicFactor(values, k_factors=1, factor_order=1,
+                              exog=np.ones((values.shape[0], 1)))
+        result = model.fit(disp=False)
+        result.bse
+    return result
+
+
+def measure_exact_speed(case: Case = EXACT_CASE, repeats: int = 3,
+                        monitor: Monitor | None = None) -> ExactSpeedResult:
+    """Time the Lagwise exact fit and statsmodels' one-factor DynamicFactor on one diary."""
+    from models.estimate import fit
+    from models.kalman import kalman_loglik
+
+    spec, diary = bench_diary(case)
+    checkpoint(monitor, 0.0, f"{case.label}: Lagwise exact")
+    lag_s, res = _best_time(lambda: fit(diary, spec, FitOptions(estimator="exact")), repeats)
+    checkpoint(monitor, 0.2, f"{case.label}: statsmodels DynamicFactor (about 20 s a run)")
+    peer_s, peer = _best_time(lambda: _one_factor_peer(diary.values), repeats, warm_up=False)
+    p = diary.values.shape[1]
+    prm = np.asarray(peer.params)  # loadings, constants, unique variances, AR coefficient
+    ours = kalman_loglik(diary.values, np.zeros(diary.n_occasions), prm[p:2 * p],
+                         prm[:p].reshape(p, 1), prm[2 * p:3 * p], [prm[3 * p:].reshape(1, 1)],
+                         np.eye(1))
+    return ExactSpeedResult(
+        case=case, lagwise_seconds=lag_s, lagwise_loglik=float(res.fit.loglik),
+        lagwise_converged=bool(res.converged), lagwise_iterations=int(res.iterations),
+        peer_seconds=peer_s, peer_loglik=float(peer.llf),
+        peer_converged=bool(peer.mle_retvals.get("converged", False)),
+        peer_iterations=int(peer.mle_retvals.get("iterations", -1)),
+        peer_check=abs(ours - float(peer.llf)))
+
+
+def measure_exact_evaluation(sizes: tuple[int, ...] = EXACT_SIZES, repeats: int = 3,
+                             monitor: Monitor | None = None) -> list[ExactEvaluation]:
+    """Best seconds of the exact log-likelihood and of its gradient at the true parameters, on
+    diaries of 3 states x 3 items, days of 8 prompts, 10% missed, of each size."""
+    from threadpoolctl import threadpool_limits
+
+    from models.exact import ExactObjective
+    from models.parameters import Matrices
+
+    out = []
+    for n, occasions in enumerate(sizes):
+        checkpoint(monitor, n / len(sizes), f"Exact evaluation, T = {occasions:,}")
+        case = Case(EXACT_CASE.states, EXACT_CASE.items, occasions, EXACT_CASE.prompts)
+        spec, diary = bench_diary(case, p_missed=0.1)
+        _, truth = bench_model(case.states, case.items)
+        objective = ExactObjective(diary, spec, FitOptions(estimator="exact"))
+        p = len(spec.items)
+        theta = objective.layout.pack(Matrices(
+            nu=truth["intercepts"], lam=truth["loadings"], theta=truth["unique"], d=np.zeros(p),
+            lagged=np.array(truth["lagged"]), psi=truth["innovation"]))
+        runs = max(repeats, 5)   # cheap, and the growth exponent needs steady minima
+        with threadpool_limits(limits=1, user_api="blas"):  # as in every Lagwise fit
+            ll_s, ll = _best_time(lambda: objective.loglik(theta), runs)
+            grad_s, _ = _best_time(lambda: objective.loglik_and_gradient(theta), runs)
+        out.append(ExactEvaluation(occasions=diary.n_occasions, loglik_seconds=ll_s,
+                                   gradient_seconds=grad_s, loglik=float(ll)))
+    return out
+
+
+def measure_memory(case: Case, timeout: float = 3600.0, estimator: str = "stationary"
+                   ) -> MemoryResult:
+    """Peak memory of one fit of `case` (10% missed prompts) in a fresh process, with the
+    default (stationary, full-information) or the exact estimator."""
     cmd = [sys.executable, "-m", "models.benchmark", "--memory-child", str(case.states),
-           str(case.items), str(case.occasions)]
+           str(case.items), str(case.occasions), "--prompts", str(case.prompts),
+           "--estimator", estimator]
     done = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, check=False)
     if done.returncode != 0:
         tail = done.stderr.strip().splitlines()[-1:] or ["no message"]
@@ -199,7 +345,7 @@ def measure_memory(case: Case, timeout: float = 3600.0) -> MemoryResult:
     return MemoryResult(case=case, peak_bytes=int(doc["peak_bytes"]),
                         baseline_bytes=int(doc["baseline_bytes"]), method=doc["method"],
                         seconds=float(doc["seconds"]), n_windows=int(doc["n_windows"]),
-                        converged=bool(doc["converged"]))
+                        converged=bool(doc["converged"]), estimator=estimator)
 
 
 def _peak_reader():
@@ -232,33 +378,51 @@ def _peak_reader():
         lambda: resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * scale
 
 
-def _memory_child(states: int, items: int, occasions: int) -> dict:
+def _memory_child(states: int, items: int, occasions: int, prompts: int = PROMPTS_PER_DAY,
+                  estimator: str = "stationary") -> dict:
     method, peak = _peak_reader()
     from models.estimate import fit  # imports count in the baseline
 
     baseline = peak()
-    spec, diary = bench_diary(Case(states, items, occasions), p_missed=0.1)
+    spec, diary = bench_diary(Case(states, items, occasions, prompts), p_missed=0.1)
     start = time.perf_counter()
-    result = fit(diary, spec, FitOptions())
+    result = fit(diary, spec, FitOptions(estimator=estimator))
     return {"peak_bytes": int(peak()), "baseline_bytes": int(baseline), "method": method,
             "seconds": time.perf_counter() - start, "n_windows": result.n_windows,
             "converged": bool(result.converged)}
 
 
 def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bool = False,
-                  memory: bool = True, semopy_threads: str = "1",
-                  monitor: Monitor | None = None) -> BenchReport:
-    """All measurements; `quick` uses the small case only and a 10,000-prompt memory run."""
+                  memory: bool = True, semopy_threads: str = "1", windows: bool = True,
+                  exact: bool = True, monitor: Monitor | None = None) -> BenchReport:
+    """All measurements; `quick` uses the small cases only and 10,000-prompt memory runs;
+    `windows` / `exact` choose the sections (window estimators against semopy; the exact
+    estimator against statsmodels)."""
     repeats = (1 if quick else 3) if repeats is None else repeats
     report = BenchReport(repeats=repeats, semopy_threads=semopy_threads)
-    cases = QUICK_SPEED_CASES if quick else SPEED_CASES
-    for n, case in enumerate(cases):
-        checkpoint(monitor, n / (len(cases) + 1), f"Timing {case.label}")
+    cases = (QUICK_SPEED_CASES if quick else SPEED_CASES) if windows else ()
+    parts = len(cases) + int(windows and memory) + (2 + int(memory) if exact else 0)
+    done = 0
+    for case in cases:
+        checkpoint(monitor, done / parts, f"Timing {case.label}")
         report.speed.append(measure_speed(case, repeats, True if all_peers else None,
                                           semopy_threads))
-    if memory:
-        checkpoint(monitor, len(cases) / (len(cases) + 1), "Peak memory of a long diary")
+        done += 1
+    if windows and memory:
+        checkpoint(monitor, done / parts, "Peak memory of a long diary")
         report.memory = measure_memory(QUICK_MEMORY_CASE if quick else MEMORY_CASE)
+        done += 1
+    if exact:
+        case = QUICK_EXACT_CASE if quick else EXACT_CASE
+        checkpoint(monitor, done / parts, f"Exact estimator: timing {case.label}")
+        report.exact_speed = measure_exact_speed(case, repeats)
+        checkpoint(monitor, (done + 1) / parts, "Exact estimator: evaluation cost")
+        report.exact_evaluations = measure_exact_evaluation(
+            QUICK_EXACT_SIZES if quick else EXACT_SIZES, repeats)
+        if memory:
+            checkpoint(monitor, (done + 2) / parts, "Exact estimator: peak memory of a long diary")
+            report.exact_memory = measure_memory(
+                QUICK_EXACT_MEMORY_CASE if quick else EXACT_MEMORY_CASE, estimator="exact")
     checkpoint(monitor, 1.0, "Done")
     return report
 
@@ -301,19 +465,77 @@ def format_report(report: BenchReport) -> str:
         verdicts.append(f"{_verdict(r.stationary_ratio <= STATIONARY_TARGET)}  {r.case.label}: "
                         f"stationary takes {r.stationary_ratio:.2f}x the first-copy-free time "
                         f"(target at most {STATIONARY_TARGET:g}x)")
-    m = report.memory
-    if m is not None:
-        lines += ["", f"Peak memory, one default fit of {m.case.label} ({m.case.states * m.case.items} "
-                      f"items, 10% missed prompts, {m.n_windows:,} windows): "
-                      f"{m.peak_bytes / 2 ** 20:,.0f} MiB ({m.method}; "
-                      f"{m.baseline_bytes / 2 ** 20:,.0f} MiB after imports), "
-                      f"fit {m.seconds:.1f} s" + ("" if m.converged else ", did not converge")]
-        verdicts.append(f"{_verdict(m.peak_bytes < MEMORY_TARGET_BYTES)}  {m.case.label}: peak "
-                        f"memory {m.peak_bytes / 2 ** 30:.2f} GiB (target under 1 GiB)")
+    if report.memory is not None:
+        lines.append("")
+        _memory_lines(report.memory, lines, verdicts)
+    if report.exact_speed is not None or report.exact_evaluations or report.exact_memory:
+        lines += ["", "Exact estimator (Kalman filter)"]
+        _exact_lines(report, lines, verdicts)
     lines += [""] + verdicts
     lines.append("The ratios compare runs in the same process on this machine; other work on "
                  "the machine moves them.")
     return "\n".join(lines)
+
+
+def _memory_lines(m: MemoryResult, lines: list[str], verdicts: list[str]) -> None:
+    exact = m.estimator == "exact"
+    what = (f"{m.n_windows:,} answered prompts" if exact else f"{m.n_windows:,} windows")
+    lines.append(f"Peak memory, one {'exact' if exact else 'default'} fit of {m.case.label} "
+                 f"({m.case.states * m.case.items} items, 10% missed prompts, {what}): "
+                 f"{m.peak_bytes / 2 ** 20:,.0f} MiB ({m.method}; "
+                 f"{m.baseline_bytes / 2 ** 20:,.0f} MiB after imports), "
+                 f"fit {m.seconds:.1f} s" + ("" if m.converged else ", did not converge"))
+    verdicts.append(f"{_verdict(m.peak_bytes < MEMORY_TARGET_BYTES)}  "
+                    f"{'exact, ' if exact else ''}{m.case.label}: peak "
+                    f"memory {m.peak_bytes / 2 ** 30:.2f} GiB (target under 1 GiB)")
+
+
+def _exact_lines(report: BenchReport, lines: list[str], verdicts: list[str]) -> None:
+    r = report.exact_speed
+    if r is not None:
+        head = f"{'diary':<42}{'fitted by':<38}{'seconds':>9}{'ratio':>8}{'log-lik':>13}"
+        lines += [f"Lagwise best of {report.repeats} run(s) (window start, optimisation, standard "
+                  f"errors, state scores); statsmodels best of {report.repeats}, no warm-up;",
+                  "statsmodels at its defaults (L-BFGS, at most 50 iterations, standard errors "
+                  "from the outer product of gradients); both on one BLAS thread;",
+                  "ratio = seconds / Lagwise seconds. The log-likelihoods belong to different "
+                  "models (3 states, each day restarting; one factor, one unbroken series).",
+                  "", head, "-" * len(head)]
+        lines.append(f"{r.case.label:<42}{'Lagwise exact, 3 states':<38}{r.lagwise_seconds:>9.3f}"
+                     f"{'1.00':>8}{r.lagwise_loglik:>13.2f}"
+                     + ("" if r.lagwise_converged else "  (did not converge)"))
+        peer_note = ("" if r.peer_converged
+                     else f"  (did not converge in {r.peer_iterations} iterations)")
+        lines.append(f"{'':<42}{'statsmodels DynamicFactor, 1 factor':<38}{r.peer_seconds:>9.3f}"
+                     f"{r.ratio:>8.2f}{r.peer_loglik:>13.2f}{peer_note}")
+        lines.append(f"{'':<42}(Lagwise's filter at statsmodels' estimate differs from its "
+                     f"log-likelihood by {r.peer_check:.1e})")
+        verdicts.append(f"{_verdict(r.ratio >= EXACT_SPEED_TARGET)}  exact, {r.case.label}: "
+                        f"statsmodels DynamicFactor (one factor) takes {r.ratio:.1f}x the Lagwise "
+                        f"exact time (target at least {EXACT_SPEED_TARGET:g}x)")
+    evals = report.exact_evaluations
+    if evals:
+        head = (f"{'prompts T':>12}{'log-lik ms':>13}{'gradient ms':>13}"
+                f"{'us/prompt, log-lik':>21}{'us/prompt, gradient':>22}")
+        lines += ["", f"Exact evaluation cost, {EXACT_CASE.states} states x {EXACT_CASE.items} "
+                      f"items, days of {EXACT_CASE.prompts}, 10% missed prompts (best of "
+                      f"{max(report.repeats, 5)}, after a warm-up call):", head, "-" * len(head)]
+        for e in evals:
+            lines.append(f"{e.occasions:>12,}{e.loglik_seconds * 1e3:>13.2f}"
+                         f"{e.gradient_seconds * 1e3:>13.2f}"
+                         f"{e.loglik_seconds / e.occasions * 1e6:>21.2f}"
+                         f"{e.gradient_seconds / e.occasions * 1e6:>22.2f}")
+        b = growth_exponent(evals)
+        if b is not None:
+            lines.append(f"gradient time grows as T^{b:.2f} between the two largest diaries "
+                         "(1 = linear)")
+            verdicts.append(f"{_verdict(b <= EXACT_GROWTH_TARGET)}  exact evaluation: the gradient "
+                            f"time grows as T^{b:.2f} from T = {evals[-2].occasions:,} to "
+                            f"{evals[-1].occasions:,} (target: linear, exponent at most "
+                            f"{EXACT_GROWTH_TARGET:g})")
+    if report.exact_memory is not None:
+        lines.append("")
+        _memory_lines(report.exact_memory, lines, verdicts)
 
 
 def _main(argv: list[str]) -> int:
@@ -321,8 +543,11 @@ def _main(argv: list[str]) -> int:
     parser = argparse.ArgumentParser(prog="python -m models.benchmark")
     parser.add_argument("--memory-child", nargs=3, type=int, required=True,
                         metavar=("STATES", "ITEMS", "OCCASIONS"))
+    parser.add_argument("--prompts", type=int, default=PROMPTS_PER_DAY)
+    parser.add_argument("--estimator", default="stationary")
     args = parser.parse_args(argv)
-    print(json.dumps(_memory_child(*args.memory_child)))
+    print(json.dumps(_memory_child(*args.memory_child, prompts=args.prompts,
+                                   estimator=args.estimator)))
     return 0
 
 

@@ -4,9 +4,10 @@ The model of DESIGN.md section 2 as a linear Gaussian state-space model (models.
 answered prompt is used, missed prompts are handled by the filter, and each segment restarts
 from the stationary distribution (or, with `FitOptions.night_gap`, the days are joined with
 that many missed prompts in between, so the states carry over the night). Start values come
-from the stationary window estimate; optimisation, standard errors (observed information) and
-the parameter table are shared with the window estimators. Log-likelihood, AIC and BIC are
-those of the series (BIC with n = answered occasions), so they compare models properly.
+from the stationary window estimate (its optimum only); optimisation, standard errors
+(observed information) and the parameter table are shared with the window estimators.
+Log-likelihood, AIC and BIC are those of the series (BIC with n = answered occasions), so they
+compare models properly. The filter plan (models.kalman.filter_plan) is built once per fit.
 """
 
 from __future__ import annotations
@@ -20,12 +21,14 @@ from models.diary import Diary
 from models.errors import EstimationError
 from models.fitindices import fit_indices
 from models.implied import NotAdmissible
-from models.kalman import kalman_gradient, kalman_loglik, kalman_smooth
+from models.kalman import filter_plan, kalman_gradient, kalman_loglik, kalman_smooth
 from models.lyapunov import spectral_radius, stationary_covariance
+from models.objective import WindowObjective
 from models.parameters import Gradients, ParameterLayout
 from models.progress import Monitor, checkpoint
 from models.results import CAUTION_IDIOGRAPHIC, FitResult
 from models.spec import FitOptions, ModelSpec
+from models.windows import lag_windows
 
 CAUTION_EXACT_SE = ("Standard errors come from the observed information of the exact likelihood; "
                     "with a few hundred prompts they are approximate.")
@@ -41,6 +44,7 @@ class ExactObjective:
         if options.night_gap is not None:
             values, segment = _join_days(values, segment, int(options.night_gap))
         self.values, self.segment = values, segment
+        self.plan = filter_plan(values, segment)
         self.n_rows = int((~np.isnan(values)).any(axis=1).sum())
         self.item_var = np.nanvar(values, axis=0)
         self.layout = ParameterLayout(spec, self.item_var, "exact")
@@ -56,14 +60,14 @@ class ExactObjective:
     def loglik(self, theta: np.ndarray) -> float:
         m, args = self._args(theta)
         try:
-            return kalman_loglik(*args)
+            return kalman_loglik(*args, plan=self.plan)
         except (EstimationError, np.linalg.LinAlgError):
             raise NotAdmissible("outside the admissible region") from None
 
     def loglik_and_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]:
         m, args = self._args(theta)
         try:
-            g = kalman_gradient(*args, autocorrelated=self.autocorrelated)
+            g = kalman_gradient(*args, autocorrelated=self.autocorrelated, plan=self.plan)
         except (EstimationError, np.linalg.LinAlgError):
             raise NotAdmissible("outside the admissible region") from None
         grads = Gradients(nu=g.intercepts, lam=g.loadings, theta=g.unique, d=g.unique_autocorrelation,
@@ -87,15 +91,13 @@ def fit_exact(diary: Diary, spec: ModelSpec, options: FitOptions, monitor: Monit
               notes: list[str] | None = None) -> FitResult:
     """Exact maximum likelihood, started from the stationary window estimate."""
     from models.estimate import (_covariance, _hessian, _interior, _maximise, _newton_polish,
-                                 _parameter_table, _scaled_monitor, _solution_flags, fit)
+                                 _parameter_table, _scaled_monitor, _solution_flags)
     started = time.perf_counter()
     checkpoint(monitor, 0.0, "Window estimate for start values")
-    window_options = replace(options, estimator="stationary", depth=None)
-    start_fit = fit(diary, spec, window_options, _scaled_monitor(monitor, 0.0, 0.3))
     objective = ExactObjective(diary, spec, options)
     layout = objective.layout
-    estimates = {(p.kind, p.from_, p.to): p.estimate for p in start_fit.parameters}
-    theta0 = np.array([estimates[(e.kind, e.from_, e.to)] for e in layout.free_entries])
+    theta0, start_loglik = _window_start(diary, spec, options, objective,
+                                         _scaled_monitor(monitor, 0.0, 0.3))
     checkpoint(monitor, 0.3, "Exact likelihood")
     theta, converged, message, iterations = _maximise(objective, theta0, options.max_iter,
                                                       _scaled_monitor(monitor, 0.3, 0.8))
@@ -117,7 +119,7 @@ def fit_exact(diary: Diary, spec: ModelSpec, options: FitOptions, monitor: Monit
     n = objective.n_rows
     fit_ix = replace(fit_indices(ll, None, 0.0, layout.n_free, 0, n, None, sigma0), df=0, exact=True)
     states = kalman_smooth(objective.values, objective.segment, mats.nu, mats.lam, mats.theta,
-                           list(mats.lagged), mats.psi, mats.d)
+                           list(mats.lagged), mats.psi, mats.d, plan=objective.plan)
     keep = _original_rows(diary, options)
     scores = {
         "filtered": states.filtered_mean[keep].tolist(),
@@ -136,8 +138,27 @@ def fit_exact(diary: Diary, spec: ModelSpec, options: FitOptions, monitor: Monit
         cautions=(CAUTION_IDIOGRAPHIC, CAUTION_EXACT_SE),
         extras={"notes": list(notes or []), "newton_steps": improved, "missing": "filter",
                 "night_gap": options.night_gap, "state_scores": scores,
-                "start_loglik_windows": start_fit.fit.loglik},
+                "start_loglik_windows": start_loglik},
     )
+
+
+def _window_start(diary: Diary, spec: ModelSpec, options: FitOptions, objective: ExactObjective,
+                  monitor: Monitor | None) -> tuple[np.ndarray, float]:
+    """Start values: the stationary window estimate (the optimum only: its standard errors and
+    fit statistics are not needed here), and its window pseudo-log-likelihood."""
+    from models.estimate import _maximise
+
+    window_options = replace(options, estimator="stationary", depth=None)
+    windows = lag_windows(diary.select(spec.items), window_options.window_depth(spec))
+    start = WindowObjective(windows, spec, window_options)
+    if start.n_rows < 2:
+        raise EstimationError("Too few usable lag windows for start values "
+                              f"({start.n_rows}; check the time settings and missing prompts).")
+    theta, _, _, _ = _maximise(start, start.start(), options.max_iter, monitor)
+    position = {(e.kind, e.from_, e.to): n for n, e in enumerate(start.layout.free_entries)}
+    theta0 = np.array([theta[position[(e.kind, e.from_, e.to)]]
+                       for e in objective.layout.free_entries])
+    return theta0, start.loglik(theta)
 
 
 def _original_rows(diary: Diary, options: FitOptions) -> np.ndarray:

@@ -14,14 +14,37 @@ At the first occasion of every segment the state restarts from its stationary di
 so segments are independent. An unanswered item is dropped from the measurement equation at
 that step: its row of Z is set to 0, its residual to 0 and its variance to 1, which leaves
 the update and the likelihood unchanged (a unit-variance zero is a constant factor 1).
-
-Occasions at the same position within their segments are filtered together (numpy arrays
-stacked over segments), so a diary of D days x B prompts takes B vectorised steps; the cost
-is linear in the number of occasions. The likelihood is
+The likelihood is
     log L = -1/2 sum_t [n_t log 2 pi + log det F_t + v_t' F_t^-1 v_t].
-The gradient is the filter differentiated in reverse mode (adjoint recursion through the
-update and prediction steps, then through the Lyapunov equation of P_0), so one gradient
-costs a few evaluations whatever the number of parameters.
+
+Shared covariances. The covariance recursion (P_t, F_t = Z_t P_t Z_t' + H_t, F_t^-1, the
+gain) does not depend on the answers, only on which items were answered at each earlier
+occasion of the segment. `filter_plan` groups the occasions whose segments share that
+history (the same position in the segment, the same answered items so far) into "history
+nodes", once per diary (a prefix tree of the answer patterns): a diary of complete days has
+one node per prompt position, however many days it has. Each evaluation runs the covariance
+recursion once per node, and reuses a node's result when its predicted covariance equals,
+bit for bit, that of an earlier node with the same answered items: the recursion has
+settled into a steady state or a cycle (days joined by nights repeat the same covariances
+after a few days, even with some missed prompts), and everything after it repeats exactly.
+The mean recursion
+    a_t|t = a_t + P_t Z_t' F_t^-1 v_t = C_t a_t-1|t-1 + W_t' (y_t - nu),   a_t+1 = T a_t|t,
+with C_t = (I - W_t' Z_t) T and W_t = F_t^-1 Z_t P_t taken from the node, runs over all
+segments at once, one vectorised step per position in the segment. The log-likelihood is
+the plain filter's, to the last bit; the cost is linear in the number of occasions.
+
+Gradient. The filter is differentiated in reverse mode: the adjoints of the means run back
+per occasion, those of the covariances per node (summing the contributions of all occasions
+that share it), then through the Lyapunov equation of P_0. A reused covariance counts as
+one quantity: its derivative has converged along with it (the gradient agrees with a run
+without reuse to about 1e-15, relative). One gradient costs about two evaluations whatever
+the number of parameters.
+
+Why not statsmodels' state-space filter: it filters one series at a time (a diary of many
+short segments would take one filter run per day, each with its own Python overhead), it
+has no restart to the stationary distribution inside a series, and its gradient is
+numerical (one extra filter run per parameter). statsmodels' filter and smoother are the
+check for this one (tests/test_kalman.py).
 """
 
 from __future__ import annotations
@@ -30,11 +53,13 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.linalg import lapack
 
 from models.errors import EstimationError
 from models.lyapunov import companion, companion_covariance, solve_lyapunov
 
 _LOG_2PI = float(np.log(2.0 * np.pi))
+_CHUNK = 4096   # occasions per block in per-occasion products (bounds temporary memory)
 
 
 @dataclass(frozen=True, eq=False)
@@ -72,6 +97,111 @@ class KalmanGradient:
     innovation: np.ndarray
 
 
+# ----- the plan: answer histories shared by occasions ---------------------------------------
+@dataclass(frozen=True, eq=False)
+class _Step:
+    """The occasions at one position b (0-based) within their segments."""
+
+    b: int
+    rows: np.ndarray     # (S,) occasions, one per segment at least b + 1 long (longest first)
+    node: np.ndarray     # (S,) history node of each occasion
+    lo: int              # this position's history nodes are lo .. hi - 1
+    hi: int
+    n_next: int          # the first n_next segments continue to position b + 1
+    row: int             # the occasion when there is only one (S = 1), else -1
+
+
+@dataclass(frozen=True, eq=False)
+class FilterPlan:
+    """Where the diary's answers are, organised for the filter (see the module docstring).
+
+    Depends only on which values are missing and on the segments, so it is built once per
+    diary and reused for every evaluation. History node j: the answered items
+    `patterns[node_pattern[j]]`, the node of the previous occasion `node_parent[j]` (-1 at a
+    segment start); `occasion_node` (n,) gives each occasion's node.
+    """
+
+    observed: np.ndarray
+    steps: tuple[_Step, ...]
+    patterns: np.ndarray          # (distinct answer patterns, p) bool
+    node_pattern: np.ndarray
+    node_parent: np.ndarray
+    occasion_node: np.ndarray
+    node_order: np.ndarray        # occasions sorted by node
+    later: np.ndarray             # occasions that are not the first of their segment
+
+    @property
+    def n_nodes(self) -> int:
+        return int(self.node_parent.size)
+
+
+def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
+    """Build the plan of `values` (n, p) (NaN = unanswered) with segment ids (n,) (a new
+    segment starts where the id changes)."""
+    y = np.asarray(values, dtype=float)
+    if y.ndim != 2:
+        raise EstimationError("The data must be a table of occasions by items.")
+    n = y.shape[0]
+    starts, lengths = _layout(segment, n)
+    observed = ~np.isnan(y)
+    patterns, pattern_of = np.unique(observed, axis=0, return_inverse=True)
+    pattern_of = pattern_of.reshape(-1)
+    node_prev = np.zeros(starts.size, dtype=np.int64)
+    occasion_node = np.empty(n, dtype=np.int64)
+    steps, pattern_parts, parent_parts = [], [], []
+    total = 0
+    for b in range(int(lengths[0])):
+        n_act = _n_active(lengths, b)
+        rows = starts[:n_act] + b
+        parent = node_prev[:n_act].copy() if b else np.full(n_act, -1, dtype=np.int64)
+        if n_act == 1:
+            inverse, node_pat, node_par = np.zeros(1, dtype=np.int64), pattern_of[rows], parent
+        else:
+            key = np.stack([parent, pattern_of[rows]], axis=1)
+            unique, inverse = np.unique(key, axis=0, return_inverse=True)
+            inverse = inverse.reshape(-1)
+            node_pat, node_par = unique[:, 1], unique[:, 0]
+        node = total + inverse
+        steps.append(_Step(b=b, rows=rows, node=node, lo=total, hi=total + node_pat.size,
+                           n_next=_n_active(lengths, b + 1),
+                           row=int(rows[0]) if n_act == 1 else -1))
+        pattern_parts.append(node_pat)
+        parent_parts.append(node_par)
+        node_prev[:n_act] = node
+        occasion_node[rows] = node
+        total += node_pat.size
+    node_pattern = np.concatenate(pattern_parts)
+    first = np.zeros(n, dtype=bool)
+    first[starts] = True
+    return FilterPlan(observed=observed, steps=tuple(steps), patterns=patterns,
+                      node_pattern=node_pattern, node_parent=np.concatenate(parent_parts),
+                      occasion_node=occasion_node,
+                      node_order=np.argsort(occasion_node, kind="stable"),
+                      later=np.flatnonzero(~first))
+
+
+def _layout(segment: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Segments ordered by decreasing length: (start, length) arrays.
+
+    A segment is a run of consecutive occasions with the same id.
+    """
+    seg = np.asarray(segment).reshape(-1)
+    if seg.size != n:
+        raise EstimationError(f"{n} occasions but {seg.size} segment labels.")
+    if n == 0:
+        raise EstimationError("The diary has no occasions.")
+    starts = np.flatnonzero(np.r_[True, seg[1:] != seg[:-1]])
+    lengths = np.diff(np.r_[starts, n])
+    order = np.argsort(-lengths, kind="stable")
+    return starts[order], lengths[order]
+
+
+def _n_active(lengths: np.ndarray, b: int) -> int:
+    """Number of segments longer than b (lengths sorted in decreasing order)."""
+    return int(np.searchsorted(-lengths, -b, side="left"))
+
+
+# ----- the system matrices ------------------------------------------------------------------
 @dataclass(frozen=True, eq=False)
 class _System:
     z: np.ndarray        # (p, m)
@@ -122,135 +252,271 @@ def _system(loadings, unique, lagged, innovation, unique_autocorrelation,
     return _System(z=z, h=h, t=t, q=q, p0=p0, k=k, kq=kq, ac=ac, theta=theta, d=d)
 
 
-def _layout(segment: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
-    """Segments ordered by decreasing length: (start, length) arrays.
+# ----- per-occasion products with per-node matrices -----------------------------------------
+def _apply(mats: np.ndarray, node: np.ndarray, vecs: np.ndarray, transpose: bool = False
+           ) -> np.ndarray:
+    """out[t] = mats[node[t]] @ vecs[t] (or mats[node[t]]' @ vecs[t]), in blocks of rows."""
+    if mats.shape[0] == 1:
+        return vecs @ (mats[0] if transpose else mats[0].T)
+    spec = "sji,sj->si" if transpose else "sij,sj->si"
+    out = np.empty((vecs.shape[0], mats.shape[2] if transpose else mats.shape[1]))
+    for lo in range(0, vecs.shape[0], _CHUNK):
+        sl = slice(lo, lo + _CHUNK)
+        out[sl] = np.einsum(spec, mats[node[sl]], vecs[sl])
+    return out
 
-    A segment is a run of consecutive occasions with the same id.
+
+def _node_outer_sums(plan: FilterPlan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """(history nodes, a, c): sum over each node's occasions of x_t y_t'."""
+    out = np.zeros((plan.n_nodes, x.shape[1], y.shape[1]))
+    order = plan.node_order
+    for lo in range(0, order.size, _CHUNK):
+        idx = order[lo:lo + _CHUNK]
+        nodes = plan.occasion_node[idx]
+        first = np.flatnonzero(np.r_[True, nodes[1:] != nodes[:-1]])
+        out[nodes[first]] += np.add.reduceat(x[idx][:, :, None] * y[idx][:, None, :], first, axis=0)
+    return out
+
+
+# ----- the covariance recursion, per node ---------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class _Covariances:
+    """The covariance recursion on the distinct nodes ("filter nodes").
+
+    canon (history nodes,) maps each history node to its filter node; a filter node is
+    created from its parent's filtered covariance (parent -1: P_0) and the answered items
+    obs; batches lists (lo, hi) of filter nodes created together, in creation order.
     """
-    seg = np.asarray(segment).reshape(-1)
-    if seg.size != n:
-        raise EstimationError(f"{n} occasions but {seg.size} segment labels.")
-    if n == 0:
-        raise EstimationError("The diary has no occasions.")
-    starts = np.flatnonzero(np.r_[True, seg[1:] != seg[:-1]])
-    lengths = np.diff(np.r_[starts, n])
-    order = np.argsort(-lengths, kind="stable")
-    return starts[order], lengths[order]
+
+    canon: np.ndarray
+    parent: np.ndarray
+    obs: np.ndarray
+    batches: list[tuple[int, int]]
+    p_pred: np.ndarray   # (N, m, m) P_t
+    p_filt: np.ndarray   # (N, m, m) P_t|t
+    minv: np.ndarray     # (N, p, p) F_t^-1
+    zp: np.ndarray       # (N, p, m) Z_t P_t
+    w: np.ndarray        # (N, p, m) F_t^-1 Z_t P_t
+    zb: np.ndarray       # (N, p, m) Z_t (rows of unanswered items 0)
+    logdet: np.ndarray   # (N,) log det F_t
+
+    @property
+    def size(self) -> int:
+        return int(self.parent.size)
 
 
-def _n_active(lengths: np.ndarray, b: int) -> int:
-    """Number of segments longer than b (lengths sorted in decreasing order)."""
-    return int(np.searchsorted(-lengths, -b, side="left"))
+_NOT_PD = "The predicted covariance of the answers is not positive definite at some occasion."
 
 
-def _filter(values, segment, intercepts, sys: _System, store: str | None):
-    """Run the filter; `store` None, "smooth" or "gradient" keeps per-occasion moments."""
-    y = np.asarray(values, dtype=float)
-    n, p = y.shape
-    if y.ndim != 2 or sys.z.shape[0] != p:
-        raise EstimationError(f"The data have {p} items but the model has {sys.z.shape[0]}.")
-    observed = ~np.isnan(y)
-    centred = np.where(observed, y - np.asarray(intercepts, dtype=float).reshape(p), 0.0)
-    starts, lengths = _layout(segment, n)
-    m = sys.t.shape[0]
-    keep: dict[str, np.ndarray] = {}
-    if store is not None:
-        keep = {"a_pred": np.empty((n, m)), "p_pred": np.empty((n, m, m)),
-                "a_filt": np.empty((n, m)), "p_filt": np.empty((n, m, m))}
-    if store == "gradient":
-        keep.update(minv=np.empty((n, p, p)), u=np.empty((n, p)), w=np.empty((n, p, m)),
-                    zp=np.empty((n, p, m)))
-    diag = np.arange(p)
-    loglik = 0.0
-    a = np.zeros((starts.size, m))
-    pm = np.broadcast_to(sys.p0, (starts.size, m, m))
-    for b in range(int(lengths[0])):
-        n_act = _n_active(lengths, b)
-        rows = starts[:n_act] + b
-        a, pm = a[:n_act], pm[:n_act]
-        if b > 0:
-            a = a @ sys.t.T
-            pm = sys.t @ pm @ sys.t.T + sys.q
-        obs = observed[rows]
-        zb = sys.z * obs[:, :, None]                               # (S, p, m)
-        resid = np.where(obs, centred[rows] - a @ sys.z.T, 0.0)    # (S, p)
-        zp = zb @ pm                                                # (S, p, m)
-        f = zp @ zb.transpose(0, 2, 1)
-        f[:, diag, diag] += np.where(obs, sys.h, 1.0)
+def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
+    """Run the covariance recursion over the history nodes of the plan, step by step.
+
+    A history node whose (parent's filter node, answered items) was seen before reuses that
+    filter node; so does one whose predicted covariance equals, bit for bit, that of an
+    earlier filter node with the same answered items (the recursion has reached a steady
+    state or cycle: everything after it repeats exactly).
+    """
+    z, t, q = sys.z, sys.t, sys.q
+    p, m = z.shape
+    cap = plan.n_nodes
+    canon = np.empty(cap, dtype=np.int64)
+    parent, pattern = np.empty(cap, dtype=np.int64), np.empty(cap, dtype=np.int64)
+    p_pred, p_filt = np.empty((cap, m, m)), np.empty((cap, m, m))
+    minv, zp, w = np.empty((cap, p, p)), np.empty((cap, p, m)), np.empty((cap, p, m))
+    logdet = np.empty(cap)
+    zb_pat = z * plan.patterns[:, :, None]
+    hb_pat = np.where(plan.patterns, sys.h, 1.0)
+    node_pattern, node_parent = plan.node_pattern.tolist(), plan.node_parent.tolist()
+    edges: dict[tuple[int, int], int] = {}
+    seen: dict[tuple[int, bytes], int] = {}
+    batches = []
+    size = 0
+    rhs = np.zeros((p, m + p))
+    rhs[:, m:] = np.eye(p)
+    for st in plan.steps:
+        if st.hi - st.lo == 1:      # one node: plain LAPACK (numpy's overhead dominates here)
+            j = st.lo
+            pat = node_pattern[j]
+            cp = int(canon[node_parent[j]]) if st.b else -1
+            hit = edges.get((cp, pat))
+            if hit is None:
+                pm = sys.p0 if cp < 0 else np.dot(np.dot(t, p_filt[cp]), t.T) + q
+                hit = seen.setdefault((pat, pm.tobytes()), size)
+                if hit == size:
+                    zb, zpb = zb_pat[pat], np.dot(zb_pat[pat], pm)
+                    f = np.dot(zpb, zb.T)
+                    f.flat[::p + 1] += hb_pat[pat]
+                    rhs[:, :m] = zpb
+                    chol, x, info = lapack.dposv(f, rhs)
+                    if info != 0:
+                        raise EstimationError(_NOT_PD)
+                    pf = pm - np.dot(zpb.T, x[:, :m])
+                    p_pred[size], p_filt[size] = pm, (pf + pf.T) * 0.5
+                    zp[size], w[size], minv[size] = zpb, x[:, :m], x[:, m:]
+                    logdet[size] = 2.0 * np.log(np.diagonal(chol)).sum()
+                    parent[size], pattern[size] = cp, pat
+                    batches.append((size, size + 1))
+                    size += 1
+                edges[(cp, pat)] = hit
+            canon[j] = hit
+            continue
+        fresh, fresh_parent = [], []
+        for j in range(st.lo, st.hi):
+            cp = int(canon[node_parent[j]]) if st.b else -1
+            hit = edges.get((cp, node_pattern[j]))
+            if hit is None:
+                fresh.append(j)
+                fresh_parent.append(cp)
+            else:
+                canon[j] = hit
+        if not fresh:
+            continue
+        if st.b == 0:
+            pms = np.broadcast_to(sys.p0, (len(fresh), m, m))
+        else:
+            pms = t @ p_filt[fresh_parent] @ t.T + q
+        lo = size
+        for j, cp, pm in zip(fresh, fresh_parent, pms):
+            pat = node_pattern[j]
+            hit = seen.setdefault((pat, pm.tobytes()), size)
+            if hit == size:
+                p_pred[size], parent[size], pattern[size] = pm, cp, pat
+                size += 1
+            canon[j] = edges[(cp, pat)] = hit
+        if size == lo:
+            continue
+        hi = size
+        batches.append((lo, hi))
+        zb, pm = zb_pat[pattern[lo:hi]], p_pred[lo:hi]
+        zpb = zb @ pm
+        f = zpb @ zb.transpose(0, 2, 1)
+        f[:, np.arange(p), np.arange(p)] += hb_pat[pattern[lo:hi]]
         try:
             chol = np.linalg.cholesky(f)
         except np.linalg.LinAlgError:
-            raise EstimationError("The predicted covariance of the answers is not positive "
-                                  "definite at some occasion.") from None
-        if store == "gradient":
-            minv = np.linalg.inv(f)
-            u = np.einsum("spq,sq->sp", minv, resid)
-            w = minv @ zp
-            keep["minv"][rows], keep["u"][rows], keep["w"][rows], keep["zp"][rows] = minv, u, w, zp
+            raise EstimationError(_NOT_PD) from None
+        mi = np.linalg.inv(f)
+        wb = mi @ zpb
+        pf = pm - zpb.transpose(0, 2, 1) @ wb
+        p_filt[lo:hi] = (pf + pf.transpose(0, 2, 1)) * 0.5
+        zp[lo:hi], w[lo:hi], minv[lo:hi] = zpb, wb, mi
+        logdet[lo:hi] = 2.0 * np.log(np.diagonal(chol, axis1=1, axis2=2)).sum(axis=1)
+    if not np.all(np.isfinite(logdet[:size])):
+        raise EstimationError(_NOT_PD)
+    pattern = pattern[:size]
+    return _Covariances(canon=canon, parent=parent[:size], obs=plan.patterns[pattern],
+                        batches=batches, p_pred=p_pred[:size], p_filt=p_filt[:size],
+                        minv=minv[:size], zp=zp[:size], w=w[:size], zb=zb_pat[pattern],
+                        logdet=logdet[:size])
+
+
+# ----- the mean recursion, per occasion ------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class _Pass:
+    """One run of the filter."""
+
+    loglik: float
+    cov: _Covariances
+    node: np.ndarray     # (n,) filter node of each occasion
+    closed: np.ndarray   # (N, m, m) C = (I - W' Zb) T: a_t|t = C a_t-1|t-1 + W' (y_t - nu)
+    a_pred: np.ndarray   # (n, m) a_t
+    a_filt: np.ndarray   # (n, m) a_t|t
+    u: np.ndarray        # (n, p) F_t^-1 v_t
+
+
+def _run(plan: FilterPlan, values, intercepts, sys: _System) -> _Pass:
+    y = np.asarray(values, dtype=float)
+    n, p = y.shape
+    if sys.z.shape[0] != p:
+        raise EstimationError(f"The data have {p} items but the model has {sys.z.shape[0]}.")
+    if plan.observed.shape != y.shape or not np.array_equal(~np.isnan(y), plan.observed):
+        raise EstimationError("The filter plan was built for other data.")
+    observed = plan.observed
+    centred = np.where(observed, y - np.asarray(intercepts, dtype=float).reshape(p), 0.0)
+    cov = _covariances(plan, sys)
+    t, m = sys.t, sys.t.shape[0]
+    node = cov.canon[plan.occasion_node]
+    closed = (np.eye(m) - cov.w.transpose(0, 2, 1) @ cov.zb) @ t
+    a_filt = _apply(cov.w, node, centred, transpose=True)   # W' (y - nu): the part without a_t
+    canon = cov.canon
+    for st in plan.steps[1:]:
+        rows = st.rows
+        if st.row >= 0:
+            a_filt[st.row] += np.dot(closed[canon[st.lo]], a_filt[st.row - 1])
+        elif st.hi - st.lo == 1:
+            a_filt[rows] += a_filt[rows - 1] @ closed[canon[st.lo]].T
         else:
-            sol = np.linalg.solve(f, np.concatenate([resid[:, :, None], zp], axis=2))
-            u, w = sol[:, :, 0], sol[:, :, 1:]
-        logdet = 2.0 * np.log(np.diagonal(chol, axis1=1, axis2=2)).sum()
-        loglik -= 0.5 * (obs.sum() * _LOG_2PI + logdet + np.einsum("sp,sp->", resid, u))
-        if store is not None:
-            keep["a_pred"][rows], keep["p_pred"][rows] = a, pm
-        a = a + np.einsum("spm,sp->sm", zp, u)
-        pm = pm - zp.transpose(0, 2, 1) @ w
-        pm = (pm + pm.transpose(0, 2, 1)) / 2.0
-        if store is not None:
-            keep["a_filt"][rows], keep["p_filt"][rows] = a, pm
-    return float(loglik), keep, starts, lengths, observed
+            a_filt[rows] += np.einsum("sij,sj->si", closed[canon[st.node]], a_filt[rows - 1])
+    a_pred = np.zeros((n, m))
+    a_pred[plan.later] = a_filt[plan.later - 1] @ t.T
+    r = centred - np.where(observed, a_pred @ sys.z.T, 0.0)
+    u = _apply(cov.minv, node, r)
+    logdet = float(cov.logdet @ np.bincount(node, minlength=cov.size))
+    loglik = -0.5 * (observed.sum() * _LOG_2PI + logdet + float(np.vdot(r, u)))
+    return _Pass(loglik=loglik, cov=cov, node=node, closed=closed, a_pred=a_pred, a_filt=a_filt,
+                 u=u)
+
+
+def _prepared(values, segment, plan: FilterPlan | None) -> FilterPlan:
+    return filter_plan(values, segment) if plan is None else plan
 
 
 def kalman_loglik(values: np.ndarray, segment: np.ndarray, intercepts: np.ndarray,
                   loadings: np.ndarray, unique: np.ndarray, lagged: Sequence[np.ndarray],
-                  innovation: np.ndarray, unique_autocorrelation: np.ndarray | None = None
-                  ) -> float:
+                  innovation: np.ndarray, unique_autocorrelation: np.ndarray | None = None,
+                  plan: FilterPlan | None = None) -> float:
     """Exact log-likelihood of the whole diary (see the module docstring).
 
     values (T, p) with NaN for unanswered; segment (T,) ids (a new segment starts where the
     id changes); intercepts nu (p,); loadings Lambda (p, k); unique (p,) the stationary
     unique variances Theta; lagged: q matrices B_1..B_q (k, k) (empty for lag order 0);
     innovation Psi (k, k); unique_autocorrelation: (p,) lag-1 autocorrelations d of the
-    unique parts (0 = none). Raises EstimationError for non-stationary paths or a
-    covariance that is not positive definite.
+    unique parts (0 = none); plan: `filter_plan(values, segment)`, when already built.
+    Raises EstimationError for non-stationary paths or a covariance that is not positive
+    definite.
     """
     sys = _system(loadings, unique, lagged, innovation, unique_autocorrelation)
-    return _filter(values, segment, intercepts, sys, None)[0]
+    return _run(_prepared(values, segment, plan), values, intercepts, sys).loglik
 
 
 def kalman_smooth(values: np.ndarray, segment: np.ndarray, intercepts: np.ndarray,
                   loadings: np.ndarray, unique: np.ndarray, lagged: Sequence[np.ndarray],
-                  innovation: np.ndarray, unique_autocorrelation: np.ndarray | None = None
-                  ) -> KalmanStates:
+                  innovation: np.ndarray, unique_autocorrelation: np.ndarray | None = None,
+                  plan: FilterPlan | None = None) -> KalmanStates:
     """Filtered and smoothed state scores with their variances (arguments as kalman_loglik).
 
     Smoother (Rauch, Tung and Striebel 1965), within each segment, backwards:
         J_t = P_t|t T' P_t+1|t^+ (pseudo-inverse),  a_t|n = a_t|t + J_t (a_t+1|n - a_t+1|t),
         P_t|n = P_t|t + J_t (P_t+1|n - P_t+1|t) J_t'.
     """
+    plan = _prepared(values, segment, plan)
     sys = _system(loadings, unique, lagged, innovation, unique_autocorrelation)
-    loglik, st, starts, lengths, _ = _filter(values, segment, intercepts, sys, "smooth")
-    a_s, p_s = st["a_filt"].copy(), st["p_filt"].copy()
-    for b in range(int(lengths[0]) - 2, -1, -1):
-        rows = starts[:_n_active(lengths, b + 1)] + b
-        pf, pp = st["p_filt"][rows], st["p_pred"][rows + 1]
-        rhs = (pf @ sys.t.T).transpose(0, 2, 1)                     # J' = P_pred^+ T P_f
-        jt = np.linalg.pinv(pp, hermitian=True) @ rhs  # P_pred may be singular (exact items)
-        j = jt.transpose(0, 2, 1)
-        a_s[rows] = st["a_filt"][rows] + np.einsum(
-            "smn,sn->sm", j, a_s[rows + 1] - st["a_pred"][rows + 1])
-        ps = pf + j @ (p_s[rows + 1] - pp) @ jt
-        p_s[rows] = (ps + ps.transpose(0, 2, 1)) / 2.0
+    run = _run(plan, values, intercepts, sys)
+    cov, node = run.cov, run.node
+    # T' P_t+1|t^+ per filter node; P_pred may be singular (exact items): pseudo-inverse
+    tpinv = sys.t.T @ np.linalg.pinv(cov.p_pred, hermitian=True)
+    a_s, p_s = run.a_filt.copy(), cov.p_filt[node]
+    for st in reversed(plan.steps[:-1]):
+        rows = st.rows[:st.n_next]
+        nxt = rows + 1
+        j = cov.p_filt[node[rows]] @ tpinv[node[nxt]]
+        a_s[rows] += np.einsum("smn,sn->sm", j, a_s[nxt] - run.a_pred[nxt])
+        ps = p_s[rows] + j @ (p_s[nxt] - cov.p_pred[node[nxt]]) @ j.transpose(0, 2, 1)
+        p_s[rows] = (ps + ps.transpose(0, 2, 1)) * 0.5
     k = sys.k
-    return KalmanStates(filtered_mean=st["a_filt"][:, :k], filtered_cov=st["p_filt"][:, :k, :k],
-                        smoothed_mean=a_s[:, :k], smoothed_cov=p_s[:, :k, :k], loglik=loglik)
+    return KalmanStates(filtered_mean=run.a_filt[:, :k], filtered_cov=cov.p_filt[node][:, :k, :k],
+                        smoothed_mean=a_s[:, :k], smoothed_cov=p_s[:, :k, :k], loglik=run.loglik)
+
+
+def _sym(x: np.ndarray) -> np.ndarray:
+    return (x + x.transpose(0, 2, 1)) * 0.5
 
 
 def kalman_gradient(values: np.ndarray, segment: np.ndarray, intercepts: np.ndarray,
                     loadings: np.ndarray, unique: np.ndarray, lagged: Sequence[np.ndarray],
                     innovation: np.ndarray, unique_autocorrelation: np.ndarray | None = None,
-                    autocorrelated: np.ndarray | None = None) -> KalmanGradient:
+                    autocorrelated: np.ndarray | None = None,
+                    plan: FilterPlan | None = None) -> KalmanGradient:
     """Log-likelihood and its gradient with respect to every element of the model matrices.
 
     Arguments as kalman_loglik; `autocorrelated` (p,) bool marks items whose unique part is
@@ -259,54 +525,80 @@ def kalman_gradient(values: np.ndarray, segment: np.ndarray, intercepts: np.ndar
     (F = Z P Z' + H, M = F^-1: dM = -M dF M, d log det F = tr(M dF)); the stationary
     start P_0 = A P_0 A' + Q_0 by its adjoint Lyapunov equation W = A' W A + G, which gives
     dQ_0 = W and dA = 2 W A P_0 (G the symmetrised gradient with respect to P_0).
+    The adjoints of the means (per occasion) do not involve those of the covariances, so
+    they run first: with C_t = (I - W_t' Z_t) T, abar_t|t = C_t+1' abar_t+1|t+1 +
+    T' Z' u_t+1. Each filter node then collects the sums over its occasions, and the
+    symmetric adjoint S of P_t|t runs back as S_parent += C' S C + T' E T (only symmetric
+    parts reach the gradient, since every covariance is symmetric).
     """
+    plan = _prepared(values, segment, plan)
     sys = _system(loadings, unique, lagged, innovation, unique_autocorrelation, autocorrelated)
-    loglik, st, starts, lengths, observed = _filter(values, segment, intercepts, sys, "gradient")
+    run = _run(plan, values, intercepts, sys)
+    cov, node, closed = run.cov, run.node, run.closed
     z, t = sys.z, sys.t
+    observed = plan.observed
     n, p = observed.shape
     m = t.shape[0]
-    zbar, tbar, qbar, p0bar = np.zeros((p, m)), np.zeros((m, m)), np.zeros((m, m)), np.zeros((m, m))
-    hbar, nubar = np.zeros(p), np.zeros(p)
-    abar_f = np.zeros((starts.size, m))
-    pbar_f = np.zeros((starts.size, m, m))
-    for b in range(int(lengths[0]) - 1, -1, -1):
-        n_act = _n_active(lengths, b)
-        rows = starts[:n_act] + b
-        af_bar, pf_bar = abar_f[:n_act], pbar_f[:n_act]
-        obs = observed[rows]
-        a, pm = st["a_pred"][rows], st["p_pred"][rows]
-        minv, u, w, zp = st["minv"][rows], st["u"][rows], st["w"][rows], st["zp"][rows]
-        zb = z * obs[:, :, None]
-        # a_f = a + ZP' u and P_f = P - ZP' M ZP
-        abar = af_bar.copy()
-        ubar = np.einsum("spm,sm->sp", zp, af_bar)
-        zpbar = u[:, :, None] * af_bar[:, None, :] - w @ (pf_bar + pf_bar.transpose(0, 2, 1))
-        pbar = pf_bar.copy()
-        fbar = w @ pf_bar @ w.transpose(0, 2, 1)
-        # u = M r, and the likelihood term -1/2 (log det F + r' M r)
-        mu = np.einsum("spq,sq->sp", minv, ubar)
-        rbar = mu - u
-        fbar += -mu[:, :, None] * u[:, None, :] - 0.5 * minv + 0.5 * u[:, :, None] * u[:, None, :]
-        # F = Zb P Zb' + Hb and ZP = Zb P
-        hbar += np.sum(obs * np.diagonal(fbar, axis1=1, axis2=2), axis=0)
-        zbbar = (fbar @ zb @ pm.transpose(0, 2, 1) + fbar.transpose(0, 2, 1) @ zb @ pm
-                 + zpbar @ pm.transpose(0, 2, 1))
-        pbar += zb.transpose(0, 2, 1) @ (fbar @ zb + zpbar)
-        # r = obs * (y - nu - Z a)
-        rb = obs * rbar
-        nubar -= rb.sum(axis=0)
-        zbar += np.sum(obs[:, :, None] * zbbar, axis=0) - rb.T @ a
-        abar -= rb @ z
-        if b > 0:  # a = T a_f(prev), P = T P_f(prev) T' + Q
-            af_prev, pf_prev = st["a_filt"][rows - 1], st["p_filt"][rows - 1]
-            abar_f[:n_act] = abar @ t
-            pbar_f[:n_act] = t.T @ pbar @ t
-            tbar += abar.T @ af_prev + np.sum(
-                pbar @ t @ pf_prev.transpose(0, 2, 1) + pbar.transpose(0, 2, 1) @ t @ pf_prev, axis=0)
-            qbar += pbar.sum(axis=0)
-        else:      # segment start: P = P_0
-            p0bar += pbar.sum(axis=0)
-    return _to_matrices(sys, loglik, zbar, hbar, nubar, tbar, qbar, p0bar, len(lagged))
+    # means: a_t|t = a_t + (ZP)' u, u = M r, r = obs * (y - nu - Z a_t), a_t+1 = T a_t|t
+    zu = run.u @ z
+    tzu = zu @ t
+    afbar = np.zeros((n, m))                     # adjoint of a_t|t
+    steps = plan.steps
+    for st in reversed(steps[:-1]):
+        if not st.n_next:
+            continue
+        after = steps[st.b + 1]
+        if after.row >= 0:
+            r = after.row
+            afbar[r - 1] = np.dot(afbar[r], closed[cov.canon[after.lo]]) + tzu[r]
+            continue
+        rows = st.rows[:st.n_next]
+        nxt = rows + 1
+        if after.hi - after.lo == 1:
+            afbar[rows] = afbar[nxt] @ closed[cov.canon[after.lo]] + tzu[nxt]
+        else:
+            afbar[rows] = np.einsum("sji,sj->si", closed[node[nxt]], afbar[nxt]) + tzu[nxt]
+    mu = _apply(cov.w, node, afbar)              # M ZP abar_t|t
+    rb = np.where(observed, mu - run.u, 0.0)     # adjoint of r
+    abar = afbar - rb @ z                        # adjoint of a_t
+    nubar = -rb.sum(axis=0)
+    zbar = -rb.T @ run.a_pred
+    tbar = abar[plan.later].T @ run.a_filt[plan.later - 1]
+    # covariances: the sums over each filter node's occasions of the adjoints of ZP and F
+    size = cov.size
+    s_zp, s_f = np.zeros((size, p, m)), np.zeros((size, p, p))
+    np.add.at(s_zp, cov.canon, _node_outer_sums(plan, run.u, afbar))
+    np.add.at(s_f, cov.canon, _node_outer_sums(plan, 0.5 * run.u - mu, run.u))
+    s_f -= 0.5 * np.bincount(node, minlength=size)[:, None, None] * cov.minv
+    zb, w = cov.zb, cov.w
+    e = _sym(zb.transpose(0, 2, 1) @ (s_f @ zb + s_zp))
+    d = t.T @ e @ t
+    s = np.zeros((size, m, m))                   # symmetric adjoint of P_t|t
+    parent = cov.parent
+    for lo, hi in reversed(cov.batches):
+        if parent[lo] < 0:
+            continue
+        if hi - lo == 1:
+            c = closed[lo]
+            s[parent[lo]] += np.dot(np.dot(c.T, s[lo]), c)
+            s[parent[lo]] += d[lo]
+        else:
+            c = closed[lo:hi]
+            np.add.at(s, parent[lo:hi], c.transpose(0, 2, 1) @ s[lo:hi] @ c + d[lo:hi])
+    ell = np.eye(m) - w.transpose(0, 2, 1) @ zb
+    pbar = ell.transpose(0, 2, 1) @ s @ ell + e  # adjoint of P_t
+    fbar = w @ s @ w.transpose(0, 2, 1) + s_f
+    zpbar = s_zp - 2.0 * w @ s
+    pm = cov.p_pred
+    hbar = np.sum(cov.obs * np.diagonal(fbar, axis1=1, axis2=2), axis=0)
+    zbbar = (fbar + fbar.transpose(0, 2, 1)) @ zb @ pm + zpbar @ pm
+    zbar += np.sum(cov.obs[:, :, None] * zbbar, axis=0)
+    later = parent >= 0
+    pl = pbar[later]
+    tbar += 2.0 * np.sum(pl @ t @ cov.p_filt[parent[later]], axis=0)
+    qbar = pl.sum(axis=0)
+    p0bar = pbar[~later].sum(axis=0)
+    return _to_matrices(sys, run.loglik, zbar, hbar, nubar, tbar, qbar, p0bar, len(lagged))
 
 
 def _to_matrices(sys: _System, loglik, zbar, hbar, nubar, tbar, qbar, p0bar, q: int

@@ -9,7 +9,7 @@ import pytest
 from scipy.stats import multivariate_normal
 
 from models.estimate import fit
-from models.exact import ExactObjective, _join_days
+from models.exact import ExactObjective, _join_days, _window_start
 from models.simulate import simulate_diary
 from models.spec import FitOptions, make_spec
 
@@ -39,6 +39,20 @@ def test_exact_and_window_estimates_agree_on_long_complete_series():
     theta_w = np.array([start[(e.kind, e.from_, e.to)] for e in objective.layout.free_entries])
     assert exact.fit.loglik >= objective.loglik(theta_w) - 1e-6
     assert exact.fit.bic == pytest.approx(-2 * exact.fit.loglik + exact.fit.n_free * np.log(exact.fit.n_obs))
+
+
+def test_start_values_are_the_stationary_window_estimate():
+    # DESIGN.md section 2: the exact fit starts from the window estimate (its optimum only;
+    # the window fit's final Newton steps move it by less than the tolerance below).
+    diary = simulate_diary(SPEC, days=40, prompts_per_day=8, p_missed=0.1, seed=5, **TRUE)
+    options = FitOptions(estimator="exact")
+    objective = ExactObjective(diary, SPEC, options)
+    theta0, start_loglik = _window_start(diary, SPEC, options, objective, None)
+    window = fit(diary, SPEC)
+    estimate = {(p.kind, p.from_, p.to): p.estimate for p in window.parameters}
+    expected = [estimate[(e.kind, e.from_, e.to)] for e in objective.layout.free_entries]
+    np.testing.assert_allclose(theta0, expected, rtol=1e-3, atol=1e-4)
+    assert start_loglik == pytest.approx(window.fit.loglik, rel=1e-7)
 
 
 def test_night_gap_joins_days_with_missed_prompts():

@@ -25,7 +25,7 @@ from statsmodels.tsa.statespace.dynamic_factor import DynamicFactor
 from statsmodels.tsa.statespace.tests.results import results_dynamic_factor, results_varmax
 
 from models.errors import EstimationError
-from models.kalman import kalman_gradient, kalman_loglik, kalman_smooth
+from models.kalman import filter_plan, kalman_gradient, kalman_loglik, kalman_smooth
 
 
 # --------------------------------------------------------------------------- (a) e1 data
@@ -278,3 +278,98 @@ def test_gradient_with_an_item_measured_without_error():
     expected = multivariate_normal(mean[seen], cov[np.ix_(seen, seen)]).logpdf(y.ravel()[seen])
     got = kalman_loglik(y, np.repeat([0, 1], 6), NU, lam, theta, lagged, PSI2)
     assert got == pytest.approx(expected, rel=1e-9)
+
+
+# --------------------------------------------------------------------------- shared nodes
+# Many days share the covariance recursion (the same answered items at the same positions);
+# a long joined series reaches a steady state that is reused once it repeats bit for bit.
+# Both shortcuts must leave every number unchanged: checked against statsmodels'
+# DynamicFactor (an independent filter and smoother) run day by day and on the joined series.
+LAM_SM = np.array([[1.0, 0.0], [0.8, 0.3], [0.0, 1.1]])
+NU_SM = np.array([1.0, -0.5, 2.0])
+THETA_SM = np.array([0.5, 0.4, 0.6])
+B_SM = np.array([[0.5, 0.2], [-0.1, 0.4]])
+ARGS_SM = dict(intercepts=NU_SM, loadings=LAM_SM, unique=THETA_SM, lagged=[B_SM],
+               innovation=np.eye(2))
+
+
+def _days(n_days: int, prompts: int, seed: int) -> np.ndarray:
+    """Days of `prompts` occasions: most complete, some with missed prompts or skipped items."""
+    rng = np.random.default_rng(seed)
+    y = rng.normal(size=(n_days * prompts, 3)) * 1.3 + NU_SM
+    y[rng.random(y.shape[0]) < 0.1] = np.nan
+    y[rng.random(y.shape) < 0.05] = np.nan
+    y[:3 * prompts] = rng.normal(size=(3 * prompts, 3)) + NU_SM   # three complete days
+    return y
+
+
+def _statsmodels(y: np.ndarray):
+    # DynamicFactor: two factors, VAR(1), identity factor innovations, a constant per item;
+    # parameters: loadings row by row, constants, unique variances, VAR coefficients.
+    model = DynamicFactor(y, k_factors=2, factor_order=1, exog=np.ones((y.shape[0], 1)))
+    return model.smooth(np.r_[LAM_SM.ravel(), NU_SM, THETA_SM, B_SM.ravel()])
+
+
+def test_days_sharing_covariances_match_statsmodels_day_by_day():
+    prompts = 6
+    y = _days(12, prompts, seed=11)
+    segment = np.repeat(np.arange(12), prompts)
+    st = kalman_smooth(y, segment, **ARGS_SM)
+    total = 0.0
+    for d in range(12):
+        day = segment == d
+        ref = _statsmodels(y[day])
+        total += ref.llf
+        assert np.allclose(st.filtered_mean[day], ref.filtered_state.T, atol=1e-10)
+        assert np.allclose(st.smoothed_mean[day], ref.smoothed_state.T, atol=1e-10)
+        assert np.allclose(st.smoothed_cov[day], ref.smoothed_state_cov.transpose(2, 0, 1),
+                           atol=1e-10)
+    assert st.loglik == pytest.approx(total, rel=1e-10)
+    plan = filter_plan(y, segment)
+    assert plan.n_nodes < y.shape[0]          # the complete days share their nodes
+    assert kalman_loglik(y, segment, plan=plan, **ARGS_SM) == pytest.approx(total, rel=1e-10)
+
+
+def test_joined_days_reach_a_reused_steady_state_and_match_statsmodels():
+    # Days joined by nights of 4 missed prompts: one segment of 100 occasions. Complete days
+    # repeat the same covariances once the recursion has converged.
+    prompts, night = 6, 4
+    days = _days(10, prompts, seed=12)
+    days[prompts * 5:] = np.random.default_rng(4).normal(size=(prompts * 5, 3)) + NU_SM
+    y = np.vstack([np.vstack([days[d * prompts:(d + 1) * prompts], np.full((night, 3), np.nan)])
+                   for d in range(10)])[:-night]
+    segment = np.zeros(y.shape[0], int)
+    ref = _statsmodels(y)
+    st = kalman_smooth(y, segment, **ARGS_SM)
+    assert st.loglik == pytest.approx(ref.llf, rel=1e-10)
+    assert np.allclose(st.smoothed_mean, ref.smoothed_state.T, atol=1e-10)
+    assert np.allclose(st.smoothed_cov, ref.smoothed_state_cov.transpose(2, 0, 1), atol=1e-10)
+    # the steady state was found and reused: at least the last two complete day-and-night
+    # cycles add no new covariances
+    from models.kalman import _covariances, _system
+    cov = _covariances(filter_plan(y, segment), _system(LAM_SM, THETA_SM, [B_SM], np.eye(2), None))
+    assert cov.size <= y.shape[0] - 2 * (prompts + night)
+
+
+def test_gradient_with_shared_and_reused_covariances():
+    # Both shortcuts inside the gradient: days sharing nodes, and a joined series whose
+    # complete tail repeats its covariances (numerical differences, common practice).
+    lam, lagged, psi, _ = CASES["2 states, lag 2"]
+    rng = np.random.default_rng(21)
+    y = rng.normal(size=(60, 3)) * 1.4 + NU
+    y[[3, 10, 17, 24]] = np.nan
+    y[[5, 12, 30], [0, 2, 1]] = np.nan
+    _flat_gradient_check(lam, lagged, psi, np.zeros(3), THETA, y, np.repeat(np.arange(10), 6))
+    joined = np.vstack([y[:30], np.full((5, 3), np.nan), rng.normal(size=(45, 3)) + NU])
+    _flat_gradient_check(lam, lagged, psi, np.zeros(3), THETA, joined, np.zeros(80, int))
+    from models.kalman import _covariances, _system   # the reuse did happen here
+    sys = _system(lam, THETA, lagged, psi, None)
+    assert _covariances(filter_plan(joined, np.zeros(80)), sys).size < 70
+
+
+def test_a_plan_built_for_other_data_is_refused():
+    y = np.random.default_rng(2).normal(size=(8, 3))
+    plan = filter_plan(y, np.zeros(8))
+    y[2, 1] = np.nan
+    with pytest.raises(EstimationError, match="other data"):
+        kalman_loglik(y, np.zeros(8), NU, LAM1, THETA, [np.array([[0.5]])], np.eye(1), plan=plan)
