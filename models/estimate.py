@@ -12,15 +12,15 @@ from __future__ import annotations
 import time
 
 import numpy as np
-from scipy.optimize import minimize
 from threadpoolctl import threadpool_limits
 
 from models.diary import Diary
 from models.errors import EstimationError, SpecError
 from models.fitindices import fit_indices
-from models.implied import NotAdmissible
 from models.lyapunov import spectral_radius, stationary_covariance
 from models.objective import WindowObjective
+from models.optimise import (covariance_from_hessian, interior, maximise, newton_polish,
+                              observed_hessian, parameter_scales)
 from models.progress import Monitor, checkpoint
 from models.results import FitResult, Parameter
 from models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec
@@ -69,14 +69,14 @@ def estimate_windows(objective: WindowObjective, notes: list[str], n_occasions: 
                      f"{MIN_WINDOWS_PER_PARAMETER:g} per parameter): estimates will be unstable.")
     checkpoint(monitor, 0.02, "Start values")
     theta0 = objective.start()
-    theta, converged, message, iterations = _maximise(objective, theta0, options.max_iter, monitor)
+    theta, converged, message, iterations = maximise(objective, theta0, options.max_iter, monitor)
     checkpoint(monitor, 0.8, "Standard errors")
-    hessian = _hessian(objective, theta, monitor)
-    theta, hessian, improved = _newton_polish(objective, theta, hessian)
+    hessian = observed_hessian(objective, theta, monitor)
+    theta, hessian, improved = newton_polish(objective, theta, hessian)
     ll, grad = objective.loglik_and_gradient(theta)
-    free_interior = _interior(objective, theta)
-    cov, se_ok = _covariance(hessian, free_interior)
-    scale = np.abs(_scales(objective, theta0))
+    free_interior = interior(objective, theta)
+    cov, se_ok = covariance_from_hessian(hessian, free_interior)
+    scale = np.abs(parameter_scales(objective, theta0))
     grad_ok = np.max(np.abs(grad * scale)[free_interior]) / n < 1e-3 if free_interior.any() else True
     if converged and not grad_ok:
         converged, message = False, "the gradient is not close to zero at the final estimate"
@@ -92,14 +92,14 @@ def estimate_windows(objective: WindowObjective, notes: list[str], n_occasions: 
     fit = fit_indices(ll, ll_sat, objective.data.independence_loglik(), n_free, width, n,
                       sigma_sat, imp.sigma)
     rho = spectral_radius(list(mats.lagged)) if layout.q else 0.0
-    k, p = layout.k, layout.p
+    k = layout.k
     if layout.q and rho < 1.0:
         latent = stationary_covariance(list(mats.lagged), mats.psi)
     else:
         latent = imp.phi_xi[:k, :k]
     sigma0 = mats.lam @ latent @ mats.lam.T + np.diag(mats.theta)
-    flags += _solution_flags(objective, theta, rho, sigma0)
-    parameters = _parameter_table(objective, theta, cov, latent, sigma0)
+    flags += solution_flags(objective, theta, rho, sigma0)
+    parameters = parameter_table(objective, theta, cov, latent, sigma0)
     checkpoint(monitor, 1.0, "Done")
     return FitResult(
         spec=spec, options=options, estimator=options.estimator, converged=converged,
@@ -113,169 +113,8 @@ def estimate_windows(objective: WindowObjective, notes: list[str], n_occasions: 
     )
 
 
-def _scaled_monitor(monitor: Monitor | None, lo: float, hi: float) -> Monitor | None:
-    """A monitor that maps 0..1 of a sub-task onto lo..hi of the whole."""
-    return None if monitor is None else _ScaledMonitor(monitor, lo, hi)
-
-
-class _ScaledMonitor:
-    def __init__(self, monitor: Monitor, lo: float, hi: float):
-        self.monitor, self.lo, self.hi = monitor, lo, hi
-
-    def report(self, fraction: float, message: str) -> None:
-        self.monitor.report(self.lo + (self.hi - self.lo) * fraction, message)
-
-    def cancelled(self) -> bool:
-        return self.monitor.cancelled()
-
-
-# ----- optimisation ------------------------------------------------------------------------
-def _scales(objective: WindowObjective, theta0: np.ndarray) -> np.ndarray:
-    """Typical size of each parameter, so the optimiser works on numbers near 1."""
-    sd = np.sqrt(np.maximum(objective.item_var, 1e-8))
-    out = np.empty_like(theta0)
-    for n, e in enumerate(objective.layout.free_entries):
-        if e.block == "nu":
-            out[n] = sd[e.index[0]]
-        elif e.block == "theta":
-            out[n] = objective.item_var[e.index[0]]
-        elif e.block in ("psi", "pv", "phif"):
-            out[n] = max(abs(theta0[n]), 1e-3 * float(np.mean(objective.item_var)))
-        elif e.block == "lam":
-            out[n] = max(abs(theta0[n]), 0.1)
-        elif e.block == "c":
-            out[n] = float(np.sqrt(np.mean(objective.item_var)))
-        else:
-            out[n] = 0.5
-    return out
-
-
-def _maximise(objective: WindowObjective, theta0: np.ndarray, max_iter: int,
-              monitor: Monitor | None) -> tuple[np.ndarray, bool, str, int]:
-    n = max(objective.n_rows, 1)
-    s = _scales(objective, theta0)
-    penalty = [abs(objective.loglik(theta0)) / n * 10.0 + 1e3]
-    count = [0]
-
-    def f(x: np.ndarray) -> tuple[float, np.ndarray]:
-        try:
-            ll, g = objective.loglik_and_gradient(x * s)
-        except (NotAdmissible, np.linalg.LinAlgError):
-            return penalty[0], np.zeros_like(x)
-        return -ll / n, -g * s / n
-
-    def callback(xk: np.ndarray) -> None:
-        count[0] += 1
-        checkpoint(monitor, 0.05 + 0.75 * (1 - 1 / (1 + count[0] / 40)), f"Iteration {count[0]}")
-
-    bounds = [(None if lo is None else lo / sc, None if hi is None else hi / sc)
-              for (lo, hi), sc in zip(objective.layout.bounds(), s)]
-    res = minimize(f, theta0 / s, jac=True, method="L-BFGS-B", bounds=bounds, callback=callback,
-                   options={"maxiter": max_iter, "maxcor": 30, "ftol": 1e-12, "gtol": 1e-8})
-    theta = res.x * s
-    try:
-        objective.loglik(theta)
-    except NotAdmissible:
-        raise EstimationError("The optimiser ended outside the admissible region; try fewer free "
-                              "paths or the other estimator.") from None
-    ok = bool(res.success) or "ABNORMAL" in str(res.message).upper()
-    return theta, ok, str(res.message), int(res.nit)
-
-
-def _interior(objective: WindowObjective, theta: np.ndarray) -> np.ndarray:
-    """Free parameters not held at a bound."""
-    out = np.ones(theta.size, dtype=bool)
-    for n, (lo, hi) in enumerate(objective.layout.bounds()):
-        scale = max(abs(theta[n]), 1.0)
-        if lo is not None and theta[n] - lo <= 1e-7 * max(objective.item_var.mean(), 1.0):
-            out[n] = False
-        if hi is not None and hi - theta[n] <= 1e-9 * scale:
-            out[n] = False
-    return out
-
-
-def _hessian(objective: WindowObjective, theta: np.ndarray, monitor: Monitor | None) -> np.ndarray:
-    """Observed information by forward differences of the analytic gradient (one gradient per
-    parameter; steps 1e-6 x the parameter's scale, backwards where a step leaves the region)."""
-    m = theta.size
-    h_mat = np.zeros((m, m))
-    scale = _scales(objective, theta)
-    g0 = objective.loglik_and_gradient(theta)[1]
-    for i in range(m):
-        step = 1e-6 * max(abs(theta[i]), scale[i])
-        e = np.zeros(m)
-        e[i] = step
-        try:
-            h_mat[:, i] = (objective.loglik_and_gradient(theta + e)[1] - g0) / step
-        except (NotAdmissible, np.linalg.LinAlgError):
-            h_mat[:, i] = (g0 - objective.loglik_and_gradient(theta - e)[1]) / step
-        if i % 10 == 0:
-            checkpoint(monitor, 0.8 + 0.1 * i / m, "Standard errors")
-    return 0.5 * (h_mat + h_mat.T)
-
-
-def _newton_polish(objective: WindowObjective, theta: np.ndarray, hessian: np.ndarray,
-                   steps: int = 3) -> tuple[np.ndarray, np.ndarray, int]:
-    """Newton steps on the interior parameters while they raise the log-likelihood."""
-    done = 0
-    ll, grad = objective.loglik_and_gradient(theta)
-    for _ in range(steps):
-        free = _interior(objective, theta)
-        if not free.any():
-            break
-        sub = hessian[np.ix_(free, free)]
-        try:
-            np.linalg.cholesky(-sub)
-        except np.linalg.LinAlgError:
-            break
-        step = np.zeros_like(theta)
-        step[free] = -np.linalg.solve(sub, grad[free])
-        trial = theta + step
-        try:
-            ll_new, grad_new = objective.loglik_and_gradient(trial)
-        except NotAdmissible:
-            break
-        if not ll_new > ll - 1e-12 * abs(ll) or not np.all(_within_bounds(objective, trial)):
-            break
-        theta, ll, grad = trial, ll_new, grad_new
-        done += 1
-        if np.max(np.abs(step)) < 1e-10:
-            break
-    return theta, hessian, done
-
-
-def _within_bounds(objective: WindowObjective, theta: np.ndarray) -> np.ndarray:
-    out = np.ones(theta.size, dtype=bool)
-    for n, (lo, hi) in enumerate(objective.layout.bounds()):
-        out[n] = (lo is None or theta[n] >= lo) and (hi is None or theta[n] <= hi)
-    return out
-
-
-def _covariance(hessian: np.ndarray, interior: np.ndarray) -> tuple[np.ndarray, bool]:
-    """(-H)^-1 over interior parameters; NaN rows for parameters at a bound."""
-    m = hessian.shape[0]
-    cov = np.full((m, m), np.nan)
-    idx = np.flatnonzero(interior)
-    if idx.size == 0:
-        return cov, True
-    info = -hessian[np.ix_(idx, idx)]
-    try:
-        np.linalg.cholesky(info)
-    except np.linalg.LinAlgError:
-        w, v = np.linalg.eigh(info)
-        ok = w > 1e-10 * max(abs(w).max(), 1e-300)
-        inv = (v[:, ok] / w[ok]) @ v[:, ok].T
-        cov[np.ix_(idx, idx)] = inv
-        bad = np.abs(v[:, ~ok]).max(axis=1) > 1e-3 if (~ok).any() else np.zeros(idx.size, bool)
-        cov[idx[bad], :] = np.nan
-        cov[:, idx[bad]] = np.nan
-        return cov, False
-    cov[np.ix_(idx, idx)] = np.linalg.inv(info)
-    return cov, True
-
-
 # ----- reporting ---------------------------------------------------------------------------
-def _solution_flags(objective: WindowObjective, theta: np.ndarray, rho: float,
+def solution_flags(objective: WindowObjective, theta: np.ndarray, rho: float,
                     sigma0: np.ndarray) -> list[str]:
     flags = []
     layout = objective.layout
@@ -296,7 +135,7 @@ def _solution_flags(objective: WindowObjective, theta: np.ndarray, rho: float,
     return flags
 
 
-def _parameter_table(objective: WindowObjective, theta: np.ndarray, cov: np.ndarray,
+def parameter_table(objective: WindowObjective, theta: np.ndarray, cov: np.ndarray,
                      latent: np.ndarray, sigma0: np.ndarray) -> list[Parameter]:
     layout = objective.layout
     free_pos = {id(e): n for n, e in enumerate(layout.free_entries)}

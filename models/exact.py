@@ -18,14 +18,17 @@ from dataclasses import replace
 import numpy as np
 
 from models.diary import Diary
+from models.estimate import parameter_table, solution_flags
 from models.errors import EstimationError
 from models.fitindices import fit_indices
 from models.implied import NotAdmissible
 from models.kalman import filter_plan, kalman_gradient, kalman_loglik, kalman_smooth
 from models.lyapunov import spectral_radius, stationary_covariance
 from models.objective import WindowObjective
+from models.optimise import (covariance_from_hessian, interior, maximise, newton_polish,
+                              observed_hessian)
 from models.parameters import Gradients, ParameterLayout
-from models.progress import Monitor, checkpoint
+from models.progress import Monitor, checkpoint, scaled
 from models.results import CAUTION_IDIOGRAPHIC, FitResult
 from models.spec import FitOptions, ModelSpec
 from models.windows import lag_windows
@@ -90,23 +93,21 @@ def _join_days(values: np.ndarray, segment: np.ndarray, gap: int) -> tuple[np.nd
 def fit_exact(diary: Diary, spec: ModelSpec, options: FitOptions, monitor: Monitor | None = None,
               notes: list[str] | None = None) -> FitResult:
     """Exact maximum likelihood, started from the stationary window estimate."""
-    from models.estimate import (_covariance, _hessian, _interior, _maximise, _newton_polish,
-                                 _parameter_table, _scaled_monitor, _solution_flags)
     started = time.perf_counter()
     checkpoint(monitor, 0.0, "Window estimate for start values")
     objective = ExactObjective(diary, spec, options)
     layout = objective.layout
     theta0, start_loglik = _window_start(diary, spec, options, objective,
-                                         _scaled_monitor(monitor, 0.0, 0.3))
+                                         scaled(monitor, 0.0, 0.3))
     checkpoint(monitor, 0.3, "Exact likelihood")
-    theta, converged, message, iterations = _maximise(objective, theta0, options.max_iter,
-                                                      _scaled_monitor(monitor, 0.3, 0.8))
+    theta, converged, message, iterations = maximise(objective, theta0, options.max_iter,
+                                                      scaled(monitor, 0.3, 0.8))
     checkpoint(monitor, 0.8, "Standard errors")
-    hessian = _hessian(objective, theta, _scaled_monitor(monitor, 0.8, 0.95))
-    theta, hessian, improved = _newton_polish(objective, theta, hessian)
+    hessian = observed_hessian(objective, theta, scaled(monitor, 0.8, 0.95))
+    theta, hessian, improved = newton_polish(objective, theta, hessian)
     ll, grad = objective.loglik_and_gradient(theta)
-    interior = _interior(objective, theta)
-    cov, se_ok = _covariance(hessian, interior)
+    free_interior = interior(objective, theta)
+    cov, se_ok = covariance_from_hessian(hessian, free_interior)
     flags: list[str] = []
     if converged and not se_ok:
         flags.append("The information matrix is not positive definite: the model may not be "
@@ -115,7 +116,7 @@ def fit_exact(diary: Diary, spec: ModelSpec, options: FitOptions, monitor: Monit
     rho = spectral_radius(list(mats.lagged)) if layout.q else 0.0
     latent = stationary_covariance(list(mats.lagged), mats.psi) if layout.q else mats.psi
     sigma0 = mats.lam @ latent @ mats.lam.T + np.diag(mats.theta)
-    flags += _solution_flags(objective, theta, rho, sigma0)
+    flags += solution_flags(objective, theta, rho, sigma0)
     n = objective.n_rows
     fit_ix = replace(fit_indices(ll, None, 0.0, layout.n_free, 0, n, None, sigma0), df=0, exact=True)
     states = kalman_smooth(objective.values, objective.segment, mats.nu, mats.lam, mats.theta,
@@ -131,7 +132,7 @@ def fit_exact(diary: Diary, spec: ModelSpec, options: FitOptions, monitor: Monit
     return FitResult(
         spec=spec, options=options, estimator="exact", converged=converged, message=message,
         iterations=iterations, seconds=time.perf_counter() - started, n_windows=n,
-        n_occasions=diary.n_occasions, parameters=tuple(_parameter_table(objective, theta, cov, latent, sigma0)),
+        n_occasions=diary.n_occasions, parameters=tuple(parameter_table(objective, theta, cov, latent, sigma0)),
         fit=fit_ix, loadings=mats.lam, intercepts=mats.nu, unique=mats.theta,
         lagged=tuple(mats.lagged[l] for l in range(layout.q)), innovation=mats.psi, latent_cov=latent,
         r_squared=1.0 - mats.theta / np.diag(sigma0), spectral_radius=rho, flags=tuple(flags),
@@ -146,15 +147,13 @@ def _window_start(diary: Diary, spec: ModelSpec, options: FitOptions, objective:
                   monitor: Monitor | None) -> tuple[np.ndarray, float]:
     """Start values: the stationary window estimate (the optimum only: its standard errors and
     fit statistics are not needed here), and its window pseudo-log-likelihood."""
-    from models.estimate import _maximise
-
     window_options = replace(options, estimator="stationary", depth=None)
     windows = lag_windows(diary.select(spec.items), window_options.window_depth(spec))
     start = WindowObjective(windows, spec, window_options)
     if start.n_rows < 2:
         raise EstimationError("Too few usable lag windows for start values "
                               f"({start.n_rows}; check the time settings and missing prompts).")
-    theta, _, _, _ = _maximise(start, start.start(), options.max_iter, monitor)
+    theta, _, _, _ = maximise(start, start.start(), options.max_iter, monitor)
     position = {(e.kind, e.from_, e.to): n for n, e in enumerate(start.layout.free_entries)}
     theta0 = np.array([theta[position[(e.kind, e.from_, e.to)]]
                        for e in objective.layout.free_entries])

@@ -24,9 +24,10 @@ from threadpoolctl import threadpool_limits
 
 from models.diary import Diary
 from models.errors import SpecError
-from models.estimate import _scaled_monitor, _scales, estimate_windows
+from models.estimate import estimate_windows
+from models.optimise import interior, parameter_scales
 from models.objective import WindowObjective
-from models.progress import Monitor, checkpoint
+from models.progress import Monitor, checkpoint, scaled
 from models.results import FitResult
 from models.spec import FitOptions, ModelSpec, full_mask
 from models.windows import lag_windows
@@ -112,11 +113,11 @@ def lag2_check(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions()
         checkpoint(monitor, 0.0, "Fitting the lag-1 model on depth-2 windows")
         obj_r = WindowObjective(windows, restricted_spec, opts)
         restricted = estimate_windows(obj_r, notes, diary.n_occasions, time.perf_counter(),
-                                      _scaled_monitor(monitor, 0.0, 0.4))
+                                      scaled(monitor, 0.0, 0.4))
         checkpoint(monitor, 0.4, "Fitting the model with lag-2 paths")
         obj_e = WindowObjective(windows, extended_spec, opts)
         extended = estimate_windows(obj_e, notes, diary.n_occasions, time.perf_counter(),
-                                    _scaled_monitor(monitor, 0.4, 0.75))
+                                    scaled(monitor, 0.4, 0.75))
         checkpoint(monitor, 0.75, "Score tests")
         lag2_tests = _score_tests(obj_r, restricted, windows, opts, "lag2")
         # a lag-1 feature is tested on lag-1 windows: in depth-2 windows every lag-1 pair of
@@ -125,7 +126,7 @@ def lag2_check(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions()
         windows1 = lag_windows(diary.select(restricted_spec.items), 1)
         obj_r1 = WindowObjective(windows1, restricted_spec, replace(opts, depth=1))
         restricted1 = estimate_windows(obj_r1, notes, diary.n_occasions, time.perf_counter(),
-                                       _scaled_monitor(monitor, 0.85, 0.95))
+                                       scaled(monitor, 0.85, 0.95))
         raw = lag2_tests + _score_tests(obj_r1, restricted1, windows1, replace(opts, depth=1),
                                         "unique_autocorrelation")
     p_holm = holm(np.array([t.p for t in raw])) if raw else np.array([])
@@ -176,8 +177,8 @@ def _score_tests(obj_r: WindowObjective, restricted: FitResult, windows, options
     tested = np.array([(e.kind, e.from_, e.to) not in _free_keys(obj_r)
                        for e in obj_f.layout.free_entries])
     _, grad = obj_f.loglik_and_gradient(theta)
-    info = obj_f.expected_information(theta, _scales(obj_f, theta))
-    keep = ~tested & _interior_mask(obj_f, theta)
+    info = obj_f.expected_information(theta, parameter_scales(obj_f, theta))
+    keep = ~tested & interior(obj_f, theta)
     f_idx, t_idx = np.flatnonzero(keep), np.flatnonzero(tested)
     i_ff_inv = np.linalg.pinv(info[np.ix_(f_idx, f_idx)])
     sd_eta = np.sqrt(np.diag(restricted.latent_cov))
@@ -201,11 +202,3 @@ def _score_tests(obj_r: WindowObjective, restricted: FitResult, windows, options
 
 def _free_keys(obj: WindowObjective) -> set[tuple[str, str, str]]:
     return {(e.kind, e.from_, e.to) for e in obj.layout.free_entries}
-
-
-def _interior_mask(obj: WindowObjective, theta: np.ndarray) -> np.ndarray:
-    out = np.ones(theta.size, dtype=bool)
-    for n, (lo, _hi) in enumerate(obj.layout.bounds()):
-        if lo is not None and theta[n] - lo <= 1e-7 * max(float(np.mean(obj.item_var)), 1.0):
-            out[n] = False
-    return out

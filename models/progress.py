@@ -26,3 +26,19 @@ def checkpoint(monitor: Monitor | None, fraction: float, message: str) -> None:
     if monitor.cancelled():
         raise Cancelled("Stopped on request.")
     monitor.report(min(max(fraction, 0.0), 1.0), message)
+
+
+def scaled(monitor: Monitor | None, lo: float, hi: float) -> Monitor | None:
+    """A monitor that maps 0..1 of a sub-task onto lo..hi of the whole."""
+    return None if monitor is None else _ScaledMonitor(monitor, lo, hi)
+
+
+class _ScaledMonitor:
+    def __init__(self, monitor: Monitor, lo: float, hi: float):
+        self.monitor, self.lo, self.hi = monitor, lo, hi
+
+    def report(self, fraction: float, message: str) -> None:
+        self.monitor.report(self.lo + (self.hi - self.lo) * fraction, message)
+
+    def cancelled(self) -> bool:
+        return self.monitor.cancelled()

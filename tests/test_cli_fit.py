@@ -7,7 +7,6 @@ numbers in the JSON are compared with the engine's own result object on the same
 from __future__ import annotations
 
 import json
-import shutil
 from pathlib import Path
 
 import pytest
@@ -15,7 +14,7 @@ import pytest
 from desktop.cli import main
 from models.diary import TimeSettings
 from models.estimate import fit
-from models.spec import FitOptions, make_spec
+from models.spec import make_spec
 from models.timegrid import load_diary
 
 DEMO = Path(__file__).resolve().parents[1] / "resources" / "demo" / "demo_diary.csv"

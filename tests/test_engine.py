@@ -21,7 +21,7 @@ from models.lyapunov import companion_covariance, solve_lyapunov
 from models.patterns import PatternData
 from models.results import FitResult
 from models.simulate import simulate_diary
-from models.spec import FitOptions, make_spec
+from models.spec import make_spec
 
 SPEC = make_spec({"calm": ["c1", "c2", "c3"], "drive": ["d1", "d2", "d3"]}, lags=1)
 TRUE = dict(
