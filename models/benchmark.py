@@ -8,9 +8,11 @@ known stationary model (k states x m items, 10 prompts a day, complete answers):
   outputs (model built from its text, data loaded, optimised, parameter table with standard
   errors, fit statistics) -> ratio semopy / Lagwise. Both run with BLAS on one thread (the
   Lagwise estimator always does; `semopy_threads="default"` leaves semopy's BLAS threads
-  alone). The semopy peers: covariance-only ML ("free" means, semopy's default objective,
-  the faster peer) and, where it finishes in reasonable time, ModelMeans with the same item
-  intercepts as Lagwise (models.reference_sem). Each time is the best of `repeats` runs after
+  alone). The semopy peers: ModelMeans fitting the same model as Lagwise (item intercepts
+  equal across copies, latent intercepts on the regressed copies: models.reference_sem,
+  means="states"), where it finishes in reasonable time, which the 4x target applies to; and,
+  for reference only, covariance-only ML (a simpler model whose window means are saturated,
+  semopy's default objective). Each time is the best of `repeats` runs after
   an untimed warm-up run (common practice for benchmarks: the minimum is least disturbed by
   other work on the machine);
 - the stationary estimator against the first-copy-free one on the same diary -> ratio;
@@ -148,6 +150,7 @@ class PeerTime:
     max_path_difference: float | None
     converged: bool | None
     note: str = ""
+    same_model: bool = True        # the speed target applies to the peer fitting the same model
 
 
 @dataclass(frozen=True)
@@ -244,18 +247,19 @@ def measure_speed(case: Case, repeats: int = 3, means_peer: bool | None = None,
     windows = lag_windows(diary, 1)
     peers = []
     run_means = case.occasions <= MEANS_PEER_LIMIT if means_peer is None else means_peer
-    for means, name in (("free", "semopy, covariance only (ML)"),
-                        ("items", "semopy, same item intercepts (ML)")):
-        if means == "items" and not run_means:
+    for means, name in (("free", "semopy, covariance only (simpler model)"),
+                        ("states", "semopy, the same model (ML)")):
+        if means == "states" and not run_means:
             peers.append(PeerTime(name, None, None, None, None,
-                                  "not run: about 2 minutes per fit here (--all-peers runs it)"))
+                                  "not run: minutes per fit here (--all-peers runs it)"))
             continue
         checkpoint(monitor, 0.4 if means == "free" else 0.7, f"{case.label}: {name}")
         sec, ref = _best_time(lambda: reference_sem.fit_windows(
             windows, spec, means=means, precise=False, report=True,
             single_thread=semopy_threads == "1"), repeats)
         diff = float(np.max(np.abs(ref.lagged[0] - fcf.lagged[0])))
-        peers.append(PeerTime(name, sec, sec / fcf_s, diff, ref.converged))
+        peers.append(PeerTime(name, sec, sec / fcf_s, diff, ref.converged,
+                              same_model=means == "states"))
     return SpeedResult(case=case, n_windows=fcf.n_windows, lagwise_seconds=fcf_s,
                        lagwise_converged=fcf.converged, stationary_seconds=st_s,
                        stationary_converged=st.converged, peers=tuple(peers))
@@ -458,7 +462,7 @@ def format_report(report: BenchReport) -> str:
                          f"{peer.max_path_difference:>10.1e}{mark}")
         lines.append(f"{'':<34}({r.n_windows} complete windows)")
         for peer in r.peers:
-            if peer.ratio is not None:
+            if peer.ratio is not None and peer.same_model:
                 verdicts.append(f"{_verdict(peer.ratio >= SPEED_TARGET)}  {r.case.label}: "
                                 f"{peer.name} takes {peer.ratio:.1f}x the Lagwise time "
                                 f"(target at least {SPEED_TARGET:g}x)")

@@ -3,7 +3,7 @@
 Speed is reported, never asserted (DESIGN.md section 6: ratios against a peer in the same
 process, not timed pass/fail tests). What is asserted is that the timed fits are the
 like-for-like ones the ratios claim: every fit converged, semopy fitting the same window
-model (same item intercepts) agrees with Lagwise's lagged paths, and Lagwise's filter gives
+model (models.reference_sem, means="states") agrees with Lagwise's lagged paths, and Lagwise's filter gives
 statsmodels' log-likelihood at statsmodels' own one-factor estimate. Peak memory is a size, not
 a time: the long-diary runs must stay under 1 GB (issue 3, item 6; issue 7, item 5).
 Marked `bench`, which the default run (-m 'not slow and not bench') leaves out.
@@ -32,7 +32,7 @@ def test_speed_against_semopy(case):
         if peer.seconds is None:
             continue
         assert peer.converged
-        if "same item intercepts" in peer.name:
+        if peer.same_model:
             # semopy at its default tolerance on the identical model
             assert peer.max_path_difference < 1e-3
     assert np.isfinite(result.stationary_ratio)
