@@ -313,7 +313,7 @@ def fit_rows(result: FitResult) -> list[FitRow]:
     f = result.fit
     low, high = f.rmsea_ci if f.rmsea_ci is not None else (None, None)
     rows = [
-        FitRow("Chi-square", f.chi2, guide="Large relative to df: misfit (strict with many windows)"),
+        FitRow("Chi-square", f.chi2, guide="Compare with df; with many windows small misfit shows"),
         FitRow("Degrees of freedom (df)", f.df, "int"),
         FitRow("p (chi-square)", f.p, "p", "Above .05: no clear evidence of misfit"),
         FitRow("RMSEA", f.rmsea, guide="Around .06 or below is often read as close fit"),
