@@ -561,3 +561,37 @@ def test_missing_file_on_the_command_line_is_refused(lagwise_app):
 
     with pytest.raises(LagwiseError, match="no such file"):
         run_gui(["/no/such/project.lagwise"])
+
+
+def test_a_project_saved_in_the_window_refits_at_the_command_line_without_its_data(
+        qtbot, window, tmp_path, monkeypatch):
+    # Issue 5's acceptance: save in the window, delete the data file, refit headless from the
+    # project alone: the same estimates as the window's engine result.
+    import json
+    import shutil
+
+    from desktop.cli import main
+
+    data = tmp_path / "diary.csv"
+    shutil.copy(DEMO_DIARY, data)
+    dialog = window.import_dialog(data)
+    qtbot.addWidget(dialog)
+    dialog.show()
+    qtbot.mouseClick(dialog.buttons.button(QDialogButtonBox.StandardButton.Ok),
+                     Qt.MouseButton.LeftButton)
+    settle(qtbot)
+    window.session.edit_spec(TRUTH_SPEC, "Build the model")
+    estimate(qtbot, window)
+    shown = window.session.result
+    target = tmp_path / "robin.lagwise"
+    answer_save_as(monkeypatch, target)
+    window.save_as_action.trigger()
+    settle(qtbot)
+    assert target.is_file()
+    data.unlink()
+    out = tmp_path / "refit.json"
+    assert main(["fit", str(target), "--json", str(out)]) == 0
+    refit = {(p["kind"], p["from"], p["to"]): p["estimate"] for p in json.loads(out.read_text())["parameters"]}
+    assert len(refit) == len(shown.parameters)
+    for p in shown.parameters:
+        assert refit[(p.kind, p.from_, p.to)] == pytest.approx(p.estimate, rel=1e-6, abs=1e-9)
