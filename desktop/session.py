@@ -274,7 +274,8 @@ class Session(QObject):
             missing_codes=() if settings is None else settings.missing_codes,
             prompts_per_day=None if settings is None else settings.prompts_per_day,
             preparation=tuple(steps_to_json(self._preparation)),
-            spec=spec, options=self._options, result=self._result, notes=self._notes,
+            spec=spec, options=self._options, result=self._result,
+            result_current=self._result is None or self.result_is_current(), notes=self._notes,
             created=self._created, file=self._file)
 
     def load_project(self, project: Project, table, saved: bool = True) -> None:
@@ -305,11 +306,10 @@ class Session(QObject):
         self.fileChanged.emit()
         result = project.result
         if result is not None:
-            snapshot = self.snapshot()
-            if result.spec != self._spec or result.options != self._options:
-                # estimated from an earlier model: shown, marked as not current
-                snapshot = replace(snapshot, spec=result.spec, options=result.options)
-            self.set_result(result, snapshot)
+            current = (project.result_current and result.spec == self._spec
+                       and result.options == self._options)
+            # estimated from earlier inputs: shown, with no known inputs, so not current
+            self.set_result(result, self.snapshot() if current else None)
         if saved:
             self.mark_saved(project.file)
 

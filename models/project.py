@@ -122,6 +122,8 @@ class Project:
         (models.timegrid.diary_from_frame).
     preparation: preparation steps as plain JSON values (models.preparation), in order.
     spec/options/result: the model, the estimator settings and the last results (None: none).
+    result_current: False when the data, steps, model or settings changed after the results
+        were estimated (the window then shows them as out of date).
     created/modified: UTC ISO 8601 times, set by `save_project`.
     lagwise_version: the Lagwise version that last wrote the file.
     file: where the project was opened from or last saved to (not stored in the file).
@@ -136,6 +138,7 @@ class Project:
     spec: ModelSpec | None = None
     options: FitOptions = FitOptions()
     result: FitResult | None = None
+    result_current: bool = True
     notes: str = ""
     created: str = ""
     modified: str = ""
@@ -394,6 +397,7 @@ def _document(project: Project, folder: Path) -> dict:
         "spec": None if project.spec is None else project.spec.to_json(),
         "options": project.options.to_json(),
         "results": None if project.result is None else project.result.to_json(),
+        "results_current": project.result_current,
         "notes": project.notes,
     }
 
@@ -747,7 +751,7 @@ def _read_document(doc: Any, folder: Path, label: str) -> tuple[Project, Path | 
 
 
 def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
-    doc = _object(doc, "", _TOP_KEYS, optional=("recovery_of",))
+    doc = _object(doc, "", _TOP_KEYS, optional=("recovery_of", "results_current"))
     time, per_day = _time(doc["time"])
     items = doc["items"]
     if items is not None:
@@ -773,6 +777,7 @@ def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
         data=data, items=items, time=time, missing_codes=codes, prompts_per_day=per_day,
         preparation=tuple(preparation), spec=_spec(doc["spec"], "spec"),
         options=_options(doc["options"], "options"), result=_results(doc["results"]),
+        result_current=_boolean(doc.get("results_current", True), "results_current"),
         notes=_text(doc["notes"], "notes", MAX_TEXT),
         created=_timestamp(doc["created"], "created"),
         modified=_timestamp(doc["modified"], "modified"),

@@ -595,3 +595,24 @@ def test_a_project_saved_in_the_window_refits_at_the_command_line_without_its_da
     assert len(refit) == len(shown.parameters)
     for p in shown.parameters:
         assert refit[(p.kind, p.from_, p.to)] == pytest.approx(p.estimate, rel=1e-6, abs=1e-9)
+
+
+def test_results_out_of_date_when_saved_stay_out_of_date_when_opened(qtbot, window, tmp_path,
+                                                                      monkeypatch):
+    from models.preparation import Step
+
+    import_demo(qtbot, window)
+    window.session.edit_spec(TRUTH_SPEC, "Build the model")
+    estimate(qtbot, window)
+    window.session.set_preparation((Step("standardize"),), "Preparation steps")
+    assert not window.session.result_is_current()
+    target = tmp_path / "stale.lagwise"
+    answer_save_as(monkeypatch, target)
+    window.save_as_action.trigger()
+    settle(qtbot)
+    answer_open(monkeypatch, target)
+    window.new_action.trigger()
+    settle(qtbot)
+    window.open_action.trigger()
+    settle(qtbot)
+    assert window.session.result is not None and not window.session.result_is_current()
