@@ -13,6 +13,7 @@ import numpy as np
 import pytest
 from scipy.stats import chi2 as chi2_dist
 from scipy.stats import ncx2
+from two_state_model import SPEC, TRUE
 
 from models.errors import Cancelled, SpecError
 from models.estimate import fit
@@ -22,15 +23,6 @@ from models.patterns import PatternData
 from models.results import FitResult
 from models.simulate import simulate_diary
 from models.spec import make_spec
-
-SPEC = make_spec({"calm": ["c1", "c2", "c3"], "drive": ["d1", "d2", "d3"]}, lags=1)
-TRUE = dict(
-    loadings=np.array([[1, 0], [0.8, 0], [1.2, 0], [0, 1], [0, 0.9], [0, 0.7]], float),
-    intercepts=np.array([3.0, 2.5, 3.2, 4.0, 3.1, 2.0]),
-    unique=np.array([0.5, 0.6, 0.4, 0.5, 0.5, 0.7]),
-    lagged=[np.array([[0.45, 0.15], [-0.2, 0.3]])],
-    innovation=np.array([[1.0, 0.3], [0.3, 0.8]]),
-)
 
 
 @pytest.fixture(scope="module")

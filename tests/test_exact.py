@@ -7,20 +7,12 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from scipy.stats import multivariate_normal
+from two_state_model import SPEC, TRUE
 
 from models.estimate import fit
 from models.exact import ExactObjective, _join_days, _window_start
 from models.simulate import simulate_diary
-from models.spec import FitOptions, make_spec
-
-SPEC = make_spec({"calm": ["c1", "c2", "c3"], "drive": ["d1", "d2", "d3"]}, lags=1)
-TRUE = dict(
-    loadings=np.array([[1, 0], [0.8, 0], [1.2, 0], [0, 1], [0, 0.9], [0, 0.7]], float),
-    intercepts=np.array([3.0, 2.5, 3.2, 4.0, 3.1, 2.0]),
-    unique=np.array([0.5, 0.6, 0.4, 0.5, 0.5, 0.7]),
-    lagged=[np.array([[0.45, 0.15], [-0.2, 0.3]])],
-    innovation=np.array([[1.0, 0.3], [0.3, 0.8]]),
-)
+from models.spec import FitOptions
 
 
 def test_exact_and_window_estimates_agree_on_long_complete_series():
@@ -104,7 +96,10 @@ def test_e1_exact_fit_against_the_published_reference():
     # (consumption's unique variance 0; it flags it as a Heywood estimate); statsmodels'
     # own evaluation of the likelihood at Lagwise's estimate confirms the higher value.
     from statsmodels.tsa.statespace.dynamic_factor import DynamicFactor
-    from statsmodels.tsa.statespace.tests.results import results_dynamic_factor, results_varmax
+    from statsmodels.tsa.statespace.tests.results import (
+        results_dynamic_factor,
+        results_varmax,
+    )
 
     from models.diary import Diary
     from models.spec import ModelSpec, State
