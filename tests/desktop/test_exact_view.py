@@ -9,11 +9,12 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from PySide6.QtWidgets import QApplication
+
+from window_helpers import open_window, settle
 
 from desktop.app import load_demo
 from desktop.export import save_widget_png
-from desktop.mainwindow import PAGES, MainWindow
+from desktop.mainwindow import PAGES
 from desktop.pages.dynamics_page import ESTIMATOR_HELP, DynamicsPage
 
 ESTIMATE_TIMEOUT_MS = 120_000
@@ -35,11 +36,6 @@ def choose(combo, key) -> None:
     combo.setCurrentIndex(index)
 
 
-def settle(qtbot, ms: int = 5) -> None:
-    """Let the page's deferred refresh (a zero-delay timer) and queued signals run."""
-    qtbot.wait(ms)
-    QApplication.processEvents()
-
 
 def test_choosing_exact_sets_the_estimator_and_explains_it(page, session, qtbot, artifacts):
     combo = page.estimator_combo
@@ -50,7 +46,7 @@ def test_choosing_exact_sets_the_estimator_and_explains_it(page, session, qtbot,
     assert page.missing_combo.isEnabled() and page.depth_combo.isEnabled()
     assert not page.exact_night.isEnabled()
     choose(combo, "exact")
-    settle(qtbot)
+    settle(qtbot, 5)
     assert session.options.estimator == "exact" and session.options.night_gap is None
     assert page.estimator_help.text() == ESTIMATOR_HELP["exact"]
     for widget in (page.missing_combo, page.depth_combo):      # window-only settings
@@ -59,32 +55,32 @@ def test_choosing_exact_sets_the_estimator_and_explains_it(page, session, qtbot,
     assert page.exact_night.isEnabled() and page.restart_radio.isChecked()
     save_widget_png(page, artifacts / "dynamics-exact.png", 1.0)
     session.undo_stack.undo()
-    settle(qtbot)
+    settle(qtbot, 5)
     assert session.options.estimator == "stationary" and page.missing_combo.isEnabled()
 
 
 def test_night_rule_sets_the_night_gap_and_is_undoable(page, session, qtbot):
     choose(page.estimator_combo, "exact")
-    settle(qtbot)
+    settle(qtbot, 5)
     page.night_gap_spin.setValue(4)           # not yet carried over: nothing changes
     assert session.options.night_gap is None
     page.carry_radio.click()
-    settle(qtbot)
+    settle(qtbot, 5)
     assert session.options.night_gap == 4 and session.options.estimator == "exact"
     page.night_gap_spin.setValue(7)
-    settle(qtbot)
+    settle(qtbot, 5)
     assert session.options.night_gap == 7
     session.undo_stack.undo()
-    settle(qtbot)
+    settle(qtbot, 5)
     assert session.options.night_gap == 4 and page.night_gap_spin.value() == 4
     page.restart_radio.click()
-    settle(qtbot)
+    settle(qtbot, 5)
     assert session.options.night_gap is None and page.restart_radio.isChecked()
     page.carry_radio.click()
-    settle(qtbot)
+    settle(qtbot, 5)
     assert session.options.night_gap == 4
     choose(page.estimator_combo, "stationary")  # a window estimator drops the exact-only rule
-    settle(qtbot)
+    settle(qtbot, 5)
     assert session.options.estimator == "stationary" and session.options.night_gap is None
     assert not page.exact_night.isEnabled() and not page.carry_radio.isChecked()
 
@@ -92,20 +88,20 @@ def test_night_rule_sets_the_night_gap_and_is_undoable(page, session, qtbot):
 def test_joined_days_are_separated_by_a_night_rule_in_one_step(page, session, qtbot):
     days = session.diary.n_days
     page.night_check.click()                   # windows may span nights: one segment
-    settle(qtbot)
+    settle(qtbot, 5)
     assert np.unique(session.diary.segment).size == 1
     choose(page.estimator_combo, "exact")
-    settle(qtbot)
+    settle(qtbot, 5)
     assert not page.night_check.isEnabled()
     assert not page.restart_radio.isChecked() and not page.carry_radio.isChecked()
     assert "joined into one run" in page.exact_night_note.text()
     page.carry_radio.click()
-    settle(qtbot)
+    settle(qtbot, 5)
     assert session.import_settings.time.days_independent
     assert np.unique(session.diary.segment).size == days
     assert session.options.night_gap == page.night_gap_spin.value()
     session.undo_stack.undo()                  # one undo step for both
-    settle(qtbot)
+    settle(qtbot, 5)
     assert np.unique(session.diary.segment).size == 1
     assert session.options.night_gap is None and session.options.estimator == "exact"
 
@@ -113,11 +109,11 @@ def test_joined_days_are_separated_by_a_night_rule_in_one_step(page, session, qt
 def test_window_length_is_a_window_setting(page, session, qtbot):
     assert page.depth_combo.currentData() is None
     choose(page.depth_combo, 3)
-    settle(qtbot)
+    settle(qtbot, 5)
     assert session.options.depth == 3
     assert page.depth_combo.currentText() == "4 prompts (depth 3)"
     page.lag2.click()                          # lag order 2: the default window follows it
-    settle(qtbot)
+    settle(qtbot, 5)
     assert page.depth_combo.itemText(0) == "3 prompts (as the lag order)"
     assert page.depth_combo.currentData() == 3
 
@@ -125,22 +121,18 @@ def test_window_length_is_a_window_setting(page, session, qtbot):
 # ----- estimating with the exact estimator in the real window --------------------------------
 @pytest.fixture
 def window(qtbot, lagwise_app):
-    win = MainWindow()
-    qtbot.addWidget(win)
-    win.resize(1400, 900)
-    win.show()
-    qtbot.waitExposed(win)
+    win = open_window(qtbot)
     yield win
     win.worker.wait()
-    settle(qtbot)
+    settle(qtbot, 5)
 
 
 def test_exact_estimate_shows_the_state_scores(qtbot, window, artifacts):
     load_demo(window.session)
-    settle(qtbot)
+    settle(qtbot, 5)
     window.show_page(PAGES.index("Dynamics"))
     choose(window.dynamics_page.estimator_combo, "exact")
-    settle(qtbot)
+    settle(qtbot, 5)
     assert window.session.options.estimator == "exact"
     window.estimate_action.trigger()
     qtbot.waitUntil(lambda: not window.worker.busy and window.session.result is not None,

@@ -13,7 +13,8 @@ import numpy as np
 import pandas as pd
 import pytest
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import QApplication, QDialogButtonBox
+
+from window_helpers import import_file, open_window, settle
 
 from desktop.export import save_widget_png
 from desktop.mainwindow import JOB_ESTIMATE, JOB_LAG2, PAGES, MainWindow
@@ -27,10 +28,6 @@ TIMEOUT_MS = 120_000
 SPEC1 = make_spec({"Tension": ["tense", "restless", "worried"],
                    "Mood": ["cheerful", "content", "relaxed"]}, lags=1)
 
-
-def settle(qtbot, ms: int = 0) -> None:
-    qtbot.wait(ms)
-    QApplication.processEvents()
 
 
 @pytest.fixture(scope="module")
@@ -54,17 +51,8 @@ def diary_csv(tmp_path_factory):
 @pytest.fixture
 def window(qtbot, lagwise_app, diary_csv, tmp_path, monkeypatch):
     monkeypatch.setenv("LAGWISE_DATA_DIR", str(tmp_path / "data"))
-    win = MainWindow()
-    qtbot.addWidget(win)
-    win.resize(1280, 860)
-    win.show()
-    qtbot.waitExposed(win)
-    dialog = win.import_dialog(diary_csv)
-    qtbot.addWidget(dialog)
-    dialog.show()
-    qtbot.mouseClick(dialog.buttons.button(QDialogButtonBox.StandardButton.Ok),
-                     Qt.MouseButton.LeftButton)
-    settle(qtbot)
+    win = open_window(qtbot, 1280, 860)
+    import_file(qtbot, win, diary_csv)
     win.session.edit_spec(SPEC1, "Build the model")
     win.estimate_action.trigger()
     qtbot.waitUntil(lambda: not win.worker.busy and win.session.result is not None,

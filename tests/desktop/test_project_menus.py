@@ -20,7 +20,9 @@ import numpy as np
 import pytest
 from PySide6.QtCore import QPoint, QSettings, Qt
 from PySide6.QtGui import QColor, QImage, QPainter
-from PySide6.QtWidgets import QApplication, QDialogButtonBox, QFileDialog, QMessageBox
+from PySide6.QtWidgets import QDialogButtonBox, QFileDialog, QMessageBox
+
+from window_helpers import import_file, open_window, settle
 
 from desktop.app import DEMO_DIARY, DEMO_TRUTH, start_window
 from desktop.export import table_rows
@@ -40,10 +42,6 @@ Button = QMessageBox.StandardButton
 
 
 # ----- helpers -----------------------------------------------------------------------
-def settle(qtbot, ms: int = 0) -> None:
-    qtbot.wait(ms)
-    QApplication.processEvents()
-
 
 def same_values(a: np.ndarray, b: np.ndarray) -> bool:
     return a.shape == b.shape and bool(np.array_equal(np.isnan(a), np.isnan(b))) and bool(
@@ -57,13 +55,7 @@ def title(window: MainWindow) -> str:
 
 
 def import_demo(qtbot, window: MainWindow) -> None:
-    dialog = window.import_dialog(DEMO_DIARY)
-    qtbot.addWidget(dialog)
-    dialog.show()
-    ok = dialog.buttons.button(QDialogButtonBox.StandardButton.Ok)
-    assert ok.isEnabled()
-    qtbot.mouseClick(ok, Qt.MouseButton.LeftButton)
-    settle(qtbot)
+    import_file(qtbot, window, DEMO_DIARY)
     assert window.session.diary is not None
 
 
@@ -172,11 +164,7 @@ def data_dir(tmp_path, monkeypatch) -> Path:
 
 @pytest.fixture
 def window(qtbot, lagwise_app, data_dir):
-    win = MainWindow()
-    qtbot.addWidget(win)
-    win.resize(1280, 840)
-    win.show()
-    qtbot.waitExposed(win)
+    win = open_window(qtbot, 1280, 840)
     yield win
     win.worker.wait()
     win.session.mark_saved(win.session.file)  # nothing to ask when the test closes it
@@ -574,12 +562,7 @@ def test_a_project_saved_in_the_window_refits_at_the_command_line_without_its_da
 
     data = tmp_path / "diary.csv"
     shutil.copy(DEMO_DIARY, data)
-    dialog = window.import_dialog(data)
-    qtbot.addWidget(dialog)
-    dialog.show()
-    qtbot.mouseClick(dialog.buttons.button(QDialogButtonBox.StandardButton.Ok),
-                     Qt.MouseButton.LeftButton)
-    settle(qtbot)
+    import_file(qtbot, window, data)
     window.session.edit_spec(TRUTH_SPEC, "Build the model")
     estimate(qtbot, window)
     shown = window.session.result

@@ -28,6 +28,8 @@ from PySide6.QtCore import QEvent, QPointF, QSettings, Qt, QTimer
 from PySide6.QtGui import QDragEnterEvent, QDragMoveEvent, QDropEvent, QImage
 from PySide6.QtWidgets import QApplication, QDialogButtonBox, QMessageBox
 
+from window_helpers import open_window, settle
+
 from desktop.app import DEMO_DIARY, DEMO_TRUTH, load_demo, run_demo
 from desktop.export import save_widget_png, table_rows
 from desktop.mainwindow import PAGES, MainWindow
@@ -46,11 +48,6 @@ ESTIMATE_TIMEOUT_MS = 120_000
 
 
 # ----- helpers -----------------------------------------------------------------------
-def settle(qtbot, ms: int = 0) -> None:
-    """Let queued events (deferred page refreshes, queued worker signals) run."""
-    qtbot.wait(ms)
-    QApplication.processEvents()
-
 
 def quiet_event_loop(qtbot) -> None:
     """Finish pending work (deferred deletions of widgets from earlier tests, garbage) so a
@@ -137,11 +134,7 @@ def image_has_content(path: Path) -> bool:
 
 @pytest.fixture
 def window(qtbot, lagwise_app):
-    win = MainWindow()
-    qtbot.addWidget(win)
-    win.resize(1400, 900)
-    win.show()
-    qtbot.waitExposed(win)
+    win = open_window(qtbot)
     yield win
     win.worker.wait()
     settle(qtbot)

@@ -1,0 +1,37 @@
+"""Helpers shared by the tests that drive the real window."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtCore import Qt
+from PySide6.QtWidgets import QApplication, QDialogButtonBox
+
+from desktop.mainwindow import MainWindow
+
+
+def settle(qtbot, ms: int = 0) -> None:
+    """Let queued events (deferred page refreshes, queued worker signals) run."""
+    qtbot.wait(ms)
+    QApplication.processEvents()
+
+
+def open_window(qtbot, width: int = 1400, height: int = 900) -> MainWindow:
+    """A shown main window of the given size, closed by qtbot at the end of the test."""
+    win = MainWindow()
+    qtbot.addWidget(win)
+    win.resize(width, height)
+    win.show()
+    qtbot.waitExposed(win)
+    return win
+
+
+def import_file(qtbot, window: MainWindow, path: Path) -> None:
+    """Import `path` through the import dialog with its guessed roles, as a user clicking OK."""
+    dialog = window.import_dialog(path)
+    qtbot.addWidget(dialog)
+    dialog.show()
+    ok = dialog.buttons.button(QDialogButtonBox.StandardButton.Ok)
+    assert ok.isEnabled()
+    qtbot.mouseClick(ok, Qt.MouseButton.LeftButton)
+    settle(qtbot)
