@@ -14,11 +14,13 @@ import argparse
 import json
 import os
 import sys
+from importlib.resources import files
 from pathlib import Path
 
-from models.errors import LagwiseError, ProjectError
+from lagwise.models.errors import LagwiseError, ProjectError
 
-DEMO_FOLDER = Path(__file__).resolve().parents[1] / "resources" / "demo"
+# the demo ships inside the package (lagwise.resources), so installed copies find it too
+DEMO_FOLDER = Path(str(files("lagwise.resources").joinpath("demo")))
 DEMO_DIARY = DEMO_FOLDER / "demo_diary.csv"
 DEMO_TRUTH = DEMO_FOLDER / "demo_truth.json"
 SCREENSHOT_SIZE = (1440, 900)
@@ -40,7 +42,7 @@ def make_app(argv: list[str] | None = None):
     from PySide6.QtGui import QGuiApplication
     from PySide6.QtWidgets import QApplication
 
-    from desktop import style
+    from lagwise.desktop import style
 
     app = QApplication.instance()
     if app is None:
@@ -55,11 +57,11 @@ def make_app(argv: list[str] | None = None):
 
 def load_demo(session) -> None:
     """Put the demo diary and its model (resources/demo) into `session`."""
-    from desktop.session import ImportSettings
-    from models.diary import TimeSettings
-    from models.readers import read_table
-    from models.spec import ModelSpec
-    from models.timegrid import diary_from_frame
+    from lagwise.desktop.session import ImportSettings
+    from lagwise.models.diary import TimeSettings
+    from lagwise.models.readers import read_table
+    from lagwise.models.spec import ModelSpec
+    from lagwise.models.timegrid import diary_from_frame
 
     if not DEMO_DIARY.exists() or not DEMO_TRUTH.exists():
         raise ProjectError(f"the demo files are missing from {DEMO_FOLDER}")
@@ -97,7 +99,7 @@ def run_demo(args: argparse.Namespace) -> int:
         print(f"lagwise: {NO_DISPLAY}", file=sys.stderr)
         return 2
     app = make_app()
-    from desktop.mainwindow import MainWindow
+    from lagwise.desktop.mainwindow import MainWindow
 
     window = MainWindow()
     load_demo(window.session)
@@ -126,8 +128,8 @@ def run_gui(argv: list[str] | None = None) -> int:
 def start_window(file: str | Path | None = None):
     """Show a new main window, offer to restore work autosaved before a crash, then open the
     project (.lagwise) or import the data `file` if one is given. Returns the window."""
-    from desktop.mainwindow import MainWindow
-    from models.project import is_project_file
+    from lagwise.desktop.mainwindow import MainWindow
+    from lagwise.models.project import is_project_file
 
     window = MainWindow()
     window.show()
@@ -144,9 +146,9 @@ def start_window(file: str | Path | None = None):
 
 def _demo_screenshot(path: Path) -> int:
     app = make_app()
-    from desktop.export import save_widget_png
-    from desktop.mainwindow import PAGES, MainWindow
-    from models.estimate import fit
+    from lagwise.desktop.export import save_widget_png
+    from lagwise.desktop.mainwindow import PAGES, MainWindow
+    from lagwise.models.estimate import fit
 
     window = MainWindow()
     load_demo(window.session)

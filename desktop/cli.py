@@ -21,7 +21,7 @@ import sys
 from dataclasses import dataclass
 from pathlib import Path
 
-from models.errors import LagwiseError
+from lagwise.models.errors import LagwiseError
 
 
 @dataclass(frozen=True)
@@ -33,13 +33,13 @@ class Command:
 
 
 COMMANDS: dict[str, Command] = {
-    "inspect": Command("desktop.cli_inspect", "add_arguments", "run",
+    "inspect": Command("lagwise.desktop.cli_inspect", "add_arguments", "run",
                        "what a diary file holds: prompts, answers, days, lag windows, items"),
-    "fit": Command("desktop.cli_fit", "add_arguments", "run",
+    "fit": Command("lagwise.desktop.cli_fit", "add_arguments", "run",
                    "fit a dynamic factor model to a diary and report it"),
-    "bench": Command("desktop.cli_bench", "add_arguments", "run",
+    "bench": Command("lagwise.desktop.cli_bench", "add_arguments", "run",
                      "measure how fast the estimators are"),
-    "demo": Command("desktop.app", "add_demo_arguments", "run_demo",
+    "demo": Command("lagwise.desktop.app", "add_demo_arguments", "run_demo",
                     "run the bundled demo diary"),
 }
 HELP_FLAGS = ("-h", "--help", "--version")
@@ -58,7 +58,7 @@ def main(argv: list[str] | None = None) -> int:
     argv = _join_code_lists(list(sys.argv[1:] if argv is None else argv))
     try:
         if _opens_window(argv):
-            run_gui = _import_module("desktop.app", "the window").run_gui
+            run_gui = _import_module("lagwise.desktop.app", "the window").run_gui
             return int(run_gui(argv) or 0)
         parser, chosen = _build_parser(argv[0])
         args = parser.parse_args(argv)  # exits for --help, --version and unknown commands

@@ -10,7 +10,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from models.benchmark import format_report, run_benchmark
+from lagwise.models.benchmark import format_report, run_benchmark
 
 
 class _Progress:

@@ -14,9 +14,9 @@ from __future__ import annotations
 
 import argparse
 
-from models.diary import Diary, TimeSettings
-from models.errors import DataError
-from models.timegrid import load_diary
+from lagwise.models.diary import Diary, TimeSettings
+from lagwise.models.errors import DataError
+from lagwise.models.timegrid import load_diary
 
 
 def add_diary_arguments(parser: argparse.ArgumentParser, data: bool = True) -> None:
@@ -73,7 +73,7 @@ def split_list(text: str | None) -> list[str] | None:
 def diary_from_args(args: argparse.Namespace) -> Diary:
     """Read `args.data` into a Diary as the options say (a .lagwise project: its own diary)."""
     if str(args.data).lower().endswith(".lagwise"):
-        from models.project import load_project_diary
+        from lagwise.models.project import load_project_diary
         return load_project_diary(args.data)
     return load_diary(
         args.data,

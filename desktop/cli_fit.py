@@ -16,18 +16,18 @@ import sys
 from dataclasses import replace
 from pathlib import Path
 
-from desktop.cli_common import (
+from lagwise.desktop.cli_common import (
     add_diary_arguments, diary_from_args, split_list, time_settings_from_args,
 )
-from models.errors import ProjectError, SpecError
-from models.estimate import fit
-from models.lag2check import lag2_check
-from models.project import (
+from lagwise.models.errors import ProjectError, SpecError
+from lagwise.models.estimate import fit
+from lagwise.models.lag2check import lag2_check
+from lagwise.models.project import (
     Project, embed_file, is_project_file, open_project, project_diary, save_project,
 )
-from models.report import format_lag2, format_result
-from models.results import _finite
-from models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec, State, full_mask, inertia_mask
+from lagwise.models.report import format_lag2, format_result
+from lagwise.models.results import _finite
+from lagwise.models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec, State, full_mask, inertia_mask
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

@@ -12,10 +12,10 @@ import json
 import sys
 from pathlib import Path
 
-from desktop.cli_common import add_diary_arguments, diary_from_args
-from models.errors import DataError
-from models.summary import diary_summary, format_summary
-from models.screening import format_screening, screen_diary, screening_json
+from lagwise.desktop.cli_common import add_diary_arguments, diary_from_args
+from lagwise.models.errors import DataError
+from lagwise.models.summary import diary_summary, format_summary
+from lagwise.models.screening import format_screening, screen_diary, screening_json
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

@@ -19,13 +19,13 @@ from PySide6.QtWidgets import (
     QTableWidgetItem, QVBoxLayout, QWidget,
 )
 
-from desktop import style
-from desktop.session import ImportSettings
-from models.diary import Diary, TimeSettings
-from models.errors import LagwiseError
-from models.readers import SUPPORTED_SUFFIXES, looks_like_dates, numeric_cells, read_table
-from models.summary import diary_summary
-from models.timegrid import diary_from_frame
+from lagwise.desktop import style
+from lagwise.desktop.session import ImportSettings
+from lagwise.models.diary import Diary, TimeSettings
+from lagwise.models.errors import LagwiseError
+from lagwise.models.readers import SUPPORTED_SUFFIXES, looks_like_dates, numeric_cells, read_table
+from lagwise.models.summary import diary_summary
+from lagwise.models.timegrid import diary_from_frame
 
 ROLES: tuple[str, ...] = ("item", "day", "prompt number", "timestamp", "ignore")
 SINGLE_ROLES = ("day", "prompt number", "timestamp")  # at most one column each

@@ -24,20 +24,20 @@ from PySide6.QtWidgets import (
     QToolBar, QVBoxLayout, QWidget,
 )
 
-from desktop import style
-from desktop.import_dialog import FILE_FILTER, ImportDialog
-from desktop.notes_dialog import NotesDialog
-from desktop.pages.data_page import DataPage
-from desktop.pages.dynamics_page import DynamicsPage
-from desktop.pages.states_page import StatesPage
-from desktop.project_files import ProjectFiles
-from desktop.results import ResultsView
-from desktop.results.lag2_view import adopted_spec
-from desktop.session import Session, Snapshot
-from desktop.worker import Worker
-from models.errors import LagwiseError
-from models.estimate import fit
-from models.lag2check import lag2_check
+from lagwise.desktop import style
+from lagwise.desktop.import_dialog import FILE_FILTER, ImportDialog
+from lagwise.desktop.notes_dialog import NotesDialog
+from lagwise.desktop.pages.data_page import DataPage
+from lagwise.desktop.pages.dynamics_page import DynamicsPage
+from lagwise.desktop.pages.states_page import StatesPage
+from lagwise.desktop.project_files import ProjectFiles
+from lagwise.desktop.results import ResultsView
+from lagwise.desktop.results.lag2_view import adopted_spec
+from lagwise.desktop.session import Session, Snapshot
+from lagwise.desktop.worker import Worker
+from lagwise.models.errors import LagwiseError
+from lagwise.models.estimate import fit
+from lagwise.models.lag2check import lag2_check
 
 PAGES = ("Data", "States", "Dynamics", "Results")
 SETTINGS_GEOMETRY = "window/geometry"
@@ -323,7 +323,7 @@ class MainWindow(QMainWindow):
         self.files.confirm_discard(self._open_demo_now, "opening the demo")
 
     def _open_demo_now(self) -> None:
-        from desktop.app import load_demo
+        from lagwise.desktop.app import load_demo
 
         try:
             load_demo(self.session)

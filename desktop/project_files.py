@@ -19,10 +19,10 @@ from typing import Callable
 from PySide6.QtCore import QObject, QSettings, Qt, QTimer, Signal
 from PySide6.QtWidgets import QFileDialog, QMessageBox, QWidget
 
-from desktop.import_dialog import FILE_FILTER
-from desktop.session import Session
-from models.errors import LagwiseError, ProjectError
-from models.project import (
+from lagwise.desktop.import_dialog import FILE_FILTER
+from lagwise.desktop.session import Session
+from lagwise.models.errors import LagwiseError, ProjectError
+from lagwise.models.project import (
     SUFFIX, LinkedDataChanged, LinkedDataMissing, Project, Recovery, discard_recovery,
     find_recoveries, open_project, project_diary, project_table, relink_data, save_project,
     write_recovery,

@@ -21,13 +21,13 @@ from pathlib import Path
 from PySide6.QtCore import QObject, Signal, Slot
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
-from models.diary import Diary, TimeSettings
-from models.errors import SpecError
-from models.preparation import Step, apply_steps, steps_from_json, steps_to_json
-from models.project import Project, ProjectData, embed_table, project_diary
-from models.results import FitResult
-from models.spec import FitOptions, ModelSpec
-from models.timegrid import diary_from_frame
+from lagwise.models.diary import Diary, TimeSettings
+from lagwise.models.errors import SpecError
+from lagwise.models.preparation import Step, apply_steps, steps_from_json, steps_to_json
+from lagwise.models.project import Project, ProjectData, embed_table, project_diary
+from lagwise.models.results import FitResult
+from lagwise.models.spec import FitOptions, ModelSpec
+from lagwise.models.timegrid import diary_from_frame
 
 
 @dataclass(frozen=True)

@@ -17,7 +17,7 @@ import traceback
 
 from PySide6.QtCore import QObject, QRunnable, QThreadPool, Qt, Signal, Slot
 
-from models.errors import Cancelled, LagwiseError
+from lagwise.models.errors import Cancelled, LagwiseError
 
 
 class _Monitor:

@@ -54,9 +54,9 @@ from pathlib import Path
 
 import numpy as np
 
-from models.diary import Diary
-from models.progress import Monitor, checkpoint
-from models.spec import FitOptions, ModelSpec, make_spec
+from lagwise.models.diary import Diary
+from lagwise.models.progress import Monitor, checkpoint
+from lagwise.models.spec import FitOptions, ModelSpec, make_spec
 
 PROMPTS_PER_DAY = 10
 SPEED_TARGET = 4.0
@@ -118,7 +118,7 @@ def bench_model(states: int, items: int) -> tuple[ModelSpec, dict]:
 
 
 def bench_diary(case: Case, seed: int = 1, p_missed: float = 0.0) -> tuple[ModelSpec, Diary]:
-    from models.simulate import simulate_diary
+    from lagwise.models.simulate import simulate_diary
 
     spec, truth = bench_model(case.states, case.items)
     days = max(1, case.occasions // case.prompts)
@@ -234,9 +234,9 @@ class BenchReport:
 def measure_speed(case: Case, repeats: int = 3, means_peer: bool | None = None,
                   semopy_threads: str = "1", monitor: Monitor | None = None) -> SpeedResult:
     """Time Lagwise (both window estimators) and the semopy peers on one case."""
-    from models import reference_sem
-    from models.estimate import fit
-    from models.windows import lag_windows
+    from lagwise.models import reference_sem
+    from lagwise.models.estimate import fit
+    from lagwise.models.windows import lag_windows
 
     spec, diary = bench_diary(case)
     checkpoint(monitor, 0.0, f"{case.label}: Lagwise first-copy-free")
@@ -283,8 +283,8 @@ def _one_factor_peer(values: np.ndarray):
 def measure_exact_speed(case: Case = EXACT_CASE, repeats: int = 3,
                         monitor: Monitor | None = None) -> ExactSpeedResult:
     """Time the Lagwise exact fit and statsmodels' one-factor DynamicFactor on one diary."""
-    from models.estimate import fit
-    from models.kalman import kalman_loglik
+    from lagwise.models.estimate import fit
+    from lagwise.models.kalman import kalman_loglik
 
     spec, diary = bench_diary(case)
     checkpoint(monitor, 0.0, f"{case.label}: Lagwise exact")
@@ -311,8 +311,8 @@ def measure_exact_evaluation(sizes: tuple[int, ...] = EXACT_SIZES, repeats: int 
     diaries of 3 states x 3 items, days of 8 prompts, 10% missed, of each size."""
     from threadpoolctl import threadpool_limits
 
-    from models.exact import ExactObjective
-    from models.parameters import Matrices
+    from lagwise.models.exact import ExactObjective
+    from lagwise.models.parameters import Matrices
 
     out = []
     for n, occasions in enumerate(sizes):
@@ -338,7 +338,7 @@ def measure_memory(case: Case, timeout: float = 3600.0, estimator: str = "statio
                    ) -> MemoryResult:
     """Peak memory of one fit of `case` (10% missed prompts) in a fresh process, with the
     default (stationary, full-information) or the exact estimator."""
-    cmd = [sys.executable, "-m", "models.benchmark", "--memory-child", str(case.states),
+    cmd = [sys.executable, "-m", "lagwise.models.benchmark", "--memory-child", str(case.states),
            str(case.items), str(case.occasions), "--prompts", str(case.prompts),
            "--estimator", estimator]
     done = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, check=False)
@@ -385,7 +385,7 @@ def _peak_reader():
 def _memory_child(states: int, items: int, occasions: int, prompts: int = PROMPTS_PER_DAY,
                   estimator: str = "stationary") -> dict:
     method, peak = _peak_reader()
-    from models.estimate import fit  # imports count in the baseline
+    from lagwise.models.estimate import fit  # imports count in the baseline
 
     baseline = peak()
     spec, diary = bench_diary(Case(states, items, occasions, prompts), p_missed=0.1)

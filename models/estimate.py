@@ -14,17 +14,17 @@ import time
 import numpy as np
 from threadpoolctl import threadpool_limits
 
-from models.diary import Diary
-from models.errors import EstimationError, SpecError
-from models.fitindices import fit_indices
-from models.lyapunov import spectral_radius, stationary_covariance
-from models.objective import WindowObjective
-from models.optimise import (covariance_from_hessian, interior, maximise, newton_polish,
+from lagwise.models.diary import Diary
+from lagwise.models.errors import EstimationError, SpecError
+from lagwise.models.fitindices import fit_indices
+from lagwise.models.lyapunov import spectral_radius, stationary_covariance
+from lagwise.models.objective import WindowObjective
+from lagwise.models.optimise import (covariance_from_hessian, interior, maximise, newton_polish,
                               observed_hessian, parameter_scales)
-from models.progress import Monitor, checkpoint
-from models.results import FitResult, Parameter
-from models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec
-from models.windows import lag_windows
+from lagwise.models.progress import Monitor, checkpoint
+from lagwise.models.results import FitResult, Parameter
+from lagwise.models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec
+from lagwise.models.windows import lag_windows
 
 MIN_WINDOWS_PER_PARAMETER = 5.0
 
@@ -41,7 +41,7 @@ def fit(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions(),
     # the matrices are small: threaded BLAS only adds overhead (measured 10x slower on 2 cores)
     with threadpool_limits(limits=1, user_api="blas"):
         if options.estimator == "exact":
-            from models.exact import fit_exact
+            from lagwise.models.exact import fit_exact
             return fit_exact(diary, spec, options, monitor, notes)
         checkpoint(monitor, 0.0, "Building lag windows")
         started = time.perf_counter()

@@ -17,21 +17,21 @@ from dataclasses import replace
 
 import numpy as np
 
-from models.diary import Diary
-from models.estimate import parameter_table, solution_flags
-from models.errors import EstimationError
-from models.fitindices import fit_indices
-from models.implied import NotAdmissible
-from models.kalman import filter_plan, kalman_gradient, kalman_loglik, kalman_smooth
-from models.lyapunov import spectral_radius, stationary_covariance
-from models.objective import WindowObjective
-from models.optimise import (covariance_from_hessian, interior, maximise, newton_polish,
+from lagwise.models.diary import Diary
+from lagwise.models.estimate import parameter_table, solution_flags
+from lagwise.models.errors import EstimationError
+from lagwise.models.fitindices import fit_indices
+from lagwise.models.implied import NotAdmissible
+from lagwise.models.kalman import filter_plan, kalman_gradient, kalman_loglik, kalman_smooth
+from lagwise.models.lyapunov import spectral_radius, stationary_covariance
+from lagwise.models.objective import WindowObjective
+from lagwise.models.optimise import (covariance_from_hessian, interior, maximise, newton_polish,
                               observed_hessian)
-from models.parameters import Gradients, ParameterLayout
-from models.progress import Monitor, checkpoint, scaled
-from models.results import CAUTION_IDIOGRAPHIC, FitResult
-from models.spec import FitOptions, ModelSpec
-from models.windows import lag_windows
+from lagwise.models.parameters import Gradients, ParameterLayout
+from lagwise.models.progress import Monitor, checkpoint, scaled
+from lagwise.models.results import CAUTION_IDIOGRAPHIC, FitResult
+from lagwise.models.spec import FitOptions, ModelSpec
+from lagwise.models.windows import lag_windows
 
 CAUTION_EXACT_SE = ("Standard errors come from the observed information of the exact likelihood; "
                     "with a few hundred prompts they are approximate.")

@@ -16,7 +16,7 @@ from scipy.optimize import brentq
 from scipy.stats import chi2 as chi2_dist
 from scipy.stats import ncx2
 
-from models.results import FitIndices
+from lagwise.models.results import FitIndices
 
 
 def rmsea_interval(chi2: float, df: int, n: int, level: float = 0.90) -> tuple[float, float]:

@@ -22,8 +22,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from models.lyapunov import companion, solve_lyapunov
-from models.parameters import Gradients, Matrices
+from lagwise.models.lyapunov import companion, solve_lyapunov
+from lagwise.models.parameters import Gradients, Matrices
 
 STATIONARITY_LIMIT = 0.9999
 

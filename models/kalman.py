@@ -55,8 +55,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.linalg import lapack
 
-from models.errors import EstimationError
-from models.lyapunov import companion, companion_covariance, solve_lyapunov
+from lagwise.models.errors import EstimationError
+from lagwise.models.lyapunov import companion, companion_covariance, solve_lyapunov
 
 _LOG_2PI = float(np.log(2.0 * np.pi))
 _CHUNK = 4096   # occasions per block in per-occasion products (bounds temporary memory)

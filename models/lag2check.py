@@ -22,15 +22,15 @@ import numpy as np
 from scipy.stats import chi2 as chi2_dist
 from threadpoolctl import threadpool_limits
 
-from models.diary import Diary
-from models.errors import SpecError
-from models.estimate import estimate_windows
-from models.optimise import interior, parameter_scales
-from models.objective import WindowObjective
-from models.progress import Monitor, checkpoint, scaled
-from models.results import FitResult
-from models.spec import FitOptions, ModelSpec, full_mask
-from models.windows import lag_windows
+from lagwise.models.diary import Diary
+from lagwise.models.errors import SpecError
+from lagwise.models.estimate import estimate_windows
+from lagwise.models.optimise import interior, parameter_scales
+from lagwise.models.objective import WindowObjective
+from lagwise.models.progress import Monitor, checkpoint, scaled
+from lagwise.models.results import FitResult
+from lagwise.models.spec import FitOptions, ModelSpec, full_mask
+from lagwise.models.windows import lag_windows
 
 ALPHA = 0.05
 CAUTION_LAG2 = (

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from models.errors import EstimationError
+from lagwise.models.errors import EstimationError
 
 
 def companion(lagged: list[np.ndarray] | tuple[np.ndarray, ...]) -> np.ndarray:

@@ -9,12 +9,12 @@ from __future__ import annotations
 
 import numpy as np
 
-from models.implied import Implied, implied_moments, matrix_gradients
-from models.parameters import Matrices, ParameterLayout
-from models.patterns import PatternData
-from models.spec import FitOptions, ModelSpec
-from models.start import start_matrices
-from models.windows import LagWindows
+from lagwise.models.implied import Implied, implied_moments, matrix_gradients
+from lagwise.models.parameters import Matrices, ParameterLayout
+from lagwise.models.patterns import PatternData
+from lagwise.models.spec import FitOptions, ModelSpec
+from lagwise.models.start import start_matrices
+from lagwise.models.windows import LagWindows
 
 
 class WindowObjective:

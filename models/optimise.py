@@ -17,10 +17,10 @@ from typing import Protocol
 import numpy as np
 from scipy.optimize import minimize
 
-from models.errors import EstimationError
-from models.implied import NotAdmissible
-from models.parameters import ParameterLayout
-from models.progress import Monitor, checkpoint
+from lagwise.models.errors import EstimationError
+from lagwise.models.implied import NotAdmissible
+from lagwise.models.parameters import ParameterLayout
+from lagwise.models.progress import Monitor, checkpoint
 
 
 class Objective(Protocol):

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from models.spec import ModelSpec
+from lagwise.models.spec import ModelSpec
 
 VARIANCE_FLOOR = 1e-8
 

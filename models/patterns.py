@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from models.implied import NotAdmissible
+from lagwise.models.implied import NotAdmissible
 
 LOG2PI = float(np.log(2.0 * np.pi))
 

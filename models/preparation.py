@@ -24,9 +24,9 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from models.diary import Diary
-from models.errors import DataError, ProjectError
-from models.screening import weekdays
+from lagwise.models.diary import Diary
+from lagwise.models.errors import DataError, ProjectError
+from lagwise.models.screening import weekdays
 
 STEP_NAMES: tuple[str, ...] = ("detrend", "prompt_means", "weekday_means", "standardize")
 STEP_LABELS = {

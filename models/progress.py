@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from typing import Protocol
 
-from models.errors import Cancelled
+from lagwise.models.errors import Cancelled
 
 
 class Monitor(Protocol):

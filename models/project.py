@@ -32,14 +32,14 @@ from typing import Any, Callable, Iterable
 import numpy as np
 import pandas as pd
 
-from models.diary import Diary, TimeSettings
-from models.errors import LagwiseError, ProjectError
-from models.readers import read_table
-from models.results import FitResult
-from models.spec import (
+from lagwise.models.diary import Diary, TimeSettings
+from lagwise.models.errors import LagwiseError, ProjectError
+from lagwise.models.readers import read_table
+from lagwise.models.results import FitResult
+from lagwise.models.spec import (
     ESTIMATORS, IDENTIFICATIONS, INNOVATION_FORMS, MISSING, FitOptions, ModelSpec, State,
 )
-from models.timegrid import diary_from_frame
+from lagwise.models.timegrid import diary_from_frame
 
 FORMAT = "lagwise-project"
 FORMAT_VERSION = 1
@@ -247,7 +247,7 @@ def project_diary(project: Project, table: pd.DataFrame | None = None,
     diary = diary_from_frame(table, project.items, project.time, project.missing_codes,
                              source=source, prompts_per_day=project.prompts_per_day)
     if prepared and project.preparation:
-        from models.preparation import apply_steps, steps_from_json  # loads statistics modules
+        from lagwise.models.preparation import apply_steps, steps_from_json  # loads statistics modules
 
         diary = apply_steps(diary, steps_from_json(list(project.preparation)))
     return diary
@@ -761,7 +761,7 @@ def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
                   for i, v in enumerate(_list(doc["missing_codes"], "missing_codes", MAX_LIST)))
     preparation = _list(doc["preparation"], "preparation", MAX_LIST)
     if preparation:
-        from models.preparation import steps_from_json  # loads statistics modules
+        from lagwise.models.preparation import steps_from_json  # loads statistics modules
 
         try:
             steps_from_json(preparation)

@@ -26,7 +26,7 @@ import numpy as np
 import pandas as pd
 from pandas.tseries.api import guess_datetime_format
 
-from models.errors import DataError
+from lagwise.models.errors import DataError
 
 TEXT_SUFFIXES = (".csv", ".tsv", ".txt", ".dat")
 EXCEL_SUFFIXES = (".xlsx", ".xlsm")

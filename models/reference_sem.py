@@ -40,8 +40,8 @@ import numpy as np
 import pandas as pd
 from threadpoolctl import threadpool_limits
 
-from models.spec import ModelSpec
-from models.windows import LagWindows
+from lagwise.models.spec import ModelSpec
+from lagwise.models.windows import LagWindows
 
 
 @dataclass(frozen=True)

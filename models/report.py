@@ -2,8 +2,8 @@
 
 from __future__ import annotations
 
-from models.lag2check import Lag2Check
-from models.results import FitResult
+from lagwise.models.lag2check import Lag2Check
+from lagwise.models.results import FitResult
 
 KIND_TITLES = (
     ("loading", "Loadings (state -> item)"),

@@ -10,7 +10,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from models.spec import FitOptions, ModelSpec
+from lagwise.models.spec import FitOptions, ModelSpec
 
 CAUTION_IDIOGRAPHIC = (
     "These are one person's estimates from a limited number of prompts: they are uncertain, "

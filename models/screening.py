@@ -33,11 +33,11 @@ import statsmodels.api as sm
 from statsmodels.tools.sm_exceptions import InterpolationWarning
 from statsmodels.tsa.stattools import adfuller, kpss
 
-from models.diary import Diary
-from models.errors import DataError
-from models.estimate import MIN_WINDOWS_PER_PARAMETER
-from models.progress import Monitor, checkpoint
-from models.windows import lag_windows
+from lagwise.models.diary import Diary
+from lagwise.models.errors import DataError
+from lagwise.models.estimate import MIN_WINDOWS_PER_PARAMETER
+from lagwise.models.progress import Monitor, checkpoint
+from lagwise.models.windows import lag_windows
 
 ACF_LAGS = 5
 ALPHA = 0.05               # level of the ADF and KPSS verdicts

@@ -21,10 +21,10 @@ from datetime import date, timedelta
 
 import numpy as np
 
-from models.diary import Diary
-from models.errors import SpecError
-from models.lyapunov import companion_covariance
-from models.spec import ModelSpec
+from lagwise.models.diary import Diary
+from lagwise.models.errors import SpecError
+from lagwise.models.lyapunov import companion_covariance
+from lagwise.models.spec import ModelSpec
 
 
 def autocorrelation_vector(spec: ModelSpec,

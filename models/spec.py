@@ -16,7 +16,7 @@ from typing import Literal
 
 import numpy as np
 
-from models.errors import SpecError
+from lagwise.models.errors import SpecError
 
 InnovationForm = Literal["free", "independent", "partial"]
 Identification = Literal["marker", "variance"]

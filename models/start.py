@@ -11,8 +11,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from models.lyapunov import companion_covariance, spectral_radius
-from models.parameters import Matrices, ParameterLayout
+from lagwise.models.lyapunov import companion_covariance, spectral_radius
+from lagwise.models.parameters import Matrices, ParameterLayout
 
 
 def pairwise_cross_cov(x: np.ndarray, y: np.ndarray) -> np.ndarray:

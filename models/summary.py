@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from models.diary import Diary
-from models.windows import lag_windows
+from lagwise.models.diary import Diary
+from lagwise.models.windows import lag_windows
 
 WINDOW_DEPTHS = (1, 2)
 

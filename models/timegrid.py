@@ -22,9 +22,9 @@ from typing import Iterable, Sequence
 import numpy as np
 import pandas as pd
 
-from models.diary import Diary, TimeSettings
-from models.errors import DataError
-from models.readers import (
+from lagwise.models.diary import Diary, TimeSettings
+from lagwise.models.errors import DataError
+from lagwise.models.readers import (
     is_missing_cell,
     looks_like_dates,
     numeric_cells,

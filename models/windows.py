@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from models.diary import Diary
+from lagwise.models.diary import Diary
 
 
 @dataclass(frozen=True, eq=False)

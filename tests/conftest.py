@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from models.diary import TimeSettings
+from lagwise.models.diary import TimeSettings
 
 GRID = TimeSettings(mode="grid", day="day", prompt="prompt")
 

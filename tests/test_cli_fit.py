@@ -11,11 +11,11 @@ from pathlib import Path
 
 import pytest
 
-from desktop.cli import main
-from models.diary import TimeSettings
-from models.estimate import fit
-from models.spec import make_spec
-from models.timegrid import load_diary
+from lagwise.desktop.cli import main
+from lagwise.models.diary import TimeSettings
+from lagwise.models.estimate import fit
+from lagwise.models.spec import make_spec
+from lagwise.models.timegrid import load_diary
 
 DEMO = Path(__file__).resolve().parents[1] / "resources" / "demo" / "demo_diary.csv"
 STATES = ["--state", "tension=tense,restless,worried", "--state", "mood=sad,flat,hopeless",

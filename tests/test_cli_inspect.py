@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from desktop.cli import main
+from lagwise.desktop.cli import main
 
 GRID_ARGS = ["--day", "day", "--prompt", "prompt"]
 

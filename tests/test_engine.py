@@ -15,14 +15,14 @@ from scipy.stats import chi2 as chi2_dist
 from scipy.stats import ncx2
 from two_state_model import SPEC, TRUE
 
-from models.errors import Cancelled, SpecError
-from models.estimate import fit
-from models.fitindices import rmsea_interval
-from models.lyapunov import companion_covariance, solve_lyapunov
-from models.patterns import PatternData
-from models.results import FitResult
-from models.simulate import simulate_diary
-from models.spec import make_spec
+from lagwise.models.errors import Cancelled, SpecError
+from lagwise.models.estimate import fit
+from lagwise.models.fitindices import rmsea_interval
+from lagwise.models.lyapunov import companion_covariance, solve_lyapunov
+from lagwise.models.patterns import PatternData
+from lagwise.models.results import FitResult
+from lagwise.models.simulate import simulate_diary
+from lagwise.models.spec import make_spec
 
 
 @pytest.fixture(scope="module")
@@ -118,7 +118,7 @@ def test_kronecker_lyapunov_matches_scipy():
 def test_saturated_em_is_a_maximum(diary):
     # The EM solution is a stationary point of the full-information likelihood (Dempster,
     # Laird & Rubin 1977): its gradient vanishes, and perturbations lower the likelihood.
-    from models.windows import lag_windows
+    from lagwise.models.windows import lag_windows
     data = PatternData(lag_windows(diary, 1).data)
     mu, sigma, ll, ok = data.saturated()
     assert ok and data.n_patterns > 3

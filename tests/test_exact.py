@@ -9,10 +9,10 @@ import pytest
 from scipy.stats import multivariate_normal
 from two_state_model import SPEC, TRUE
 
-from models.estimate import fit
-from models.exact import ExactObjective, _join_days, _window_start
-from models.simulate import simulate_diary
-from models.spec import FitOptions
+from lagwise.models.estimate import fit
+from lagwise.models.exact import ExactObjective, _join_days, _window_start
+from lagwise.models.simulate import simulate_diary
+from lagwise.models.spec import FitOptions
 
 
 def test_exact_and_window_estimates_agree_on_long_complete_series():
@@ -61,11 +61,11 @@ def test_exact_loglik_equals_dense_density_of_each_day():
     # days of the normal log-density with the block-Toeplitz covariance (common practice).
     diary = simulate_diary(SPEC, days=4, prompts_per_day=4, p_missed=0.2, seed=8, **TRUE)
     objective = ExactObjective(diary, SPEC, FitOptions(estimator="exact"))
-    from models.parameters import Matrices
+    from lagwise.models.parameters import Matrices
     m = Matrices(nu=TRUE["intercepts"], lam=TRUE["loadings"], theta=TRUE["unique"], d=np.zeros(6),
                  lagged=np.array(TRUE["lagged"]), psi=TRUE["innovation"])
     theta = objective.layout.pack(m)
-    from models.lyapunov import stationary_covariance
+    from lagwise.models.lyapunov import stationary_covariance
     phi = [stationary_covariance(TRUE["lagged"], TRUE["innovation"])]
     for _ in range(3):
         phi.append(TRUE["lagged"][0] @ phi[-1])
@@ -101,8 +101,8 @@ def test_e1_exact_fit_against_the_published_reference():
         results_varmax,
     )
 
-    from models.diary import Diary
-    from models.spec import ModelSpec, State
+    from lagwise.models.diary import Diary
+    from lagwise.models.spec import ModelSpec, State
 
     raw = np.asarray(results_varmax.lutkepohl_data, dtype=float)
     y = np.diff(np.log(raw), axis=0)[:75]

@@ -22,13 +22,13 @@ import statsmodels.api as sm
 from scipy.linalg import solve_discrete_lyapunov
 from statsmodels.tsa.api import VAR
 
-from models import reference_sem
-from models.diary import Diary
-from models.estimate import fit
-from models.objective import WindowObjective
-from models.simulate import simulate_diary
-from models.spec import FitOptions, make_spec
-from models.windows import lag_windows
+from lagwise.models import reference_sem
+from lagwise.models.diary import Diary
+from lagwise.models.estimate import fit
+from lagwise.models.objective import WindowObjective
+from lagwise.models.simulate import simulate_diary
+from lagwise.models.spec import FitOptions, make_spec
+from lagwise.models.windows import lag_windows
 
 # two states with three items each; one item's loading is small so the states differ
 LAM = np.array([[1.0, 0.0], [0.8, 0.0], [0.6, 0.0], [0.0, 1.0], [0.0, 1.2], [0.0, 0.7]])

@@ -24,8 +24,8 @@ from scipy.stats import multivariate_normal
 from statsmodels.tsa.statespace.dynamic_factor import DynamicFactor
 from statsmodels.tsa.statespace.tests.results import results_dynamic_factor, results_varmax
 
-from models.errors import EstimationError
-from models.kalman import filter_plan, kalman_gradient, kalman_loglik, kalman_smooth
+from lagwise.models.errors import EstimationError
+from lagwise.models.kalman import filter_plan, kalman_gradient, kalman_loglik, kalman_smooth
 
 
 # --------------------------------------------------------------------------- (a) e1 data
@@ -346,7 +346,7 @@ def test_joined_days_reach_a_reused_steady_state_and_match_statsmodels():
     assert np.allclose(st.smoothed_cov, ref.smoothed_state_cov.transpose(2, 0, 1), atol=1e-10)
     # the steady state was found and reused: at least the last two complete day-and-night
     # cycles add no new covariances
-    from models.kalman import _covariances, _system
+    from lagwise.models.kalman import _covariances, _system
     cov = _covariances(filter_plan(y, segment), _system(LAM_SM, THETA_SM, [B_SM], np.eye(2), None))
     assert cov.size <= y.shape[0] - 2 * (prompts + night)
 
@@ -362,7 +362,7 @@ def test_gradient_with_shared_and_reused_covariances():
     _flat_gradient_check(lam, lagged, psi, np.zeros(3), THETA, y, np.repeat(np.arange(10), 6))
     joined = np.vstack([y[:30], np.full((5, 3), np.nan), rng.normal(size=(45, 3)) + NU])
     _flat_gradient_check(lam, lagged, psi, np.zeros(3), THETA, joined, np.zeros(80, int))
-    from models.kalman import _covariances, _system   # the reuse did happen here
+    from lagwise.models.kalman import _covariances, _system   # the reuse did happen here
     sys = _system(lam, THETA, lagged, psi, None)
     assert _covariances(filter_plan(joined, np.zeros(80)), sys).size < 70
 

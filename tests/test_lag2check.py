@@ -30,13 +30,13 @@ import pytest
 from scipy.stats import binom, chi2, ncx2
 from statsmodels.stats.multitest import multipletests
 
-from models.estimate import estimate_windows, fit
-from models.lag2check import holm, lag2_check, lag2_version
-from models.objective import WindowObjective
-from models.parameters import Matrices
-from models.simulate import simulate_diary
-from models.spec import FitOptions, make_spec
-from models.windows import LagWindows, lag_windows
+from lagwise.models.estimate import estimate_windows, fit
+from lagwise.models.lag2check import holm, lag2_check, lag2_version
+from lagwise.models.objective import WindowObjective
+from lagwise.models.parameters import Matrices
+from lagwise.models.simulate import simulate_diary
+from lagwise.models.spec import FitOptions, make_spec
+from lagwise.models.windows import LagWindows, lag_windows
 
 STATES = {"Tension": ["tense", "restless", "worried"], "Mood": ["cheerful", "content", "relaxed"]}
 SPEC1 = make_spec(STATES, lags=1)

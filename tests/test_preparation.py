@@ -9,9 +9,9 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 
-from models.diary import TimeSettings
-from models.errors import DataError, ProjectError
-from models.preparation import (
+from lagwise.models.diary import TimeSettings
+from lagwise.models.errors import DataError, ProjectError
+from lagwise.models.preparation import (
     STEP_NAMES,
     Step,
     apply_steps,
@@ -20,7 +20,7 @@ from models.preparation import (
     steps_to_json,
     usual_order,
 )
-from models.timegrid import diary_from_frame
+from lagwise.models.timegrid import diary_from_frame
 
 GRID = TimeSettings(mode="grid", day="day", prompt="prompt")
 

@@ -25,20 +25,20 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from desktop.cli import main
-from models.diary import TimeSettings
-from models.errors import DataError, LagwiseError, ProjectError, SpecError
-from models.estimate import fit
-from models.preparation import Step, apply_steps, steps_to_json
-from models.project import (
+from lagwise.desktop.cli import main
+from lagwise.models.diary import TimeSettings
+from lagwise.models.errors import DataError, LagwiseError, ProjectError, SpecError
+from lagwise.models.estimate import fit
+from lagwise.models.preparation import Step, apply_steps, steps_to_json
+from lagwise.models.project import (
     FORMAT_VERSION, MAX_DEPTH, LinkedDataChanged, LinkedDataMissing, Project,
     ProjectVersionTooNew, discard_recovery, embed_file, embed_table, file_sha256,
     find_recoveries, find_recovery, link_file, open_project, project_diary, project_table,
     recovery_path, relink_data, save_project, table_from_json, table_to_json, upgrade_0_to_1,
     write_recovery,
 )
-from models.spec import FitOptions, make_spec
-from models.timegrid import diary_from_frame
+from lagwise.models.spec import FitOptions, make_spec
+from lagwise.models.timegrid import diary_from_frame
 
 DEMO = Path(__file__).resolve().parents[1] / "resources" / "demo" / "demo_diary.csv"
 GRID = TimeSettings(mode="grid", day="day", prompt="prompt")

@@ -8,8 +8,8 @@ import pyreadstat
 import pytest
 from pandas.testing import assert_frame_equal
 
-from models.errors import DataError
-from models.readers import numeric_cells, read_table, sniff_format, time_cells
+from lagwise.models.errors import DataError
+from lagwise.models.readers import numeric_cells, read_table, sniff_format, time_cells
 
 
 @pytest.fixture

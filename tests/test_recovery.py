@@ -17,9 +17,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from models.estimate import fit
-from models.simulate import simulate_diary
-from models.spec import FitOptions, make_spec
+from lagwise.models.estimate import fit
+from lagwise.models.simulate import simulate_diary
+from lagwise.models.spec import FitOptions, make_spec
 
 SPEC = make_spec({"calm": ["calm1", "calm2", "calm3"], "tense": ["tense1", "tense2", "tense3"],
                   "tired": ["tired1", "tired2", "tired3"]}, lags=1)

@@ -13,8 +13,8 @@ from scipy import stats
 from statsmodels.tools.sm_exceptions import InterpolationWarning
 from statsmodels.tsa.stattools import acf, adfuller, kpss
 
-from models.diary import TimeSettings
-from models.screening import (
+from lagwise.models.diary import TimeSettings
+from lagwise.models.screening import (
     compliance_by_week,
     format_screening,
     is_strong_trend,
@@ -25,8 +25,8 @@ from models.screening import (
     weekdays,
     within_segment_acf,
 )
-from models.timegrid import diary_from_frame
-from models.windows import lag_windows
+from lagwise.models.timegrid import diary_from_frame
+from lagwise.models.windows import lag_windows
 
 ORDER = TimeSettings(mode="order")
 GRID = TimeSettings(mode="grid", day="day", prompt="prompt")

@@ -13,11 +13,11 @@ import numpy as np
 import pytest
 from scipy.linalg import solve_discrete_lyapunov
 
-from models.errors import EstimationError
-from models.lyapunov import companion_covariance
-from models.lyapunov import stationary_covariance
-from models.simulate import simulate_diary
-from models.spec import make_spec
+from lagwise.models.errors import EstimationError
+from lagwise.models.lyapunov import companion_covariance
+from lagwise.models.lyapunov import stationary_covariance
+from lagwise.models.simulate import simulate_diary
+from lagwise.models.spec import make_spec
 
 LAM = np.array([[1.0, 0.0], [0.8, 0.0], [0.0, 1.0], [0.0, 1.2]])
 NU = np.array([1.0, -2.0, 0.5, 3.0])

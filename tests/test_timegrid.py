@@ -13,9 +13,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from models.diary import Diary, TimeSettings
-from models.errors import DataError, LagwiseError
-from models.timegrid import diary_from_frame, load_diary
+from lagwise.models.diary import Diary, TimeSettings
+from lagwise.models.errors import DataError, LagwiseError
+from lagwise.models.timegrid import diary_from_frame, load_diary
 
 STAMPS = TimeSettings(mode="timestamp", time="time")
 

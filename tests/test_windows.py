@@ -8,9 +8,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from models.diary import TimeSettings
-from models.timegrid import diary_from_frame
-from models.windows import lag_windows
+from lagwise.models.diary import TimeSettings
+from lagwise.models.timegrid import diary_from_frame
+from lagwise.models.windows import lag_windows
 
 
 @pytest.mark.parametrize("days, prompts", [(1, 3), (3, 5), (7, 6), (14, 10)])

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from models.spec import make_spec
+from lagwise.models.spec import make_spec
 
 SPEC = make_spec({"calm": ["c1", "c2", "c3"], "drive": ["d1", "d2", "d3"]}, lags=1)
 TRUE = dict(

@@ -23,15 +23,15 @@ from PySide6.QtWidgets import (
     QScrollArea, QSplitter, QTableView, QTabWidget, QToolButton, QVBoxLayout, QWidget,
 )
 
-from desktop import style
-from desktop.export import export_menu
-from desktop.import_dialog import counted
-from desktop.pages.screening_view import ScreeningView
-from desktop.session import Session
-from models.errors import LagwiseError
-from models.parameters import ParameterLayout
-from models.preparation import describe
-from models.summary import diary_summary
+from lagwise.desktop import style
+from lagwise.desktop.export import export_menu
+from lagwise.desktop.import_dialog import counted
+from lagwise.desktop.pages.screening_view import ScreeningView
+from lagwise.desktop.session import Session
+from lagwise.models.errors import LagwiseError
+from lagwise.models.parameters import ParameterLayout
+from lagwise.models.preparation import describe
+from lagwise.models.summary import diary_summary
 
 ROW_HEIGHT = 120   # pixels per item plot
 MAX_DAY_TICKS = 12  # day labels under the time series

@@ -23,10 +23,10 @@ from PySide6.QtWidgets import (
     QTableWidgetItem, QVBoxLayout, QWidget,
 )
 
-from desktop import style
-from desktop.session import Session
-from models.errors import LagwiseError
-from models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec, full_mask, inertia_mask
+from lagwise.desktop import style
+from lagwise.desktop.session import Session
+from lagwise.models.errors import LagwiseError
+from lagwise.models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec, full_mask, inertia_mask
 
 ESTIMATOR_NAMES = {
     "stationary": "Stationary lag windows (recommended start)",
@@ -70,7 +70,7 @@ CELL = Qt.ItemDataRole.UserRole + 1
 
 def available_estimators() -> tuple[str, ...]:
     """Estimators listed in models.spec.ESTIMATORS that the installed engine can run."""
-    engine = {"exact": "models.exact"}
+    engine = {"exact": "lagwise.models.exact"}
     return tuple(e for e in ESTIMATORS
                  if e not in engine or importlib.util.find_spec(engine[e]) is not None)
 

@@ -22,12 +22,12 @@ from PySide6.QtWidgets import (
     QSplitter, QTableView, QToolButton, QVBoxLayout, QWidget,
 )
 
-from desktop import style
-from desktop.export import export_menu
-from models.diary import Diary
-from models.errors import DataError
-from models.preparation import STEP_LABELS, STEP_NAMES, Step, apply_steps, describe, usual_order
-from models.screening import ItemScreen, Profile, Screening, format_p, screen_diary, weekdays
+from lagwise.desktop import style
+from lagwise.desktop.export import export_menu
+from lagwise.models.diary import Diary
+from lagwise.models.errors import DataError
+from lagwise.models.preparation import STEP_LABELS, STEP_NAMES, Step, apply_steps, describe, usual_order
+from lagwise.models.screening import ItemScreen, Profile, Screening, format_p, screen_diary, weekdays
 
 PLOT_ROW_HEIGHT = 190   # pixels per row of item plots
 MAX_DAY_TICKS = 6

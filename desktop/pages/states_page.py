@@ -18,9 +18,9 @@ from PySide6.QtWidgets import (
     QTreeWidgetItem, QVBoxLayout, QWidget,
 )
 
-from desktop import style
-from desktop.session import Session
-from models.spec import ModelSpec, State
+from lagwise.desktop import style
+from lagwise.desktop.session import Session
+from lagwise.models.spec import ModelSpec, State
 
 ITEMS_MIME = "application/x-lagwise-items"
 NAME_ROLE = Qt.ItemDataRole.UserRole + 1

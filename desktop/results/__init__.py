@@ -1,5 +1,5 @@
 """The results views of the window: measurement, dynamics, innovations, fit, parameters."""
 
-from desktop.results.view import ResultsView
+from lagwise.desktop.results.view import ResultsView
 
 __all__ = ["ResultsView"]

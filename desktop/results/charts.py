@@ -13,8 +13,8 @@ import pyqtgraph as pg
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor, QFont
 
-from desktop.results.palette import NEGATIVE, NEUTRAL, POSITIVE
-from desktop.style import INK
+from lagwise.desktop.results.palette import NEGATIVE, NEUTRAL, POSITIVE
+from lagwise.desktop.style import INK
 
 
 def style_plot(plot: pg.PlotItem, title: str) -> None:

@@ -18,9 +18,9 @@ from PySide6.QtWidgets import (QGraphicsEllipseItem, QGraphicsItem, QGraphicsPat
                                QGraphicsRectItem, QGraphicsScene, QGraphicsSimpleTextItem, QGraphicsTextItem,
                                QGraphicsView)
 
-from desktop.results.palette import LABEL_FILL, NEGATIVE, NEUTRAL, NODE_FILL, POSITIVE, effect_pen, line_width
-from desktop.style import INK
-from models.results import Parameter
+from lagwise.desktop.results.palette import LABEL_FILL, NEGATIVE, NEUTRAL, NODE_FILL, POSITIVE, effect_pen, line_width
+from lagwise.desktop.style import INK
+from lagwise.models.results import Parameter
 
 NODE_GAP = 340.0          # distance between neighbouring states on the circle
 LABEL_POINT_SIZE = 11.0

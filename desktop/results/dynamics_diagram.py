@@ -10,11 +10,11 @@ from __future__ import annotations
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QComboBox, QLabel, QSplitter, QVBoxLayout, QWidget
 
-from desktop.results.charts import bar_chart, plot_widget, style_plot
-from desktop.results.diagram import DiagramScene, DiagramView, Link, Node
-from desktop.results.tables import fmt, lagged_parameters, parameter_tooltip, paths_model
-from desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
-from models.results import FitResult, Parameter
+from lagwise.desktop.results.charts import bar_chart, plot_widget, style_plot
+from lagwise.desktop.results.diagram import DiagramScene, DiagramView, Link, Node
+from lagwise.desktop.results.tables import fmt, lagged_parameters, parameter_tooltip, paths_model
+from lagwise.desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
+from lagwise.models.results import FitResult, Parameter
 
 LABEL_MODES = {"standardized": "Standardized", "estimate": "Estimate"}
 

@@ -11,10 +11,10 @@ import html
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QLabel, QScrollArea, QSplitter, QVBoxLayout, QWidget
 
-from desktop.results.palette import NEGATIVE, POSITIVE
-from desktop.results.tables import fit_model, fit_rows, fmt
-from desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
-from models.results import FitResult
+from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
+from lagwise.desktop.results.tables import fit_model, fit_rows, fmt
+from lagwise.desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
+from lagwise.models.results import FitResult
 
 ESTIMATOR_NAMES = {"stationary": "stationary lag windows", "first-copy-free": "lag windows, first copy free",
                    "exact": "exact likelihood (Kalman filter)"}

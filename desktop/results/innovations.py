@@ -10,10 +10,10 @@ from __future__ import annotations
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QComboBox, QHeaderView, QLabel, QSplitter, QVBoxLayout, QWidget
 
-from desktop.results.diagram import DiagramScene, DiagramView, Link, Node
-from desktop.results.tables import MatrixModel, fmt, parameter_tooltip
-from desktop.results.widgets import ResultsPanel, fit_height, note_label, section_label, table_view
-from models.results import FitResult, Parameter
+from lagwise.desktop.results.diagram import DiagramScene, DiagramView, Link, Node
+from lagwise.desktop.results.tables import MatrixModel, fmt, parameter_tooltip
+from lagwise.desktop.results.widgets import ResultsPanel, fit_height, note_label, section_label, table_view
+from lagwise.models.results import FitResult, Parameter
 
 VIEWS = {"correlation": "Correlations", "partial": "Partial correlations"}
 

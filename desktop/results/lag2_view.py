@@ -17,13 +17,13 @@ from PySide6.QtCore import QSortFilterProxyModel, Qt, Signal
 from PySide6.QtGui import QBrush, QColor, QFont
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QPushButton
 
-from desktop.results.palette import NEGATIVE, POSITIVE
-from desktop.results.tables import SORT_ROLE, Column, RecordsModel, fmt
-from desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
-from desktop.style import WARNING
-from models.lag2check import Lag2Check, PathTest, lag1_version
-from models.results import FitResult
-from models.spec import ModelSpec
+from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
+from lagwise.desktop.results.tables import SORT_ROLE, Column, RecordsModel, fmt
+from lagwise.desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
+from lagwise.desktop.style import WARNING
+from lagwise.models.lag2check import Lag2Check, PathTest, lag1_version
+from lagwise.models.results import FitResult
+from lagwise.models.spec import ModelSpec
 
 TEST_NAMES = {"lag2": "Lag-2 path", "unique_autocorrelation": "Unique autocorrelation"}
 

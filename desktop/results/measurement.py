@@ -11,10 +11,10 @@ import pyqtgraph as pg
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QSplitter, QVBoxLayout, QWidget
 
-from desktop.results.charts import bar_chart, style_plot
-from desktop.results.tables import fmt, loading_rows, loadings_model
-from desktop.results.widgets import ResultsPanel, fit_height, note_label, table_view, table_width
-from models.results import FitResult
+from lagwise.desktop.results.charts import bar_chart, style_plot
+from lagwise.desktop.results.tables import fmt, loading_rows, loadings_model
+from lagwise.desktop.results.widgets import ResultsPanel, fit_height, note_label, table_view, table_width
+from lagwise.models.results import FitResult
 
 
 class MeasurementPanel(ResultsPanel):

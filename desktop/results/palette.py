@@ -11,7 +11,7 @@ from __future__ import annotations
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor, QPen
 
-from desktop.style import MUTED, NEGATIVE, PAPER, POSITIVE
+from lagwise.desktop.style import MUTED, NEGATIVE, PAPER, POSITIVE
 
 NEUTRAL = MUTED
 NODE_FILL = "#eef5f4"

@@ -9,9 +9,9 @@ from __future__ import annotations
 from PySide6.QtCore import QRegularExpression, QSortFilterProxyModel, Qt
 from PySide6.QtWidgets import QComboBox, QLabel, QLineEdit
 
-from desktop.results.tables import KIND_NAMES, SORT_ROLE, parameters_model
-from desktop.results.widgets import ResultsPanel, note_label, table_view
-from models.results import CAUTION_SE, FitResult
+from lagwise.desktop.results.tables import KIND_NAMES, SORT_ROLE, parameters_model
+from lagwise.desktop.results.widgets import ResultsPanel, note_label, table_view
+from lagwise.models.results import CAUTION_SE, FitResult
 
 
 class ParameterFilter(QSortFilterProxyModel):

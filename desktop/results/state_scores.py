@@ -22,12 +22,12 @@ from PySide6.QtGui import QBrush, QColor, QPainterPath, QPen
 from PySide6.QtWidgets import (QCheckBox, QGraphicsPathItem, QLabel, QScrollArea, QStackedWidget,
                                QVBoxLayout, QWidget)
 
-from desktop.results.charts import style_plot
-from desktop.results.tables import Column, RecordsModel
-from desktop.results.widgets import ResultsPanel, note_label
-from desktop.style import DAY_SHADE, INK, MUTED, POSITIVE, RULE, SERIES
-from models.diary import Diary
-from models.results import FitResult
+from lagwise.desktop.results.charts import style_plot
+from lagwise.desktop.results.tables import Column, RecordsModel
+from lagwise.desktop.results.widgets import ResultsPanel, note_label
+from lagwise.desktop.style import DAY_SHADE, INK, MUTED, POSITIVE, RULE, SERIES
+from lagwise.models.diary import Diary
+from lagwise.models.results import FitResult
 
 Z95 = 1.96             # two-sided 95% normal quantile (common practice)
 ROW_HEIGHT = 170       # pixels per state plot

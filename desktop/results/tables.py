@@ -16,8 +16,8 @@ import numpy as np
 from PySide6.QtCore import QAbstractTableModel, QModelIndex, QPersistentModelIndex, Qt
 from PySide6.QtGui import QBrush, QColor
 
-from desktop.results.palette import NEGATIVE, POSITIVE
-from models.results import FitResult, Parameter
+from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
+from lagwise.models.results import FitResult, Parameter
 
 MISSING = "—"
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1

@@ -9,16 +9,16 @@ from __future__ import annotations
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QStackedWidget, QTabWidget, QVBoxLayout, QWidget
 
-from desktop.results.dynamics_diagram import DynamicsPanel
-from desktop.results.fit_view import FitPanel
-from desktop.results.innovations import InnovationsPanel
-from desktop.results.measurement import MeasurementPanel
-from desktop.results.lag2_view import Lag2View
-from desktop.results.parameters import ParametersPanel
-from desktop.results.state_scores import StateScoresPanel
-from desktop.results.widgets import ResultsPanel
-from models.diary import Diary
-from models.results import FitResult
+from lagwise.desktop.results.dynamics_diagram import DynamicsPanel
+from lagwise.desktop.results.fit_view import FitPanel
+from lagwise.desktop.results.innovations import InnovationsPanel
+from lagwise.desktop.results.measurement import MeasurementPanel
+from lagwise.desktop.results.lag2_view import Lag2View
+from lagwise.desktop.results.parameters import ParametersPanel
+from lagwise.desktop.results.state_scores import StateScoresPanel
+from lagwise.desktop.results.widgets import ResultsPanel
+from lagwise.models.diary import Diary
+from lagwise.models.results import FitResult
 
 EMPTY_MESSAGE = ("No results yet.\n\nAssign items to states, choose the lagged paths, "
                  "then press Estimate: the loadings, dynamics, innovations, fit and every "

@@ -10,8 +10,8 @@ from PySide6.QtWidgets import (QAbstractItemView, QFileDialog, QHBoxLayout, QHea
                                QMenu, QMessageBox, QSizePolicy, QTableView, QToolButton,
                                QVBoxLayout, QWidget)
 
-from desktop.export import Picture, save_scene_svg, save_table_csv, save_widget_png
-from models.results import FitResult
+from lagwise.desktop.export import Picture, save_scene_svg, save_table_csv, save_widget_png
+from lagwise.models.results import FitResult
 
 _FILTERS = {"png": "PNG picture (*.png)", "svg": "SVG picture (*.svg)", "csv": "CSV table (*.csv)"}
 

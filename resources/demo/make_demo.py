@@ -25,10 +25,10 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from models.lyapunov import spectral_radius
-from models.lyapunov import stationary_covariance
-from models.simulate import simulate_diary
-from models.spec import ModelSpec, State
+from lagwise.models.lyapunov import spectral_radius
+from lagwise.models.lyapunov import stationary_covariance
+from lagwise.models.simulate import simulate_diary
+from lagwise.models.spec import ModelSpec, State
 
 HERE = Path(__file__).resolve().parent
 SEED = 20260304

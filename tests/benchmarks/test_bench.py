@@ -14,7 +14,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from models.benchmark import (
+from lagwise.models.benchmark import (
     EXACT_CASE, EXACT_MEMORY_CASE, EXACT_SIZES, MEMORY_CASE, MEMORY_TARGET_BYTES, SPEED_CASES,
     BenchReport, format_report, measure_exact_evaluation, measure_exact_speed, measure_memory,
     measure_speed,

@@ -33,7 +33,7 @@ def isolated_settings(tmp_path_factory):
 @pytest.fixture(scope="session")
 def lagwise_app(qapp):
     """The QApplication with Lagwise's names and look (desktop.app.make_app)."""
-    from desktop.app import make_app
+    from lagwise.desktop.app import make_app
 
     return make_app()
 
@@ -48,8 +48,8 @@ def artifacts() -> Path:
 @pytest.fixture
 def session(lagwise_app):
     """A session holding the bundled demo diary and its model."""
-    from desktop.app import load_demo
-    from desktop.session import Session
+    from lagwise.desktop.app import load_demo
+    from lagwise.desktop.session import Session
 
     s = Session()
     load_demo(s)

@@ -9,11 +9,11 @@ from pathlib import Path
 
 import numpy as np
 
-from models.diary import Diary, TimeSettings
-from models.estimate import fit
-from models.results import FitResult
-from models.spec import FitOptions, ModelSpec
-from models.timegrid import load_diary
+from lagwise.models.diary import Diary, TimeSettings
+from lagwise.models.estimate import fit
+from lagwise.models.results import FitResult
+from lagwise.models.spec import FitOptions, ModelSpec
+from lagwise.models.timegrid import load_diary
 
 DEMO = Path(__file__).resolve().parents[2] / "resources" / "demo"
 

@@ -11,11 +11,11 @@ import numpy as np
 import pytest
 from PySide6.QtCore import Qt
 
-import desktop.pages.screening_view as screening_module
-from desktop.export import save_widget_png
-from desktop.pages.data_page import DataPage
-from models.preparation import Step
-from models.screening import format_p, screen_diary
+import lagwise.desktop.pages.screening_view as screening_module
+from lagwise.desktop.export import save_widget_png
+from lagwise.desktop.pages.data_page import DataPage
+from lagwise.models.preparation import Step
+from lagwise.models.screening import format_p, screen_diary
 
 
 @pytest.fixture
@@ -140,7 +140,7 @@ def test_screening_runs_only_when_shown_and_changed(page, session, qtbot, screen
 
 
 def test_no_model_means_no_parameter_count(session, lagwise_app, qtbot):
-    from desktop.session import EMPTY_SPEC
+    from lagwise.desktop.session import EMPTY_SPEC
 
     session.edit_spec(EMPTY_SPEC, "No states")
     page = DataPage(session)

@@ -12,10 +12,10 @@ import pytest
 
 from window_helpers import open_window, settle
 
-from desktop.app import load_demo
-from desktop.export import save_widget_png
-from desktop.mainwindow import PAGES
-from desktop.pages.dynamics_page import ESTIMATOR_HELP, DynamicsPage
+from lagwise.desktop.app import load_demo
+from lagwise.desktop.export import save_widget_png
+from lagwise.desktop.mainwindow import PAGES
+from lagwise.desktop.pages.dynamics_page import ESTIMATOR_HELP, DynamicsPage
 
 ESTIMATE_TIMEOUT_MS = 120_000
 

@@ -16,7 +16,7 @@ import pytest
 from PySide6.QtGui import QFont, QGuiApplication
 from PySide6.QtWidgets import QGraphicsScene, QGraphicsView, QLabel
 
-from desktop.export import DEFAULT_DPI, save_scene_svg, svg_resolution
+from lagwise.desktop.export import DEFAULT_DPI, save_scene_svg, svg_resolution
 
 
 def declared(path) -> tuple[float, float, list[float]]:

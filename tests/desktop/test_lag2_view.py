@@ -14,13 +14,13 @@ import numpy as np
 import pytest
 from PySide6.QtCore import Qt
 
-from desktop.export import save_table_csv, save_widget_png
-from desktop.results.palette import NEGATIVE, POSITIVE
-from desktop.results.lag2_view import Lag2View, adopted_spec, in_model
-from desktop.results.tables import fmt
-from models.lag2check import lag2_check
-from models.simulate import simulate_diary
-from models.spec import make_spec
+from lagwise.desktop.export import save_table_csv, save_widget_png
+from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
+from lagwise.desktop.results.lag2_view import Lag2View, adopted_spec, in_model
+from lagwise.desktop.results.tables import fmt
+from lagwise.models.lag2check import lag2_check
+from lagwise.models.simulate import simulate_diary
+from lagwise.models.spec import make_spec
 
 ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
 SPEC1 = make_spec({"Tension": ["tense", "restless", "worried"],

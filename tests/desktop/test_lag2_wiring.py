@@ -16,13 +16,13 @@ from PySide6.QtCore import Qt
 
 from window_helpers import import_file, open_window, settle
 
-from desktop.export import save_widget_png
-from desktop.mainwindow import JOB_ESTIMATE, JOB_LAG2, PAGES, MainWindow
-from desktop.results.lag2_view import adopted_spec
-from models.lag2check import lag2_check
-from models.preparation import Step
-from models.simulate import simulate_diary
-from models.spec import make_spec
+from lagwise.desktop.export import save_widget_png
+from lagwise.desktop.mainwindow import JOB_ESTIMATE, JOB_LAG2, PAGES, MainWindow
+from lagwise.desktop.results.lag2_view import adopted_spec
+from lagwise.models.lag2check import lag2_check
+from lagwise.models.preparation import Step
+from lagwise.models.simulate import simulate_diary
+from lagwise.models.spec import make_spec
 
 TIMEOUT_MS = 120_000
 SPEC1 = make_spec({"Tension": ["tense", "restless", "worried"],

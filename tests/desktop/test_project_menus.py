@@ -24,17 +24,17 @@ from PySide6.QtWidgets import QDialogButtonBox, QFileDialog, QMessageBox
 
 from window_helpers import import_file, open_window, settle
 
-from desktop.app import DEMO_DIARY, DEMO_TRUTH, start_window
-from desktop.export import table_rows
-from desktop.mainwindow import PAGES, MainWindow
-from desktop.project_files import AUTOSAVE_MS, MAX_RECENT, SETTINGS_RECENT
-from models.diary import TimeSettings
-from models.errors import DataError
-from models.preparation import Step, apply_steps
-from models.project import (
+from lagwise.desktop.app import DEMO_DIARY, DEMO_TRUTH, start_window
+from lagwise.desktop.export import table_rows
+from lagwise.desktop.mainwindow import PAGES, MainWindow
+from lagwise.desktop.project_files import AUTOSAVE_MS, MAX_RECENT, SETTINGS_RECENT
+from lagwise.models.diary import TimeSettings
+from lagwise.models.errors import DataError
+from lagwise.models.preparation import Step, apply_steps
+from lagwise.models.project import (
     Project, find_recoveries, link_file, open_project, recovery_path, save_project,
 )
-from models.spec import ModelSpec
+from lagwise.models.spec import ModelSpec
 
 TRUTH_SPEC = ModelSpec.from_json(json.loads(DEMO_TRUTH.read_text(encoding="utf-8"))["spec"])
 ESTIMATE_TIMEOUT_MS = 120_000
@@ -544,8 +544,8 @@ def test_lagwise_project_file_opens_it_in_the_window(qtbot, window, tmp_path, mo
 
 
 def test_missing_file_on_the_command_line_is_refused(lagwise_app):
-    from desktop.app import run_gui
-    from models.errors import LagwiseError
+    from lagwise.desktop.app import run_gui
+    from lagwise.models.errors import LagwiseError
 
     with pytest.raises(LagwiseError, match="no such file"):
         run_gui(["/no/such/project.lagwise"])
@@ -558,7 +558,7 @@ def test_a_project_saved_in_the_window_refits_at_the_command_line_without_its_da
     import json
     import shutil
 
-    from desktop.cli import main
+    from lagwise.desktop.cli import main
 
     data = tmp_path / "diary.csv"
     shutil.copy(DEMO_DIARY, data)
@@ -582,7 +582,7 @@ def test_a_project_saved_in_the_window_refits_at_the_command_line_without_its_da
 
 def test_results_out_of_date_when_saved_stay_out_of_date_when_opened(qtbot, window, tmp_path,
                                                                       monkeypatch):
-    from models.preparation import Step
+    from lagwise.models.preparation import Step
 
     import_demo(qtbot, window)
     window.session.edit_spec(TRUTH_SPEC, "Build the model")

@@ -18,11 +18,11 @@ from PySide6.QtCore import QPointF, Qt
 from PySide6.QtGui import QColor, QImage, QTextDocument
 from PySide6.QtWidgets import QGraphicsPolygonItem
 
-from desktop.results import ResultsView
-from desktop.results.tables import KIND_NAMES, SORT_ROLE, fmt
-from desktop.results.widgets import save
-from desktop.style import NEGATIVE, POSITIVE
-from models.results import CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO
+from lagwise.desktop.results import ResultsView
+from lagwise.desktop.results.tables import KIND_NAMES, SORT_ROLE, fmt
+from lagwise.desktop.results.widgets import save
+from lagwise.desktop.style import NEGATIVE, POSITIVE
+from lagwise.models.results import CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO
 from results_fixture import demo_result, demo_variant
 
 ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"

@@ -8,12 +8,12 @@ import pandas as pd
 import pytest
 from PySide6.QtCore import Qt
 
-from desktop.export import save_scene_svg, save_table_csv, save_widget_png
-from desktop.pages.screening_view import ScreeningView
-from models.diary import TimeSettings
-from models.preparation import Step, apply_steps
-from models.screening import screen_diary
-from models.timegrid import diary_from_frame, load_diary
+from lagwise.desktop.export import save_scene_svg, save_table_csv, save_widget_png
+from lagwise.desktop.pages.screening_view import ScreeningView
+from lagwise.models.diary import TimeSettings
+from lagwise.models.preparation import Step, apply_steps
+from lagwise.models.screening import screen_diary
+from lagwise.models.timegrid import diary_from_frame, load_diary
 
 DEMO = "resources/demo/demo_diary.csv"
 GRID = TimeSettings(mode="grid", day="day", prompt="prompt")

@@ -30,17 +30,17 @@ from PySide6.QtWidgets import QApplication, QDialogButtonBox, QMessageBox
 
 from window_helpers import open_window, settle
 
-from desktop.app import DEMO_DIARY, DEMO_TRUTH, load_demo, run_demo
-from desktop.export import save_widget_png, table_rows
-from desktop.mainwindow import PAGES, MainWindow
-from desktop.pages.states_page import ITEMS_MIME, NAME_ROLE
-from desktop.worker import Worker
-from models.diary import TimeSettings
-from models.errors import DataError
-from models.estimate import fit
-from models.progress import checkpoint
-from models.spec import ModelSpec
-from models.timegrid import load_diary
+from lagwise.desktop.app import DEMO_DIARY, DEMO_TRUTH, load_demo, run_demo
+from lagwise.desktop.export import save_widget_png, table_rows
+from lagwise.desktop.mainwindow import PAGES, MainWindow
+from lagwise.desktop.pages.states_page import ITEMS_MIME, NAME_ROLE
+from lagwise.desktop.worker import Worker
+from lagwise.models.diary import TimeSettings
+from lagwise.models.errors import DataError
+from lagwise.models.estimate import fit
+from lagwise.models.progress import checkpoint
+from lagwise.models.spec import ModelSpec
+from lagwise.models.timegrid import load_diary
 
 REPO = Path(__file__).resolve().parents[2]
 TRUTH_SPEC = ModelSpec.from_json(json.loads(DEMO_TRUTH.read_text(encoding="utf-8"))["spec"])
@@ -503,7 +503,7 @@ def test_demo_screenshot_is_a_large_png(tmp_path):
     env = {k: v for k, v in os.environ.items()
            if k not in ("QT_QPA_PLATFORM", "DISPLAY", "WAYLAND_DISPLAY")}
     env["XDG_CONFIG_HOME"] = str(tmp_path / "config")  # keep the user's settings untouched
-    done = subprocess.run([sys.executable, "-m", "desktop.cli", "demo", "--screenshot",
+    done = subprocess.run([sys.executable, "-m", "lagwise.desktop.cli", "demo", "--screenshot",
                            str(target)], cwd=REPO, env=env, capture_output=True, text=True,
                           timeout=300)
     assert done.returncode == 0, done.stderr

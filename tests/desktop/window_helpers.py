@@ -7,7 +7,7 @@ from pathlib import Path
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QApplication, QDialogButtonBox
 
-from desktop.mainwindow import MainWindow
+from lagwise.desktop.mainwindow import MainWindow
 
 
 def settle(qtbot, ms: int = 0) -> None:
