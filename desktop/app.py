@@ -61,20 +61,19 @@ def load_demo(session) -> None:
     from lagwise.models.diary import TimeSettings
     from lagwise.models.readers import read_table
     from lagwise.models.spec import ModelSpec
-    from lagwise.models.timegrid import diary_from_frame
 
     if not DEMO_DIARY.exists() or not DEMO_TRUTH.exists():
         raise ProjectError(f"the demo files are missing from {DEMO_FOLDER}")
     frame = read_table(DEMO_DIARY)
     time = TimeSettings(mode="grid", day="day", prompt="prompt")
     items = tuple(str(c) for c in frame.columns if c not in time.columns())
-    diary = diary_from_frame(frame, items, time, source=str(DEMO_DIARY))
+    settings = ImportSettings(path=str(DEMO_DIARY), items=items, time=time)
+    diary = settings.recipe.diary(frame, source=str(DEMO_DIARY))
     try:
         truth = json.loads(DEMO_TRUTH.read_text(encoding="utf-8"))
     except (OSError, ValueError) as exc:
         raise ProjectError(f"{DEMO_TRUTH}: cannot read the demo model ({exc})") from None
     spec = ModelSpec.from_json(truth["spec"])
-    settings = ImportSettings(path=str(DEMO_DIARY), items=items, time=time)
     session.load_data(frame, diary, settings, spec=spec)
     session.set_untitled_name("demo")
     session.mark_saved(None)  # the bundled demo as shipped: nothing to save yet

@@ -16,7 +16,7 @@ import argparse
 
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import DataError
-from lagwise.models.timegrid import load_diary
+from lagwise.models.recipe import DiaryRecipe
 
 
 def add_diary_arguments(parser: argparse.ArgumentParser, data: bool = True) -> None:
@@ -70,15 +70,15 @@ def split_list(text: str | None) -> list[str] | None:
     return [part.strip() for part in text.split(",") if part.strip()]
 
 
+def recipe_from_args(args: argparse.Namespace) -> DiaryRecipe:
+    """How the options say the data file becomes a diary."""
+    return DiaryRecipe.of(split_list(args.items), time_settings_from_args(args),
+                          split_list(args.missing_codes) or (), args.prompts_per_day)
+
+
 def diary_from_args(args: argparse.Namespace) -> Diary:
     """Read `args.data` into a Diary as the options say (a .lagwise project: its own diary)."""
     if str(args.data).lower().endswith(".lagwise"):
         from lagwise.models.project import load_project_diary
         return load_project_diary(args.data)
-    return load_diary(
-        args.data,
-        items=split_list(args.items),
-        time=time_settings_from_args(args),
-        missing_codes=split_list(args.missing_codes) or (),
-        prompts_per_day=args.prompts_per_day,
-    )
+    return recipe_from_args(args).read(args.data)

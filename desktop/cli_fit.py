@@ -27,7 +27,8 @@ from lagwise.models.project import (
 )
 from lagwise.models.report import format_lag2, format_result
 from lagwise.models.results import _finite
-from lagwise.models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec, State, full_mask, inertia_mask
+from lagwise.models.estimators import ESTIMATORS, MISSING, FitOptions
+from lagwise.models.spec import ModelSpec, State, full_mask, inertia_mask
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -101,8 +102,6 @@ def run(args: argparse.Namespace) -> int:
         if args.items is None:
             args.items = ",".join(spec.items)
         diary = diary_from_args(args)
-        if args.night_gap is not None and args.estimator != "exact":
-            raise SpecError("--night-gap needs --estimator exact")
         options = FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth,
                              night_gap=args.night_gap, max_iter=args.max_iter)
     result = fit(diary, spec, options)

@@ -25,7 +25,6 @@ from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import LagwiseError
 from lagwise.models.readers import SUPPORTED_SUFFIXES, looks_like_dates, numeric_cells, read_table
 from lagwise.models.summary import diary_summary
-from lagwise.models.timegrid import diary_from_frame
 
 ROLES: tuple[str, ...] = ("item", "day", "prompt number", "timestamp", "ignore")
 SINGLE_ROLES = ("day", "prompt number", "timestamp")  # at most one column each
@@ -326,14 +325,14 @@ class ImportDialog(QDialog):
             self._show_error("Choose at least two item columns (role 'item').")
             return
         try:
-            diary = diary_from_frame(self._frame, items, time, missing_codes=codes,
-                                     source=self._path, prompts_per_day=per_day)
+            settings = ImportSettings(path=self._path, items=items, time=time,
+                                      missing_codes=codes, prompts_per_day=per_day)
+            diary = settings.recipe.diary(self._frame, source=self._path)
         except LagwiseError as exc:
             self._show_error(str(exc))
             return
         self._diary = diary
-        self._settings = ImportSettings(path=self._path, items=items, time=time,
-                                        missing_codes=codes, prompts_per_day=per_day)
+        self._settings = settings
         summary = diary_summary(diary)
         occasions, answered = summary["occasions"], summary["answered"]
         windows = summary["windows"]["1"] + summary["partial_windows"]["1"]

@@ -32,12 +32,11 @@ from lagwise.desktop.pages.dynamics_page import DynamicsPage
 from lagwise.desktop.pages.states_page import StatesPage
 from lagwise.desktop.project_files import ProjectFiles
 from lagwise.desktop.results import ResultsView
-from lagwise.desktop.results.lag2_view import adopted_spec
 from lagwise.desktop.session import Session, Snapshot
 from lagwise.desktop.worker import Worker
 from lagwise.models.errors import LagwiseError
 from lagwise.models.estimate import fit
-from lagwise.models.lag2check import lag2_check
+from lagwise.models.lag2check import adopt, lag2_check
 
 PAGES = ("Data", "States", "Dynamics", "Results")
 SETTINGS_GEOMETRY = "window/geometry"
@@ -487,7 +486,7 @@ class MainWindow(QMainWindow):
         else:
             text = f"Adopt unique autocorrelation of {to}"
         try:
-            spec = adopted_spec(self.session.spec, kind, from_, to)
+            spec = adopt(self.session.spec, kind, from_, to)
         except (LagwiseError, ValueError) as exc:
             QMessageBox.warning(self, "The path cannot be adopted", str(exc))
             return

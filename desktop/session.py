@@ -26,8 +26,9 @@ from lagwise.models.errors import SpecError
 from lagwise.models.preparation import Step, apply_steps, steps_from_json, steps_to_json
 from lagwise.models.project import Project, ProjectData, embed_table, project_diary
 from lagwise.models.results import FitResult
-from lagwise.models.spec import FitOptions, ModelSpec
-from lagwise.models.timegrid import diary_from_frame
+from lagwise.models.estimators import FitOptions
+from lagwise.models.spec import ModelSpec
+from lagwise.models.recipe import DiaryRecipe
 
 
 @dataclass(frozen=True)
@@ -42,6 +43,11 @@ class ImportSettings:
     time: TimeSettings
     missing_codes: tuple[str, ...] = ()
     prompts_per_day: int | None = None
+
+    @property
+    def recipe(self) -> DiaryRecipe:
+        """How the imported table becomes the diary (models.recipe)."""
+        return DiaryRecipe(self.items, self.time, self.missing_codes, self.prompts_per_day)
 
 
 @dataclass(frozen=True)
@@ -352,9 +358,7 @@ class Session(QObject):
         if self._import is None or time == self._import.time:
             return
         settings = replace(self._import, time=time)
-        diary = diary_from_frame(self._frame, settings.items, time,
-                                 missing_codes=settings.missing_codes, source=settings.path,
-                                 prompts_per_day=settings.prompts_per_day)
+        diary = settings.recipe.diary(self._frame, source=settings.path)
         self.undo_stack.push(_DataSwap(self, (self._import, self._diary), (settings, diary), text))
 
     def set_preparation(self, steps, text: str) -> None:

@@ -56,7 +56,8 @@ import numpy as np
 
 from lagwise.models.diary import Diary
 from lagwise.models.progress import Monitor, checkpoint
-from lagwise.models.spec import FitOptions, ModelSpec, make_spec
+from lagwise.models.estimators import FitOptions
+from lagwise.models.spec import ModelSpec, make_spec
 
 PROMPTS_PER_DAY = 10
 SPEED_TARGET = 4.0

@@ -10,8 +10,8 @@ with Theta~ block (a, b) = diag(d^|a-b| theta) (unique parts autocorrelated with
 First-copy-free adds latent intercepts c for the regressed copies: the copies' latent means
 are m = M c~ (c~ = c for regressed copies, 0 for the oldest) and mu = (nu, ..., nu) + (I kron
 Lambda) m, so the window means are free of stationarity too.
-Estimator "stationary": P is the companion-form stationary covariance (discrete Lyapunov
-equation), which makes Sigma block-Toeplitz. Estimator "first-copy-free": P is free.
+Stationary windows: P is the companion-form stationary covariance (discrete Lyapunov
+equation), which makes Sigma block-Toeplitz. First-copy-free windows: P is free.
 The Lyapunov step is differentiated by its adjoint: for f(P) with df/dP = H and
 P = F P F' + Q, W = F' W F + H gives df/dQ = W and df/dF = 2 W F P.
 """
@@ -44,7 +44,7 @@ class Implied:
     p_old: np.ndarray | None
 
 
-def implied_moments(m: Matrices, depth: int, estimator: str) -> Implied:
+def implied_moments(m: Matrices, depth: int, free_first_copies: bool = False) -> Implied:
     p, k = m.lam.shape
     q = m.lagged.shape[0]
     copies = depth + 1
@@ -59,7 +59,7 @@ def implied_moments(m: Matrices, depth: int, estimator: str) -> Implied:
         psi_big[j * k:(j + 1) * k, j * k:(j + 1) * k] = m.psi
     comp = p_old = None
     if q > 0:
-        if estimator == "first-copy-free":
+        if free_first_copies:
             p_old = m.phif
         else:
             comp = companion(list(m.lagged))
@@ -96,7 +96,7 @@ def _block_diagonals(blocks: np.ndarray) -> np.ndarray:
 
 
 def matrix_gradients(m: Matrices, imp: Implied, g_sigma: np.ndarray, g_mu: np.ndarray,
-                     depth: int, estimator: str) -> Gradients:
+                     depth: int, free_first_copies: bool = False) -> Gradients:
     """Pull d loglik / d Sigma (symmetric, as in tr(G dSigma)) and d loglik / d mu back to
     the model matrices."""
     p, k = m.lam.shape
@@ -132,7 +132,7 @@ def matrix_gradients(m: Matrices, imp: Implied, g_sigma: np.ndarray, g_mu: np.nd
     g_phif = None
     if q > 0:
         g_p = g_psi_big[n_reg * k:, n_reg * k:]
-        if estimator == "first-copy-free":
+        if free_first_copies:
             g_phif = g_p
         else:
             w = solve_lyapunov(imp.comp.T, g_p)

@@ -15,7 +15,6 @@ All statistics use the window pseudo-likelihood (overlapping windows): they are 
 
 from __future__ import annotations
 
-import time
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -24,12 +23,15 @@ from threadpoolctl import threadpool_limits
 
 from lagwise.models.diary import Diary
 from lagwise.models.errors import SpecError
-from lagwise.models.estimate import estimate_windows
-from lagwise.models.optimise import interior, parameter_scales
+from lagwise.models.estimators import FitOptions
+from lagwise.models.kinds import Kind
+from lagwise.models.numbers import p_phrase
 from lagwise.models.objective import WindowObjective
+from lagwise.models.optimise import interior
 from lagwise.models.progress import Monitor, checkpoint, scaled
 from lagwise.models.results import FitResult
-from lagwise.models.spec import FitOptions, ModelSpec, full_mask
+from lagwise.models.solution import solve
+from lagwise.models.spec import ModelSpec, full_mask
 from lagwise.models.windows import lag_windows
 
 ALPHA = 0.05
@@ -43,7 +45,7 @@ CAUTION_LAG2 = (
 class PathTest:
     """Score test of one fixed parameter of the lag-1 model."""
 
-    kind: str        # "lag2" or "unique_autocorrelation"
+    kind: Kind       # Kind.LAG2 or Kind.UNIQUE_AUTOCORRELATION
     from_: str
     to: str
     score: float
@@ -100,35 +102,32 @@ def holm(pvalues: np.ndarray) -> np.ndarray:
 
 def lag2_check(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions(),
                monitor: Monitor | None = None) -> Lag2Check:
-    """Fit the lag-1 and lag-2 models on depth-2 windows and test each lag-2 path."""
+    """Fit the lag-1 and lag-2 models on depth-2 windows and test each lag-2 path. The
+    tests need windows: with an estimator that uses none, the stationary windows are used."""
     if spec.lags == 0:
         raise SpecError("The lag-2 check needs a model with lagged paths (lag order 1).")
-    estimator = "stationary" if options.estimator == "exact" else options.estimator
-    depth = max(2, options.depth or 2)
-    opts = replace(options, estimator=estimator, depth=depth)
+    window_options = options if options.method.uses_windows else options.for_estimator("stationary")
+    opts = replace(window_options, depth=max(2, window_options.depth or 2))
     restricted_spec, extended_spec = lag1_version(spec), lag2_version(spec)
     notes = restricted_spec.validate(diary.items)
     with threadpool_limits(limits=1, user_api="blas"):
-        windows = lag_windows(diary.select(restricted_spec.items), depth)
+        windows = lag_windows(diary.select(restricted_spec.items), opts.depth)
         checkpoint(monitor, 0.0, "Fitting the lag-1 model on depth-2 windows")
         obj_r = WindowObjective(windows, restricted_spec, opts)
-        restricted = estimate_windows(obj_r, notes, diary.n_occasions, time.perf_counter(),
-                                      scaled(monitor, 0.0, 0.4))
+        restricted = solve(obj_r, notes, scaled(monitor, 0.0, 0.4))
         checkpoint(monitor, 0.4, "Fitting the model with lag-2 paths")
-        obj_e = WindowObjective(windows, extended_spec, opts)
-        extended = estimate_windows(obj_e, notes, diary.n_occasions, time.perf_counter(),
-                                    scaled(monitor, 0.4, 0.75))
+        extended = solve(WindowObjective(windows, extended_spec, opts), notes, scaled(monitor, 0.4, 0.75))
         checkpoint(monitor, 0.75, "Score tests")
-        lag2_tests = _score_tests(obj_r, restricted, windows, opts, "lag2")
+        lag2_tests = _score_tests(obj_r, restricted, windows, opts, Kind.LAG2)
         # a lag-1 feature is tested on lag-1 windows: in depth-2 windows every lag-1 pair of
         # occasions enters twice (blocks (0,1) and (1,2)) and its score test over-rejects
         checkpoint(monitor, 0.85, "Score tests of the unique autocorrelations (lag-1 windows)")
         windows1 = lag_windows(diary.select(restricted_spec.items), 1)
-        obj_r1 = WindowObjective(windows1, restricted_spec, replace(opts, depth=1))
-        restricted1 = estimate_windows(obj_r1, notes, diary.n_occasions, time.perf_counter(),
-                                       scaled(monitor, 0.85, 0.95))
-        raw = lag2_tests + _score_tests(obj_r1, restricted1, windows1, replace(opts, depth=1),
-                                        "unique_autocorrelation")
+        opts1 = replace(opts, depth=1)
+        obj_r1 = WindowObjective(windows1, restricted_spec, opts1)
+        restricted1 = solve(obj_r1, notes, scaled(monitor, 0.85, 0.95))
+        raw = lag2_tests + _score_tests(obj_r1, restricted1, windows1, opts1,
+                                        Kind.UNIQUE_AUTOCORRELATION)
     p_holm = holm(np.array([t.p for t in raw])) if raw else np.array([])
     tests = tuple(replace(t, p_holm=float(ph)) for t, ph in zip(raw, p_holm))
     lr = max(2.0 * (extended.fit.loglik - restricted.fit.loglik), 0.0)
@@ -141,43 +140,63 @@ def lag2_check(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions()
                      extended=extended, verdict=verdict, indicated=indicated)
 
 
+def adopt(spec: ModelSpec, kind: str, from_: str, to: str) -> ModelSpec:
+    """`spec` with one tested path added: a lag-2 path makes the model lag 2 (keeping any
+    lag-2 paths it had) and frees state `from_` at t-2 -> state `to` at t; a unique
+    autocorrelation adds item `to` to `spec.unique_autocorrelation`."""
+    if kind == Kind.UNIQUE_AUTOCORRELATION:
+        if to in spec.unique_autocorrelation:
+            return spec
+        return replace(spec, unique_autocorrelation=spec.unique_autocorrelation + (to,))
+    names = spec.state_names
+    wider = spec if spec.lags == 2 else spec.with_lags(2)
+    mask = wider.path_mask(2).copy()
+    mask[names.index(to), names.index(from_)] = True
+    return wider.with_paths(2, mask)
+
+
+def in_model(spec: ModelSpec, test: PathTest) -> bool:
+    """True when the tested path is already free in `spec`."""
+    if test.kind == Kind.UNIQUE_AUTOCORRELATION:
+        return test.to in spec.unique_autocorrelation
+    names = spec.state_names
+    if spec.lags < 2 or test.from_ not in names or test.to not in names:
+        return False
+    return bool(spec.path_mask(2)[names.index(test.to), names.index(test.from_)])
+
+
 def _verdict(lr_p: float, indicated: tuple[PathTest, ...]) -> str:
     if not indicated and lr_p >= ALPHA:
         return ("No sign that lag 2 is needed: the lag-1 model is not significantly worse than the "
-                f"model with lag-2 paths (p {_p(lr_p)}), and no single path stands out after the "
+                f"model with lag-2 paths ({p_phrase(lr_p)}), and no single path stands out after the "
                 "Holm adjustment.")
     if not indicated:
-        return (f"Lag 2 may be needed overall (likelihood-ratio p {_p(lr_p)}), but no single path "
+        return (f"Lag 2 may be needed overall (likelihood-ratio {p_phrase(lr_p)}), but no single path "
                 "stands out after the Holm adjustment.")
     top = indicated[0]
-    where = (f"{top.from_} at t-2 to {top.to}" if top.kind == "lag2"
+    where = (f"{top.from_} at t-2 to {top.to}" if top.kind == Kind.LAG2
              else f"an autocorrelated unique part of '{top.to}'")
-    return (f"Lag 2 indicated, mainly for {where} (score {top.score:.1f}, Holm p "
-            f"{_p(top.p_holm)}; likelihood-ratio p {_p(lr_p)}).")
-
-
-def _p(value: float) -> str:
-    """'< .001' or '= .046', as p-values are written in the reports."""
-    return "< .001" if value < 0.001 else f"= {value:.3f}".replace("0.", ".", 1)
+    return (f"Lag 2 indicated, mainly for {where} (score {top.score:.1f}, Holm "
+            f"{p_phrase(top.p_holm)}; likelihood-ratio {p_phrase(lr_p)}).")
 
 
 def _score_tests(obj_r: WindowObjective, restricted: FitResult, windows, options: FitOptions,
-                 kind: str) -> tuple[PathTest, ...]:
-    """Score tests of every fixed parameter of `kind` ("lag2" or "unique_autocorrelation")
-    at the restricted estimate (p_holm left at p: adjusted by the caller over all tests)."""
+                 kind: Kind) -> tuple[PathTest, ...]:
+    """Score tests of every fixed parameter of `kind` (lag-2 paths or unique
+    autocorrelations) at the restricted estimate (p_holm left at p: adjusted by the caller
+    over all tests)."""
     spec = obj_r.spec
-    if kind == "lag2":
+    if kind == Kind.LAG2:
         full_spec = lag2_version(spec)
     else:
         extra_items = tuple(it for it in spec.items if it not in spec.unique_autocorrelation)
         full_spec = replace(spec, unique_autocorrelation=spec.unique_autocorrelation + extra_items)
     obj_f = WindowObjective(windows, full_spec, options)
-    estimates = {(p.kind, p.from_, p.to): p.estimate for p in restricted.parameters}
-    theta = np.array([estimates.get((e.kind, e.from_, e.to), 0.0) for e in obj_f.layout.free_entries])
-    tested = np.array([(e.kind, e.from_, e.to) not in _free_keys(obj_r)
-                       for e in obj_f.layout.free_entries])
+    theta = obj_f.layout.theta_from({p.key: p.estimate for p in restricted.parameters}, default=0.0)
+    free_before = {e.key for e in obj_r.layout.free_entries}
+    tested = np.array([e.key not in free_before for e in obj_f.layout.free_entries])
     _, grad = obj_f.loglik_and_gradient(theta)
-    info = obj_f.expected_information(theta, parameter_scales(obj_f, theta))
+    info = obj_f.expected_information(theta, obj_f.layout.sizes(theta, obj_f.item_var))
     keep = ~tested & interior(obj_f, theta)
     f_idx, t_idx = np.flatnonzero(keep), np.flatnonzero(tested)
     i_ff_inv = np.linalg.pinv(info[np.ix_(f_idx, f_idx)])
@@ -187,18 +206,9 @@ def _score_tests(obj_r: WindowObjective, restricted: FitResult, windows, options
     for j in t_idx:
         c = info[j, j] - info[j, f_idx] @ i_ff_inv @ info[f_idx, j]
         e = obj_f.layout.free_entries[j]
-        if c <= 0:
-            score, epc = 0.0, 0.0
-        else:
-            score, epc = grad[j] ** 2 / c, grad[j] / c
-        if e.kind == "lag2":
-            std = epc * sd_eta[states.index(e.from_)] / sd_eta[states.index(e.to)]
-        else:
-            std = epc
-        rows.append((e.kind, e.from_, e.to, float(score), float(chi2_dist.sf(score, 1)), float(epc), float(std)))
-    return tuple(PathTest(kind=r[0], from_=r[1], to=r[2], score=r[3], p=r[4], p_holm=r[4],
-                          epc=r[5], std_epc=r[6]) for r in rows)
-
-
-def _free_keys(obj: WindowObjective) -> set[tuple[str, str, str]]:
-    return {(e.kind, e.from_, e.to) for e in obj.layout.free_entries}
+        score, epc = (0.0, 0.0) if c <= 0 else (grad[j] ** 2 / c, grad[j] / c)
+        std = epc * sd_eta[states.index(e.from_)] / sd_eta[states.index(e.to)] if e.kind == Kind.LAG2 else epc
+        p = float(chi2_dist.sf(score, 1))
+        rows.append(PathTest(kind=e.kind, from_=e.from_, to=e.to, score=float(score), p=p, p_holm=p,
+                             epc=float(epc), std_epc=float(std)))
+    return tuple(rows)

@@ -1,53 +1,82 @@
-"""The window pseudo-log-likelihood as a function of the free parameters, with its gradient.
+"""The window pseudo-log-likelihood as a function of the free parameters, with its gradient,
+and what the window estimators add to a result (fit indices on the window covariance).
 
 loglik(theta) = sum over window rows of the normal log-density of the observed entries,
 with mean and covariance implied by the model (models.implied); gradients by the chain rule
-(models.patterns -> models.implied -> models.parameters).
+(models.patterns -> models.implied -> models.parameters). The stationary and the
+first-copy-free estimators differ only in the covariance of the oldest copies
+(`Estimator.free_first_copies`).
 """
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING, Any
+
 import numpy as np
 
+from lagwise.models import flags as warn
+from lagwise.models.errors import EstimationError, SpecError
+from lagwise.models.fitindices import fit_indices
+from lagwise.models.flags import Flag
 from lagwise.models.implied import Implied, implied_moments, matrix_gradients
 from lagwise.models.parameters import Matrices, ParameterLayout
 from lagwise.models.patterns import PatternData
-from lagwise.models.spec import FitOptions, ModelSpec
+from lagwise.models.progress import Monitor, checkpoint
+from lagwise.models.results import FitIndices
+from lagwise.models.spec import ModelSpec
 from lagwise.models.start import start_matrices
-from lagwise.models.windows import LagWindows
+from lagwise.models.windows import LagWindows, lag_windows
+
+if TYPE_CHECKING:
+    from lagwise.models.diary import Diary
+    from lagwise.models.estimators import FitOptions
+
+MIN_WINDOWS_PER_PARAMETER = 5.0
 
 
 class WindowObjective:
     """Log-likelihood of `windows` under `spec` for the window estimators."""
 
-    def __init__(self, windows: LagWindows, spec: ModelSpec, options: FitOptions):
+    def __init__(self, windows: LagWindows, spec: ModelSpec, options: "FitOptions"):
         self.spec, self.options = spec, options
         self.depth = windows.depth
-        self.estimator = options.estimator
+        self.free_first_copies = options.method.free_first_copies
+        self.n_occasions = windows.n_occasions
         rows = windows.data if options.missing == "fiml" else windows.data[windows.complete]
         self.rows = rows
         self.data = PatternData(rows)
         p = len(spec.items)
         self.item_var = np.nanvar(rows[:, :p], axis=0) if rows.size else np.ones(p)
-        self.layout = ParameterLayout(spec, self.item_var, self.estimator)
+        self.layout = ParameterLayout(spec, self.item_var, self.free_first_copies)
+
+    @classmethod
+    def build(cls, diary: "Diary", spec: ModelSpec, options: "FitOptions",
+              monitor: Monitor | None = None) -> "WindowObjective":
+        checkpoint(monitor, 0.0, "Building lag windows")
+        return cls(lag_windows(diary.select(spec.items), options.window_depth(spec)), spec, options)
 
     @property
     def n_rows(self) -> int:
         return self.data.n_rows
 
-    def start(self) -> np.ndarray:
-        return self.layout.pack(start_matrices(self.layout, self.rows, self.depth))
-
+    # ----- the likelihood ---------------------------------------------------------------
     def matrices(self, theta: np.ndarray) -> Matrices:
         return self.layout.unpack(theta)
 
     def implied(self, theta: np.ndarray) -> Implied:
-        return implied_moments(self.layout.unpack(theta), self.depth, self.estimator)
+        return implied_moments(self.layout.unpack(theta), self.depth, self.free_first_copies)
 
     def loglik(self, theta: np.ndarray) -> float:
         """Raises models.implied.NotAdmissible outside the admissible region."""
         imp = self.implied(theta)
         return self.data.loglik(imp.mu, imp.sigma, gradient=False)[0]
+
+    def loglik_and_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]:
+        m = self.layout.unpack(theta)
+        imp = implied_moments(m, self.depth, self.free_first_copies)
+        ll, g_sigma, g_mu = self.data.loglik(imp.mu, imp.sigma, gradient=True)
+        g = matrix_gradients(m, imp, g_sigma, g_mu, self.depth, self.free_first_copies)
+        return ll, self.layout.gradient_vector(m, g)
 
     def expected_information(self, theta: np.ndarray, scale: np.ndarray) -> np.ndarray:
         """Expected (Fisher) information of the window rows at `theta`, summed over patterns:
@@ -75,9 +104,35 @@ class WindowObjective:
                                       + d_mu @ inv[g] @ d_mu.T)
         return 0.5 * (info + info.T)
 
-    def loglik_and_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]:
-        m = self.layout.unpack(theta)
-        imp = implied_moments(m, self.depth, self.estimator)
-        ll, g_sigma, g_mu = self.data.loglik(imp.mu, imp.sigma, gradient=True)
-        g = matrix_gradients(m, imp, g_sigma, g_mu, self.depth, self.estimator)
-        return ll, self.layout.gradient_vector(m, g)
+    # ----- what models.solution asks ----------------------------------------------------
+    def start(self, monitor: Monitor | None = None) -> np.ndarray:
+        return self.layout.pack(start_matrices(self.layout, self.rows, self.depth))
+
+    def preflight(self) -> list[Flag]:
+        """Refuse what cannot be estimated; warn when the windows are few."""
+        n, n_free, width = self.n_rows, self.layout.n_free, self.data.width
+        if n < 2:
+            raise EstimationError("Too few usable lag windows to estimate the model "
+                                  f"({n}; check the time settings and missing prompts).")
+        moments = width * (width + 3) // 2
+        if n_free > moments:
+            raise SpecError(f"The model has {n_free} free parameters but the lag windows give only "
+                            f"{moments} moments: free fewer paths or use fewer states.")
+        if n < MIN_WINDOWS_PER_PARAMETER * n_free:
+            return [warn.few_windows(n, n_free, MIN_WINDOWS_PER_PARAMETER)]
+        return []
+
+    def latent_covariance(self, theta: np.ndarray, mats: Matrices, radius: float) -> np.ndarray:
+        """Without a stationary solution: the implied covariance of the newest copy."""
+        return self.implied(theta).phi_xi[:self.layout.k, :self.layout.k]
+
+    def figures(self, theta: np.ndarray, loglik: float, sigma0: np.ndarray
+                ) -> tuple[FitIndices, list[Flag]]:
+        """Fit indices on the window covariance against the saturated and independence models."""
+        _, sigma_sat, ll_sat, sat_ok = self.data.saturated()
+        fit = fit_indices(loglik, ll_sat, self.data.independence_loglik(), self.layout.n_free,
+                          self.data.width, self.n_rows, sigma_sat, self.implied(theta).sigma)
+        return fit, ([] if sat_ok else [warn.saturated_not_converged()])
+
+    def result_fields(self, theta: np.ndarray, mats: Matrices) -> dict[str, Any]:
+        return {"depth": self.depth}

@@ -1,48 +1,28 @@
-"""The parameter table of a specification: one declaration, from which the flat vector of
-free values, the model matrices, readable names and bounds are all derived.
+"""The free parameter vector and the model matrices: packing, unpacking, bounds, typical
+sizes, the chain rule for gradients and the standardized solution.
 
-Blocks (usual symbols): nu (intercepts), Lambda (loadings), Theta (unique variances),
-d (lag-1 autocorrelation of unique parts), B_l (lagged paths), Psi (innovations) — as free
-covariances, or (partial form) innovation variances v and partial correlations rho with
-Psi = D C D, C = R^-1, R = I - rho (off-diagonal), D = diag(sqrt(v / diag C)) — and, for the
-first-copy-free estimator, Phi_F (free covariance of the oldest q copies of the states) and c
-(latent intercepts of the regressed copies; the oldest copies have latent mean 0), so that its
-window means are not tied to stationarity either.
+The parameters are the spec's declaration (`ModelSpec.parameters`), laid out here once: all
+matrices live in one flat buffer, and each entry is a position in it (plus the position of its
+mirror for symmetric blocks). Unpacking writes the free vector into the buffer with one
+indexed assignment; packing reads it back; the gradient of a free value is the sum of the
+matrix gradients at its position and its mirror, times the block's sign. The partial-
+correlation form is chained through Psi = D R^-1 D first (see `partial_to_psi`).
 """
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
 
 import numpy as np
 
+from lagwise.models.blocks import Block, Entry, Scales
 from lagwise.models.spec import ModelSpec
-
-VARIANCE_FLOOR = 1e-8
-
-
-@dataclass(frozen=True)
-class Entry:
-    """One parameter: its reported kind and direction, its matrix slot, free or fixed."""
-
-    kind: str
-    from_: str
-    to: str
-    lag: int
-    block: str
-    index: tuple[int, ...]
-    free: bool
-    value: float = 0.0  # the fixed value (ignored when free)
-
-    @property
-    def is_variance(self) -> bool:
-        return (self.block in ("theta", "pv")
-                or (self.block in ("psi", "phif") and self.index[0] == self.index[1]))
 
 
 @dataclass
 class Matrices:
-    """Model matrices in the spec's item/state order."""
+    """Model matrices in the spec's item/state order (views into one buffer)."""
 
     nu: np.ndarray      # (p,)
     lam: np.ndarray     # (p, k)
@@ -58,7 +38,8 @@ class Matrices:
 
 @dataclass
 class Gradients:
-    """d loglik / d matrix for each block (same shapes as Matrices)."""
+    """d loglik / d each matrix element, elements treated as independent (same shapes as
+    Matrices; blocks a model does not use are None)."""
 
     nu: np.ndarray
     lam: np.ndarray
@@ -77,197 +58,169 @@ def partial_to_psi(pv: np.ndarray, rmat: np.ndarray) -> np.ndarray:
     return dd[:, None] * c * dd[None, :]
 
 
-class ParameterLayout:
-    """All parameters of `spec` for an estimator, with fixed values set from the data."""
-
-    def __init__(self, spec: ModelSpec, item_variances: np.ndarray, estimator: str):
-        self.spec = spec
-        self.estimator = estimator
-        self.items = spec.items
-        self.states = spec.state_names
-        self.p, self.k, self.q = len(self.items), spec.k, spec.lags
-        self.entries: list[Entry] = self._declare(item_variances)
-        self.free_entries = [e for e in self.entries if e.free]
-        self.n_free = len(self.free_entries)
-
-    # ----- declaration ---------------------------------------------------------------
-    def _declare(self, item_variances: np.ndarray) -> list[Entry]:
-        spec, items, states = self.spec, self.items, self.states
-        out: list[Entry] = []
-        marker_id = spec.identification == "marker"
-        for j, s in enumerate(spec.states):
-            for it in s.items:
-                fixed = marker_id and it == s.marker_item
-                out.append(Entry("loading", s.name, it, 0, "lam", (items.index(it), j), not fixed, 1.0))
-        for i, it in enumerate(items):
-            out.append(Entry("intercept", it, it, 0, "nu", (i,), True))
-        single = {s.items[0] for s in spec.states if len(s.items) == 1}
-        for i, it in enumerate(items):
-            if it in single:
-                rel = spec.reliability_of(it)
-                value = 0.0 if rel is None else (1.0 - rel) * float(item_variances[i])
-                out.append(Entry("unique", it, it, 0, "theta", (i,), False, value))
-            else:
-                out.append(Entry("unique", it, it, 0, "theta", (i,), True))
-        for it in spec.unique_autocorrelation:
-            i = items.index(it)
-            out.append(Entry("unique_autocorrelation", it, it, 1, "d", (i,), True))
-        for lag in range(1, self.q + 1):
-            mask = spec.path_mask(lag)
-            for i, to in enumerate(states):
-                for j, fr in enumerate(states):
-                    kind = "lag2" if lag == 2 else ("inertia" if i == j else "cross_lagged")
-                    out.append(Entry(kind, fr, to, lag, "B", (lag - 1, i, j), bool(mask[i, j])))
-        var_id = spec.identification == "variance"
-        if spec.innovations == "partial":
-            zeros = {frozenset(z) for z in spec.partial_zeros}
-            for i, s in enumerate(states):
-                out.append(Entry("innovation", s, s, 0, "pv", (i,), not var_id, 1.0))
-            for i in range(self.k):
-                for j in range(i):
-                    free = frozenset((states[i], states[j])) not in zeros
-                    out.append(Entry("partial_correlation", states[j], states[i], 0, "pcor", (i, j), free))
-        else:
-            for i in range(self.k):
-                for j in range(i + 1):
-                    if i == j:
-                        out.append(Entry("innovation", states[i], states[i], 0, "psi", (i, i), not var_id, 1.0))
-                    else:
-                        free = spec.innovations == "free"
-                        out.append(Entry("innovation", states[j], states[i], 0, "psi", (i, j), free))
-        if self.estimator == "first-copy-free" and self.q > 0:
-            names = [f"{s}@t-{lag}" for lag in range(self.q) for s in states]
-            for a in range(self.q * self.k):
-                for b in range(a + 1):
-                    out.append(Entry("first_copy", names[b], names[a], 0, "phif", (a, b), True))
-            for i, s in enumerate(states):
-                out.append(Entry("latent_intercept", s, s, 0, "c", (i,), True))
-        return out
-
-    # ----- vector <-> matrices -------------------------------------------------------
-    def unpack(self, theta: np.ndarray) -> Matrices:
-        p, k, q = self.p, self.k, self.q
-        m = Matrices(nu=np.zeros(p), lam=np.zeros((p, k)), theta=np.zeros(p), d=np.zeros(p),
-                     lagged=np.zeros((q, k, k)), psi=np.zeros((k, k)))
-        partial = self.spec.innovations == "partial"
-        if partial:
-            m.pv = np.ones(k)
-            m.rmat = np.eye(k)
-        if self.estimator == "first-copy-free" and q > 0:
-            m.phif = np.zeros((q * k, q * k))
-            m.c = np.zeros(k)
-        it = iter(theta)
-        for e in self.entries:
-            v = float(next(it)) if e.free else e.value
-            if e.block == "nu":
-                m.nu[e.index] = v
-            elif e.block == "lam":
-                m.lam[e.index] = v
-            elif e.block == "theta":
-                m.theta[e.index] = v
-            elif e.block == "d":
-                m.d[e.index] = v
-            elif e.block == "B":
-                m.lagged[e.index] = v
-            elif e.block == "psi":
-                i, j = e.index
-                m.psi[i, j] = m.psi[j, i] = v
-            elif e.block == "pv":
-                m.pv[e.index] = v
-            elif e.block == "pcor":
-                i, j = e.index
-                m.rmat[i, j] = m.rmat[j, i] = -v
-            elif e.block == "phif":
-                a, b = e.index
-                m.phif[a, b] = m.phif[b, a] = v
-            elif e.block == "c":
-                m.c[e.index] = v
-        if partial:
-            m.psi = partial_to_psi(m.pv, m.rmat)
-        return m
-
-    def pack(self, m: Matrices) -> np.ndarray:
-        """The free values of `m` as a flat vector (inverse of `unpack`)."""
-        out = []
-        for e in self.free_entries:
-            if e.block == "nu":
-                out.append(m.nu[e.index])
-            elif e.block == "lam":
-                out.append(m.lam[e.index])
-            elif e.block == "theta":
-                out.append(m.theta[e.index])
-            elif e.block == "d":
-                out.append(m.d[e.index])
-            elif e.block == "B":
-                out.append(m.lagged[e.index])
-            elif e.block == "psi":
-                out.append(m.psi[e.index])
-            elif e.block == "pv":
-                out.append(m.pv[e.index])
-            elif e.block == "pcor":
-                out.append(-m.rmat[e.index])
-            elif e.block == "phif":
-                out.append(m.phif[e.index])
-            elif e.block == "c":
-                out.append(m.c[e.index])
-        return np.asarray(out, dtype=float)
-
-    def gradient_vector(self, m: Matrices, g: Gradients) -> np.ndarray:
-        """d loglik / d free values, from the matrix gradients (symmetric blocks counted twice
-        off the diagonal; partial form by the chain rule through Psi = D R^-1 D)."""
-        gpv = gr = None
-        if self.spec.innovations == "partial":
-            gpv, gr = _partial_chain(m.pv, m.rmat, g.psi)
-        out = np.empty(self.n_free)
-        for n, e in enumerate(self.free_entries):
-            if e.block == "nu":
-                out[n] = g.nu[e.index]
-            elif e.block == "lam":
-                out[n] = g.lam[e.index]
-            elif e.block == "theta":
-                out[n] = g.theta[e.index]
-            elif e.block == "d":
-                out[n] = g.d[e.index]
-            elif e.block == "B":
-                out[n] = g.lagged[e.index]
-            elif e.block == "psi":
-                i, j = e.index
-                out[n] = g.psi[i, i] if i == j else g.psi[i, j] + g.psi[j, i]
-            elif e.block == "pv":
-                out[n] = gpv[e.index]
-            elif e.block == "pcor":
-                out[n] = gr[e.index]
-            elif e.block == "phif":
-                a, b = e.index
-                out[n] = g.phif[a, a] if a == b else g.phif[a, b] + g.phif[b, a]
-            elif e.block == "c":
-                out[n] = g.c[e.index]
-        return out
-
-    def bounds(self) -> list[tuple[float | None, float | None]]:
-        out: list[tuple[float | None, float | None]] = []
-        for e in self.free_entries:
-            if e.is_variance:
-                out.append((VARIANCE_FLOOR if e.block != "theta" else 0.0, None))
-            elif e.block in ("pcor", "d"):
-                out.append((-0.999, 0.999))
-            else:
-                out.append((None, None))
-        return out
-
-
 def _partial_chain(pv: np.ndarray, rmat: np.ndarray, gpsi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Gradients w.r.t. v and rho of f(Psi), Psi = D C D, C = R^-1, D = diag(sqrt(v / c)).
-
-    With G = df/dPsi (symmetric): a_i = (C D G)_ii sqrt(v_i / c_i); df/dv_i = a_i / v_i;
-    df/drho_ij = 2 [C (D G D - diag(a / c)) C]_ij (since dR_ij = -drho_ij, dC = -C dR C).
-    """
+    """Element-wise gradients with respect to v and R of f(Psi), Psi = D C D, C = R^-1,
+    D = diag(sqrt(v / c)). With G = df/dPsi (symmetrised): a_i = (C D G)_ii sqrt(v_i / c_i);
+    df/dv_i = a_i / v_i; df/dR = -C (D G D - diag(a / c)) C (since dC = -C dR C)."""
     gs = 0.5 * (gpsi + gpsi.T)
     c = np.linalg.inv(rmat)
     cd = np.diag(c)
     dd = np.sqrt(pv / cd)
     a = np.einsum("im,m,mi->i", c, dd, gs) * dd
-    gv = a / pv
     h = dd[:, None] * gs * dd[None, :] - np.diag(a / cd)
-    grho = 2.0 * (c @ h @ c)
-    return gv, grho
+    return a / pv, -(c @ h @ c)
+
+
+class ParameterLayout:
+    """The parameters of `spec` as a flat free vector (see the module docstring).
+
+    item_variances fix the unique variance of single-item states given a reliability
+    (default: ones, enough for counting and naming); `fixed_values` holds each entry's fixed
+    value (NaN for free entries). free_first_copies: the first-copy-free estimator's blocks.
+    """
+
+    def __init__(self, spec: ModelSpec, item_variances: np.ndarray | None = None,
+                 free_first_copies: bool = False):
+        self.spec = spec
+        self.free_first_copies = bool(free_first_copies and spec.lags > 0)
+        self.items = spec.items
+        self.states = spec.state_names
+        self.p, self.k, self.q = len(self.items), spec.k, spec.lags
+        self.partial = spec.innovations == "partial"
+        item_var = np.ones(self.p) if item_variances is None else np.asarray(item_variances, float)
+        self.entries: tuple[Entry, ...] = spec.parameters(self.free_first_copies)
+        self.free_entries = tuple(e for e in self.entries if e.free)
+        self.n_free = len(self.free_entries)
+        self._shapes = self._matrix_shapes()
+        offsets, total = {}, 0
+        for name, shape in self._shapes.items():
+            offsets[name] = total
+            total += int(np.prod(shape))
+        self._offsets, self._size = offsets, total      # position `total` is a spare zero
+        self._base = np.zeros(total + 1)
+        if self.partial:
+            self._matrix(self._base, "rmat")[...] = np.eye(self.k)
+        self._free_mask = np.array([e.free for e in self.entries], dtype=bool)
+        self.fixed_values = np.array([np.nan if e.free else e.value * (
+            item_var[e.index[0]] if e.per_item_variance else 1.0) for e in self.entries])
+        for e, value in zip(self.entries, self.fixed_values):
+            if not e.free:
+                for pos in self._positions(e):
+                    self._base[pos] = e.block.sign * value
+        self._pos = np.array([self._positions(e)[0] for e in self.free_entries], dtype=np.int64)
+        self._mirror = np.array([self._positions(e)[-1] if e.block.symmetric and len(set(e.index)) > 1
+                                 else total for e in self.free_entries], dtype=np.int64)
+        self._sign = np.array([e.block.sign for e in self.free_entries])
+        self._groups = self._by_block(self.free_entries)
+        self._all_groups = self._by_block(self.entries)
+        self._lower = np.full(self.n_free, -np.inf)
+        self._upper = np.full(self.n_free, np.inf)
+        for n, e in enumerate(self.free_entries):
+            if e.is_variance:
+                self._lower[n] = e.block.floor
+            elif e.block.bounded:
+                self._lower[n], self._upper[n] = -0.999, 0.999
+
+    # ----- the buffer -----------------------------------------------------------------------
+    def _matrix_shapes(self) -> dict[str, tuple[int, ...]]:
+        p, k, q = self.p, self.k, self.q
+        shapes = {"nu": (p,), "lam": (p, k), "theta": (p,), "d": (p,), "lagged": (q, k, k),
+                  "psi": (k, k)}
+        if self.partial:
+            shapes.update(pv=(k,), rmat=(k, k))
+        if self.free_first_copies:
+            shapes.update(phif=(q * k, q * k), c=(k,))
+        return shapes
+
+    def _matrix(self, buffer: np.ndarray, name: str) -> np.ndarray:
+        lo = self._offsets[name]
+        shape = self._shapes[name]
+        return buffer[lo:lo + int(np.prod(shape))].reshape(shape)
+
+    def _positions(self, e: Entry) -> list[int]:
+        """Flat positions of an entry in the buffer (two for an off-diagonal symmetric entry)."""
+        shape = self._shapes[e.block.matrix]
+        lo = self._offsets[e.block.matrix]
+        out = [lo + int(np.ravel_multi_index(e.index, shape))]
+        if e.block.symmetric and e.index[0] != e.index[1]:
+            out.append(lo + int(np.ravel_multi_index(e.index[::-1], shape)))
+        return out
+
+    @staticmethod
+    def _by_block(entries) -> list[tuple[Block, np.ndarray, tuple[np.ndarray, ...]]]:
+        """(block, positions in `entries`, index arrays) for each block present."""
+        groups: dict[str, list[int]] = {}
+        for n, e in enumerate(entries):
+            groups.setdefault(e.block.name, []).append(n)
+        out = []
+        for members in groups.values():
+            block = entries[members[0]].block
+            index = tuple(np.array(ix) for ix in zip(*(entries[n].index for n in members)))
+            out.append((block, np.array(members), index))
+        return out
+
+    # ----- vector <-> matrices --------------------------------------------------------------
+    def unpack(self, theta: np.ndarray) -> Matrices:
+        buffer = self._base.copy()
+        values = self._sign * np.asarray(theta, dtype=float)
+        buffer[self._pos] = values
+        buffer[self._mirror] = values
+        buffer[-1] = 0.0
+        mats = {name: self._matrix(buffer, name) for name in self._shapes}
+        m = Matrices(**mats)
+        if self.partial:
+            m.psi[...] = partial_to_psi(m.pv, m.rmat)
+        return m
+
+    def pack(self, m: Matrices) -> np.ndarray:
+        """The free values of `m` as a flat vector (inverse of `unpack`)."""
+        buffer = np.zeros(self._size + 1)
+        for name in self._shapes:
+            self._matrix(buffer, name)[...] = getattr(m, name)
+        return self._sign * buffer[self._pos]
+
+    def gradient_vector(self, m: Matrices, g: Gradients) -> np.ndarray:
+        """d loglik / d free values from the element-wise matrix gradients."""
+        buffer = np.zeros(self._size + 1)
+        for name in ("nu", "lam", "theta", "d", "lagged", "psi", "phif", "c"):
+            if name in self._shapes and getattr(g, name) is not None:
+                self._matrix(buffer, name)[...] = getattr(g, name)
+        if self.partial:
+            gpv, grmat = _partial_chain(m.pv, m.rmat, g.psi)
+            self._matrix(buffer, "pv")[...] = gpv
+            self._matrix(buffer, "rmat")[...] = grmat
+        buffer[-1] = 0.0
+        return self._sign * (buffer[self._pos] + buffer[self._mirror])
+
+    # ----- what the optimiser and the results need ------------------------------------------
+    def bounds(self) -> tuple[np.ndarray, np.ndarray]:
+        """Lower and upper bounds of the free values (-inf / inf where unbounded)."""
+        return self._lower, self._upper
+
+    def sizes(self, theta0: np.ndarray, item_var: np.ndarray) -> np.ndarray:
+        """Typical size of each free value (the optimiser works on theta / size)."""
+        out = np.empty(self.n_free)
+        for block, members, index in self._groups:
+            out[members] = block.size(np.asarray(theta0)[members], index, item_var)
+        return out
+
+    def standardized(self, values: np.ndarray, scales: Scales) -> np.ndarray:
+        """Standardized values of all entries (`values` in the order of `entries`)."""
+        out = np.empty(len(self.entries))
+        for block, members, index in self._all_groups:
+            out[members] = values[members] * block.standardise(index, scales)
+        return out
+
+    def values(self, theta: np.ndarray) -> np.ndarray:
+        """Values of all entries (free from `theta`, fixed as declared)."""
+        out = self.fixed_values.copy()
+        out[self._free_mask] = theta
+        return out
+
+    def theta_from(self, estimates: Mapping[tuple[str, str, str], float],
+                   default: float | None = None) -> np.ndarray:
+        """The free vector from estimates named by (kind, from, to) (another layout's or a
+        result's); `default` for parameters it does not name (KeyError when None)."""
+        if default is None:
+            return np.array([estimates[e.key] for e in self.free_entries], dtype=float)
+        return np.array([estimates.get(e.key, default) for e in self.free_entries], dtype=float)

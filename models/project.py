@@ -36,9 +36,8 @@ from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import LagwiseError, ProjectError
 from lagwise.models.readers import read_table
 from lagwise.models.results import FitResult
-from lagwise.models.spec import (
-    ESTIMATORS, IDENTIFICATIONS, INNOVATION_FORMS, MISSING, FitOptions, ModelSpec, State,
-)
+from lagwise.models.estimators import ESTIMATORS, MISSING, FitOptions
+from lagwise.models.spec import IDENTIFICATIONS, INNOVATION_FORMS, ModelSpec, State
 from lagwise.models.timegrid import diary_from_frame
 
 FORMAT = "lagwise-project"

@@ -6,11 +6,15 @@ windows overlap, so they are approximate (they treat overlapping rows as indepen
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
+from scipy.stats import norm
 
-from lagwise.models.spec import FitOptions, ModelSpec
+from lagwise.models.estimators import FitOptions
+from lagwise.models.flags import Flag, FlagCode
+from lagwise.models.kinds import Kind
+from lagwise.models.spec import ModelSpec
 
 CAUTION_IDIOGRAPHIC = (
     "These are one person's estimates from a limited number of prompts: they are uncertain, "
@@ -22,13 +26,43 @@ CAUTION_PSEUDO = (
     "approximate; they are not the likelihood of the series.")
 CAUTION_SE = (
     "Standard errors are approximate: overlapping windows are treated as independent.")
+Z95 = float(norm.ppf(0.975))
+
+
+@dataclass(frozen=True, eq=False)
+class StateScores:
+    """Each state's score at every occasion of the diary (exact estimator): filtered
+    (given the answers up to the occasion) and smoothed (given the whole segment, Rauch-Tung-
+    Striebel), with standard deviations. Arrays (occasions, states); deviations from each
+    state's mean 0."""
+
+    filtered: np.ndarray
+    filtered_sd: np.ndarray
+    smoothed: np.ndarray
+    smoothed_sd: np.ndarray
+
+    def band(self, which: str = "smoothed", level: float = 0.95) -> tuple[np.ndarray, np.ndarray]:
+        """Pointwise normal interval score -+ z sd at `level` for "filtered" or "smoothed"."""
+        z = float(norm.ppf(0.5 + level / 2))
+        mean, sd = getattr(self, which), getattr(self, f"{which}_sd")
+        return mean - z * sd, mean + z * sd
+
+    def to_json(self) -> dict:
+        return {name: getattr(self, name).tolist()
+                for name in ("filtered", "filtered_sd", "smoothed", "smoothed_sd")}
+
+    @classmethod
+    def from_json(cls, doc: dict) -> "StateScores":
+        return cls(**{name: np.array([[np.nan if v is None else v for v in row] for row in doc[name]],
+                                     dtype=float).reshape(len(doc[name]), -1)
+                      for name in ("filtered", "filtered_sd", "smoothed", "smoothed_sd")})
 
 
 @dataclass(frozen=True)
 class Parameter:
     """One row of the parameter table. `from_`/`to` follow the JSON direction rules."""
 
-    kind: str
+    kind: Kind
     from_: str
     to: str
     estimate: float
@@ -42,8 +76,11 @@ class Parameter:
         return None if not self.se else self.estimate / self.se
 
     @property
+    def key(self) -> tuple[str, str, str]:
+        return (self.kind, self.from_, self.to)
+
+    @property
     def p(self) -> float | None:
-        from scipy.stats import norm
         z = self.z
         return None if z is None else float(2 * norm.sf(abs(z)))
 
@@ -51,7 +88,7 @@ class Parameter:
     def ci(self) -> tuple[float, float] | None:
         if self.se is None:
             return None
-        return (self.estimate - 1.959963984540054 * self.se, self.estimate + 1.959963984540054 * self.se)
+        return (self.estimate - Z95 * self.se, self.estimate + Z95 * self.se)
 
     def to_json(self) -> dict:
         return {"kind": self.kind, "from": self.from_, "to": self.to, "estimate": self.estimate,
@@ -115,9 +152,13 @@ class FitResult:
     latent_cov: np.ndarray
     r_squared: np.ndarray
     spectral_radius: float
-    flags: tuple[str, ...] = ()
+    flags: tuple[Flag, ...] = ()
     cautions: tuple[str, ...] = (CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO, CAUTION_SE)
-    extras: dict = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
+    newton_steps: int = 0
+    depth: int | None = None                 # window estimators: the window depth used
+    state_scores: StateScores | None = None  # exact estimator
+    start_loglik_windows: float | None = None  # exact estimator: its start's window loglik
 
     @property
     def items(self) -> tuple[str, ...]:
@@ -136,6 +177,24 @@ class FitResult:
     @property
     def stationary(self) -> bool:
         return self.spectral_radius < 1.0
+
+    def flagged(self, code: FlagCode) -> bool:
+        return any(f.code == code for f in self.flags)
+
+    @property
+    def extras(self) -> dict:
+        """The JSON's "extras" block: how the estimate was reached (from the typed fields)."""
+        method = self.options.method
+        out: dict = {"notes": list(self.notes), "newton_steps": self.newton_steps}
+        if method.uses_windows:
+            out.update(depth=self.depth, missing=self.options.missing)
+        else:
+            out.update(missing="filter", night_gap=self.options.night_gap)
+            if self.state_scores is not None:
+                out["state_scores"] = self.state_scores.to_json()
+            if self.start_loglik_windows is not None:
+                out["start_loglik_windows"] = self.start_loglik_windows
+        return out
 
     def table(self, kind: str | None = None) -> list[Parameter]:
         return [p for p in self.parameters if kind is None or p.kind == kind]
@@ -174,7 +233,8 @@ class FitResult:
             "seconds": self.seconds,
             "iterations": self.iterations,
             "spectral_radius": self.spectral_radius,
-            "flags": list(self.flags),
+            "flags": [str(f) for f in self.flags],
+            "flag_codes": [str(f.code) for f in self.flags],
             "cautions": list(self.cautions),
             "parameters": [p.to_json() for p in self.parameters],
             "fit": fit,
@@ -194,6 +254,7 @@ class FitResult:
         """Rebuild a result written by `to_json`; malformed documents raise ValueError."""
         try:
             spec = ModelSpec.from_json(doc["spec"])
+            extras = dict(doc.get("extras", {}))
             m = doc["matrices"]
             f = doc["fit"]
 
@@ -210,7 +271,7 @@ class FitResult:
                 srmr=_opt(f["srmr"]), loglik=_nan(f["loglik"]), aic=_nan(f["aic"]), bic=_nan(f["bic"]),
                 n_free=int(f["n_free"]), n_obs=int(f["n_obs"]), exact=bool(f.get("exact", False)))
             params = tuple(
-                Parameter(kind=str(q["kind"]), from_=str(q["from"]), to=str(q["to"]),
+                Parameter(kind=Kind(q["kind"]), from_=str(q["from"]), to=str(q["to"]),
                           estimate=float(q["estimate"]), se=_opt(q["se"]), standardized=_opt(q["standardized"]),
                           free=bool(q["free"]), lag=int(q.get("lag", 0)))
                 for q in doc["parameters"])
@@ -224,12 +285,25 @@ class FitResult:
                 lagged=tuple(arr(b, (k, k)) for b in m["lagged"]),
                 innovation=arr(m["innovation"], (k, k)), latent_cov=arr(m["latent_cov"], (k, k)),
                 r_squared=arr(m["r_squared"], (p,)), spectral_radius=_nan(doc["spectral_radius"]),
-                flags=tuple(str(x) for x in doc.get("flags", [])),
+                flags=_flags(doc),
                 cautions=tuple(str(x) for x in doc.get("cautions", [])) or (CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO, CAUTION_SE),
-                extras=dict(doc.get("extras", {})),
+                notes=tuple(str(x) for x in extras.get("notes", [])),
+                newton_steps=int(extras.get("newton_steps", 0)),
+                depth=None if extras.get("depth") is None else int(extras["depth"]),
+                state_scores=(None if extras.get("state_scores") is None
+                              else StateScores.from_json(extras["state_scores"])),
+                start_loglik_windows=_opt(extras.get("start_loglik_windows")),
             )
         except (KeyError, TypeError, ValueError, IndexError, AttributeError) as exc:
             raise ValueError(f"the stored result is malformed ({exc.__class__.__name__}: {exc})") from None
+
+
+def _flags(doc: dict) -> tuple[Flag, ...]:
+    texts = [str(x) for x in doc.get("flags", [])]
+    codes = [str(x) for x in doc.get("flag_codes", [""] * len(texts))]
+    if len(codes) != len(texts):
+        raise ValueError("flags and flag_codes differ in length")
+    return tuple(Flag(code, text) for code, text in zip(codes, texts))
 
 
 def _opt(value) -> float | None:

@@ -35,7 +35,8 @@ from statsmodels.tsa.stattools import adfuller, kpss
 
 from lagwise.models.diary import Diary
 from lagwise.models.errors import DataError
-from lagwise.models.estimate import MIN_WINDOWS_PER_PARAMETER
+from lagwise.models.numbers import fmt, p_phrase
+from lagwise.models.objective import MIN_WINDOWS_PER_PARAMETER
 from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.windows import lag_windows
 
@@ -473,11 +474,11 @@ def _item_findings(s: ItemScreen) -> list[tuple[str, str]]:
     if is_strong_trend(t):
         direction = "rises" if t.slope > 0 else "falls"
         notes.append(("strong trend", f"Item '{s.name}' {direction} over the diary (by about "
-                      f"{abs(t.drift_sd):.1f} SD, p = {format_p(t.p)}): consider removing its "
+                      f"{abs(t.drift_sd):.1f} SD, {p_phrase(t.p)}): consider removing its "
                       "linear trend."))
     if s.reading == "looks non-stationary":
-        notes.append(("non-stationary", f"Item '{s.name}' looks non-stationary (ADF p = "
-                      f"{format_p(s.adf.p)}, KPSS p = {format_p(s.kpss.p)})."))
+        notes.append(("non-stationary", f"Item '{s.name}' looks non-stationary (ADF "
+                      f"{p_phrase(s.adf.p)}, KPSS {p_phrase(s.kpss.p)})."))
     return notes
 
 
@@ -496,9 +497,9 @@ def format_screening(screening: Screening) -> str:
     for s in screening.items:
         acf1 = f"{s.acf[0]:>6.2f}" if s.acf and s.acf[0] is not None else f"{'-':>6}"
         slope = f"{s.trend.slope:>10.4f}" if s.trend.slope is not None else f"{'-':>10}"
-        kp = format_p(s.kpss.p) + ("*" if s.kpss.p_bounded else "")
-        lines.append(f"  {s.name:<{width}} {acf1} {slope}  {format_p(s.trend.p):>7}  "
-                     f"{format_p(s.adf.p):>6}  {kp:>6}  {s.reading}")
+        kp = fmt(s.kpss.p, "p") + ("*" if s.kpss.p_bounded else "")
+        lines.append(f"  {s.name:<{width}} {acf1} {slope}  {fmt(s.trend.p, 'p'):>7}  "
+                     f"{fmt(s.adf.p, 'p'):>6}  {kp:>6}  {s.reading}")
     r = screening.readiness
     lines += ["", f"  answered prompts: {r.answered} of {r.occasions}    "
                   f"complete lag windows: {r.complete_windows}"]
@@ -509,13 +510,6 @@ def format_screening(screening: Screening) -> str:
     if r.warnings:
         lines += ["", "  warnings"] + [f"    - {w}" for w in r.warnings] + [f"  {r.caution}"]
     return "\n".join(lines)
-
-
-def format_p(p: float | None) -> str:
-    """A p-value for people: "<.001" or three decimals ("-" when undefined)."""
-    if p is None:
-        return "-"
-    return "<.001" if p < 0.001 else f"{p:.3f}"
 
 
 # ----------------------------------------------------------------------------- helpers

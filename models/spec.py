@@ -16,7 +16,11 @@ from typing import Literal
 
 import numpy as np
 
+from lagwise.models import blocks
+from lagwise.models.blocks import Entry
 from lagwise.models.errors import SpecError
+from lagwise.models.estimators import estimator
+from lagwise.models.kinds import Kind
 
 InnovationForm = Literal["free", "independent", "partial"]
 Identification = Literal["marker", "variance"]
@@ -134,6 +138,71 @@ class ModelSpec:
         zeros = tuple(z for z in self.partial_zeros if z[0] in new and z[1] in new)
         return replace(self, states=tuple(states), paths=tuple(masks), partial_zeros=zeros)
 
+    # ----- the parameters --------------------------------------------------------------
+    def parameters(self, free_first_copies: bool = False) -> tuple[Entry, ...]:
+        """Every parameter of the model, free or fixed, in the order of the free vector:
+        loadings, intercepts, unique variances, unique autocorrelations, lagged paths,
+        innovations (covariances, or variances and partial correlations), and for the
+        first-copy-free estimator the oldest copies' covariance and the latent intercepts."""
+        items, states = self.items, self.state_names
+        k, q = self.k, self.lags
+        out: list[Entry] = []
+        marker_id = self.identification == "marker"
+        for j, s in enumerate(self.states):
+            for it in s.items:
+                fixed = marker_id and it == s.marker_item
+                out.append(Entry(Kind.LOADING, s.name, it, 0, blocks.LAMBDA, (items.index(it), j),
+                                 not fixed, 1.0))
+        for i, it in enumerate(items):
+            out.append(Entry(Kind.INTERCEPT, it, it, 0, blocks.NU, (i,), True))
+        single = {s.items[0] for s in self.states if len(s.items) == 1}
+        for i, it in enumerate(items):
+            rel = self.reliability_of(it)
+            if it in single:  # measured without error, or with the given reliability
+                out.append(Entry(Kind.UNIQUE, it, it, 0, blocks.THETA, (i,), False,
+                                 0.0 if rel is None else 1.0 - rel, per_item_variance=rel is not None))
+            else:
+                out.append(Entry(Kind.UNIQUE, it, it, 0, blocks.THETA, (i,), True))
+        for it in self.unique_autocorrelation:
+            out.append(Entry(Kind.UNIQUE_AUTOCORRELATION, it, it, 1, blocks.UNIQUE_AR,
+                             (items.index(it),), True))
+        for lag in range(1, q + 1):
+            mask = self.path_mask(lag)
+            for i, to in enumerate(states):
+                for j, fr in enumerate(states):
+                    kind = Kind.LAG2 if lag == 2 else (Kind.INERTIA if i == j else Kind.CROSS_LAGGED)
+                    out.append(Entry(kind, fr, to, lag, blocks.PATHS, (lag - 1, i, j), bool(mask[i, j])))
+        var_id = self.identification == "variance"
+        if self.innovations == "partial":
+            zeros = {frozenset(z) for z in self.partial_zeros}
+            for i, s in enumerate(states):
+                out.append(Entry(Kind.INNOVATION, s, s, 0, blocks.PARTIAL_VARIANCE, (i,), not var_id, 1.0))
+            for i in range(k):
+                for j in range(i):
+                    free = frozenset((states[i], states[j])) not in zeros
+                    out.append(Entry(Kind.PARTIAL_CORRELATION, states[j], states[i], 0,
+                                     blocks.PARTIAL_CORRELATION, (i, j), free))
+        else:
+            for i in range(k):
+                for j in range(i + 1):
+                    free = not var_id if i == j else self.innovations == "free"
+                    out.append(Entry(Kind.INNOVATION, states[j], states[i], 0, blocks.PSI, (i, j),
+                                     free, 1.0 if i == j else 0.0))
+        if free_first_copies and q > 0:
+            names = [f"{s}@t-{lag}" for lag in range(q) for s in states]
+            for a in range(q * k):
+                for b in range(a + 1):
+                    out.append(Entry(Kind.FIRST_COPY, names[b], names[a], 0, blocks.FIRST_COPY,
+                                     (a, b), True))
+            for i, s in enumerate(states):
+                out.append(Entry(Kind.LATENT_INTERCEPT, s, s, 0, blocks.LATENT_INTERCEPT, (i,), True))
+        return tuple(out)
+
+    def n_free(self, estimator_name: str = "stationary") -> int:
+        """Number of free parameters when estimated with `estimator_name`."""
+        first_copies = estimator(estimator_name).free_first_copies
+        return sum(e.free for e in self.parameters(first_copies))
+
     # ----- validation ----------------------------------------------------------------
     def validate(self, available_items: tuple[str, ...] | list[str] | None = None) -> list[str]:
         """Raise SpecError for a model that cannot be estimated; return plain-word notes."""
@@ -246,47 +315,3 @@ def make_spec(states: dict[str, list[str]] | list[tuple[str, list[str]]], lags: 
     """Convenience: ``make_spec({"mood": ["happy", "sad"], ...}, lags=1)``."""
     pairs = list(states.items()) if isinstance(states, dict) else list(states)
     return ModelSpec(states=tuple(State(n, tuple(i)) for n, i in pairs), lags=lags, **options)
-
-
-@dataclass(frozen=True)
-class FitOptions:
-    """Estimator settings.
-
-    estimator: "stationary" (block-Toeplitz windows, default), "first-copy-free" (free
-        covariance of the oldest copies), or "exact" (Kalman filter likelihood).
-    missing: "fiml" (full information over missingness patterns) or "listwise".
-    depth: window depth (default: the lag order).
-    night_gap: exact estimator only: join the days with this many missed prompts between
-        them (the states carry over the night) instead of restarting each day (default).
-    """
-
-    estimator: str = "stationary"
-    missing: str = "fiml"
-    depth: int | None = None
-    max_iter: int = 2000
-    night_gap: int | None = None
-
-    def window_depth(self, spec: ModelSpec) -> int:
-        d = spec.lags if self.depth is None else int(self.depth)
-        if d < spec.lags:
-            raise SpecError(f"Window depth {d} is below the lag order {spec.lags}.")
-        return d
-
-    def to_json(self) -> dict:
-        return {"estimator": self.estimator, "missing": self.missing, "depth": self.depth,
-                "max_iter": self.max_iter, "night_gap": self.night_gap}
-
-    @classmethod
-    def from_json(cls, doc: dict) -> "FitOptions":
-        try:
-            return cls(estimator=str(doc.get("estimator", "stationary")),
-                       missing=str(doc.get("missing", "fiml")),
-                       depth=None if doc.get("depth") is None else int(doc["depth"]),
-                       max_iter=int(doc.get("max_iter", 2000)),
-                       night_gap=None if doc.get("night_gap") is None else int(doc["night_gap"]))
-        except (TypeError, ValueError, AttributeError) as exc:
-            raise SpecError(f"The estimator settings are malformed ({exc}).") from None
-
-
-ESTIMATORS: tuple[str, ...] = ("stationary", "first-copy-free", "exact")
-MISSING: tuple[str, ...] = ("fiml", "listwise")

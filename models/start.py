@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from lagwise.models.kinds import Kind
 from lagwise.models.lyapunov import companion_covariance, spectral_radius
 from lagwise.models.parameters import Matrices, ParameterLayout
 
@@ -42,7 +43,8 @@ def start_matrices(layout: ParameterLayout, data: np.ndarray, depth: int) -> Mat
     nu = np.nanmean(blocks[0], axis=0)
     nu = np.where(np.isnan(nu), 0.0, nu)
     mask = spec.loading_mask()
-    fixed_theta = {e.index[0]: e.value for e in layout.entries if e.block == "theta" and not e.free}
+    fixed_theta = {e.index[0]: value for e, value in zip(layout.entries, layout.fixed_values)
+                   if e.kind == Kind.UNIQUE and not e.free}
     lam = np.zeros((p, k))
     phi_diag = np.ones(k)
     for j, s in enumerate(spec.states):
@@ -120,7 +122,7 @@ def start_matrices(layout: ParameterLayout, data: np.ndarray, depth: int) -> Mat
         np.fill_diagonal(rmat, 1.0)
         m.pv = np.diag(psi).copy()
         m.rmat = rmat
-    if layout.estimator == "first-copy-free" and q > 0:
+    if layout.free_first_copies:
         m.phif = companion_covariance(list(lagged), psi)
         m.c = np.zeros(k)
     # keep only what the layout frees, then rebuild the dependent matrices consistently

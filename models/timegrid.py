@@ -16,7 +16,6 @@ segment (a gap longer than `max_gap_minutes` still starts a new one).
 from __future__ import annotations
 
 import difflib
-from pathlib import Path
 from typing import Iterable, Sequence
 
 import numpy as np
@@ -28,7 +27,6 @@ from lagwise.models.readers import (
     is_missing_cell,
     looks_like_dates,
     numeric_cells,
-    read_table,
     show_cell,
     time_cells,
     where,
@@ -36,19 +34,6 @@ from lagwise.models.readers import (
 
 FEW_ANSWERS = 10  # an item with fewer answers than this gets a warning
 MAX_OCCASIONS = 5_000_000
-
-
-def load_diary(
-    path: str | Path,
-    items: Sequence[str] | None = None,
-    time: TimeSettings = TimeSettings(),
-    missing_codes: Iterable[object] = (),
-    prompts_per_day: int | None = None,
-) -> Diary:
-    """Read a diary file (see models.readers) and place its rows in time."""
-    frame = read_table(path)
-    return diary_from_frame(frame, items, time, missing_codes, source=str(path),
-                            prompts_per_day=prompts_per_day)
 
 
 def diary_from_frame(

@@ -23,6 +23,14 @@ class LagWindows:
     items: tuple[str, ...]
     data: np.ndarray
     occasion: np.ndarray  # index of occasion t (the newest) of each window
+    diary_occasions: int | None = None  # occasions of the diary the windows were cut from
+
+    @property
+    def n_occasions(self) -> int:
+        """Occasions of the source diary (when not recorded: up to the newest window's)."""
+        if self.diary_occasions is not None:
+            return self.diary_occasions
+        return int(self.occasion.max()) + 1 if self.occasion.size else 0
 
     @property
     def n_windows(self) -> int:
@@ -62,4 +70,5 @@ def lag_windows(diary: Diary, depth: int) -> LagWindows:
     for j in range(depth + 1):
         data[:, j * p:(j + 1) * p] = diary.values[t - j]
     keep = ~np.isnan(data).all(axis=1)
-    return LagWindows(depth=depth, items=diary.items, data=data[keep], occasion=t[keep])
+    return LagWindows(depth=depth, items=diary.items, data=data[keep], occasion=t[keep],
+                      diary_occasions=n)

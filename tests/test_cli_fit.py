@@ -15,7 +15,7 @@ from lagwise.desktop.cli import main
 from lagwise.models.diary import TimeSettings
 from lagwise.models.estimate import fit
 from lagwise.models.spec import make_spec
-from lagwise.models.timegrid import load_diary
+from lagwise.models.recipe import load_diary
 
 DEMO = Path(__file__).resolve().parents[1] / "resources" / "demo" / "demo_diary.csv"
 STATES = ["--state", "tension=tense,restless,worried", "--state", "mood=sad,flat,hopeless",

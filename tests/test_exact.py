@@ -12,7 +12,7 @@ from two_state_model import SPEC, TRUE
 from lagwise.models.estimate import fit
 from lagwise.models.exact import ExactObjective, _join_days, _window_start
 from lagwise.models.simulate import simulate_diary
-from lagwise.models.spec import FitOptions
+from lagwise.models.estimators import FitOptions
 
 
 def test_exact_and_window_estimates_agree_on_long_complete_series():

@@ -27,7 +27,8 @@ from lagwise.models.diary import Diary
 from lagwise.models.estimate import fit
 from lagwise.models.objective import WindowObjective
 from lagwise.models.simulate import simulate_diary
-from lagwise.models.spec import FitOptions, make_spec
+from lagwise.models.estimators import FitOptions
+from lagwise.models.spec import make_spec
 from lagwise.models.windows import lag_windows
 
 # two states with three items each; one item's loading is small so the states differ

@@ -30,12 +30,14 @@ import pytest
 from scipy.stats import binom, chi2, ncx2
 from statsmodels.stats.multitest import multipletests
 
-from lagwise.models.estimate import estimate_windows, fit
+from lagwise.models.estimate import fit
+from lagwise.models.solution import solve
 from lagwise.models.lag2check import holm, lag2_check, lag2_version
 from lagwise.models.objective import WindowObjective
 from lagwise.models.parameters import Matrices
 from lagwise.models.simulate import simulate_diary
-from lagwise.models.spec import FitOptions, make_spec
+from lagwise.models.estimators import FitOptions
+from lagwise.models.spec import make_spec
 from lagwise.models.windows import LagWindows, lag_windows
 
 STATES = {"Tension": ["tense", "restless", "worried"], "Mood": ["cheerful", "content", "relaxed"]}
@@ -362,8 +364,8 @@ def _asymptotic_power(days: int, lag2: float) -> float:
                      lagged=np.array([B1, b2]), psi=PSI)
     imp = layout_only.implied(layout_only.layout.pack(truth))
     rows = _exact_moment_rows(imp.mu, imp.sigma, n_rows, rng)
-    null = estimate_windows(WindowObjective(windows(rows), SPEC1, DEPTH2), [], n_rows, 0.0)
-    alt = estimate_windows(WindowObjective(windows(rows), true_spec, DEPTH2), [], n_rows, 0.0)
+    null = solve(WindowObjective(windows(rows), SPEC1, DEPTH2), [])
+    alt = solve(WindowObjective(windows(rows), true_spec, DEPTH2), [])
     noncentrality = 2.0 * (alt.fit.loglik - null.fit.loglik)
     return float(ncx2.sf(chi2.isf(0.05, 1), 1, noncentrality))
 

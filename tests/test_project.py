@@ -37,7 +37,8 @@ from lagwise.models.project import (
     recovery_path, relink_data, save_project, table_from_json, table_to_json, upgrade_0_to_1,
     write_recovery,
 )
-from lagwise.models.spec import FitOptions, make_spec
+from lagwise.models.estimators import FitOptions
+from lagwise.models.spec import make_spec
 from lagwise.models.timegrid import diary_from_frame
 
 DEMO = Path(__file__).resolve().parents[1] / "resources" / "demo" / "demo_diary.csv"

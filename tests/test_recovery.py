@@ -19,7 +19,8 @@ import pytest
 
 from lagwise.models.estimate import fit
 from lagwise.models.simulate import simulate_diary
-from lagwise.models.spec import FitOptions, make_spec
+from lagwise.models.estimators import FitOptions
+from lagwise.models.spec import make_spec
 
 SPEC = make_spec({"calm": ["calm1", "calm2", "calm3"], "tense": ["tense1", "tense2", "tense3"],
                   "tired": ["tired1", "tired2", "tired3"]}, lags=1)

@@ -15,7 +15,8 @@ from hypothesis import strategies as st
 
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import DataError, LagwiseError
-from lagwise.models.timegrid import diary_from_frame, load_diary
+from lagwise.models.timegrid import diary_from_frame
+from lagwise.models.recipe import load_diary
 
 STAMPS = TimeSettings(mode="timestamp", time="time")
 

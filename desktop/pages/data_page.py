@@ -29,7 +29,6 @@ from lagwise.desktop.import_dialog import counted
 from lagwise.desktop.pages.screening_view import ScreeningView
 from lagwise.desktop.session import Session
 from lagwise.models.errors import LagwiseError
-from lagwise.models.parameters import ParameterLayout
 from lagwise.models.preparation import describe
 from lagwise.models.summary import diary_summary
 
@@ -180,8 +179,7 @@ class DataPage(QWidget):
             return None
         try:
             session.spec.validate(session.diary.items)
-            return ParameterLayout(session.spec, np.ones(len(session.spec.items)),
-                                   session.options.estimator).n_free
+            return session.spec.n_free(session.options.estimator)
         except LagwiseError:
             return None
 

@@ -12,7 +12,6 @@ is one undoable edit of the session.
 
 from __future__ import annotations
 
-import importlib.util
 from dataclasses import replace
 
 import numpy as np
@@ -26,26 +25,9 @@ from PySide6.QtWidgets import (
 from lagwise.desktop import style
 from lagwise.desktop.session import Session
 from lagwise.models.errors import LagwiseError
-from lagwise.models.spec import ESTIMATORS, MISSING, FitOptions, ModelSpec, full_mask, inertia_mask
+from lagwise.models.estimators import ESTIMATORS, MISSING, FitOptions
+from lagwise.models.spec import ModelSpec, full_mask, inertia_mask
 
-ESTIMATOR_NAMES = {
-    "stationary": "Stationary lag windows (recommended start)",
-    "first-copy-free": "Lag windows, first copy free (no stationarity assumed)",
-    "exact": "Exact (Kalman filter, whole series)",
-}
-ESTIMATOR_HELP = {
-    "stationary": "Cuts the diary into short lag windows of consecutive prompts and fits them all "
-                  "at once, assuming the person's dynamics stay the same throughout. Fast and "
-                  "reliable. The windows overlap, so its fit figures (chi-square, AIC, BIC) are "
-                  "approximate.",
-    "first-copy-free": "The same lag windows without assuming a stable process: the oldest "
-                       "prompt of each window is left free. A useful cross-check of the "
-                       "stationary estimate; it needs more windows.",
-    "exact": "Follows the whole series prompt by prompt with the Kalman filter: every answered "
-             "prompt counts, missed prompts are bridged, and the log-likelihood, AIC and BIC are "
-             "exact, so they compare models properly. Also gives each state's score at every "
-             "prompt. Slower; starts from the stationary estimate.",
-}
 WINDOW_ONLY_TIP = ("The exact estimator follows the whole series with the Kalman filter: it uses "
                    "no lag windows and bridges missed prompts itself, so this setting does not "
                    "apply.")
@@ -56,23 +38,12 @@ NIGHT_GAP_TIP = ("How many prompts the night would hold at the day's rhythm. For
                  "prompts over 15 waking hours (one every 90 minutes) and 9 hours of sleep: "
                  "about 6. The longer the night, the less of the evening carries over to the "
                  "morning.")
-MISSING_NAMES = {
-    "fiml": "Use every answer (full information)",
-    "listwise": "Complete lag windows only (listwise)",
-}
 INNOVATION_NAMES = {
     "free": "Free: innovations may correlate",
     "independent": "Independent: no correlation between innovations",
     "partial": "Partial correlations: choose which pairs are free",
 }
 CELL = Qt.ItemDataRole.UserRole + 1
-
-
-def available_estimators() -> tuple[str, ...]:
-    """Estimators listed in models.spec.ESTIMATORS that the installed engine can run."""
-    engine = {"exact": "lagwise.models.exact"}
-    return tuple(e for e in ESTIMATORS
-                 if e not in engine or importlib.util.find_spec(engine[e]) is not None)
 
 
 class PathGrid(QGroupBox):
@@ -233,10 +204,10 @@ class DynamicsPage(QWidget):
         form = QFormLayout(estimate_box)
         self.estimator_combo = QComboBox()
         self.estimator_combo.setAccessibleName("Estimator")
-        for key in available_estimators():
-            self.estimator_combo.addItem(ESTIMATOR_NAMES.get(key, key), key)
+        for key, method in ESTIMATORS.items():
+            self.estimator_combo.addItem(method.label, key)
             self.estimator_combo.setItemData(self.estimator_combo.count() - 1,
-                                             ESTIMATOR_HELP.get(key, ""), Qt.ItemDataRole.ToolTipRole)
+                                             method.help, Qt.ItemDataRole.ToolTipRole)
         self.estimator_combo.currentIndexChanged.connect(self._estimator_chosen)
         form.addRow("&Estimator:", self.estimator_combo)
         self.estimator_help = _note()
@@ -244,8 +215,8 @@ class DynamicsPage(QWidget):
         form.addRow(self.estimator_help)
         self.missing_combo = QComboBox()
         self.missing_combo.setAccessibleName("Missing prompts")
-        for key in MISSING:
-            self.missing_combo.addItem(MISSING_NAMES.get(key, key), key)
+        for key, handling in MISSING.items():
+            self.missing_combo.addItem(handling.label, key)
         self.missing_combo.currentIndexChanged.connect(self._options_chosen)
         self.missing_label = QLabel("&Missed prompts:")
         self.missing_label.setBuddy(self.missing_combo)
@@ -320,7 +291,7 @@ class DynamicsPage(QWidget):
             (self.marker_radio if spec.identification == "marker"
              else self.variance_radio).setChecked(True)
             _select(self.estimator_combo, options.estimator)
-            self.estimator_help.setText(ESTIMATOR_HELP.get(options.estimator, ""))
+            self.estimator_help.setText(options.method.help)
             _select(self.missing_combo, options.missing)
             self._fill_depth(spec, options)
             self._show_night_rules(options)
@@ -350,7 +321,7 @@ class DynamicsPage(QWidget):
                          "windows.")
 
     def _show_night_rules(self, options: FitOptions) -> None:
-        exact = options.estimator == "exact"
+        exact = not options.method.uses_windows  # the filter: no windows; its own night rule
         for widget, label in ((self.missing_combo, self.missing_label),
                               (self.depth_combo, self.depth_label)):
             widget.setEnabled(not exact)
@@ -480,9 +451,7 @@ class DynamicsPage(QWidget):
         if self._syncing:
             return
         estimator = self.estimator_combo.currentData()
-        options = replace(self._session.options, estimator=estimator)
-        if estimator != "exact":
-            options = replace(options, night_gap=None)  # an exact-only setting
+        options = self._session.options.for_estimator(estimator)
         self._session.edit_options(options, f"Estimator: {estimator}")
 
     def _options_chosen(self) -> None:

@@ -27,7 +27,8 @@ from lagwise.desktop.export import export_menu
 from lagwise.models.diary import Diary
 from lagwise.models.errors import DataError
 from lagwise.models.preparation import STEP_LABELS, STEP_NAMES, Step, apply_steps, describe, usual_order
-from lagwise.models.screening import ItemScreen, Profile, Screening, format_p, screen_diary, weekdays
+from lagwise.models.numbers import fmt, p_phrase
+from lagwise.models.screening import ItemScreen, Profile, Screening, screen_diary, weekdays
 
 PLOT_ROW_HEIGHT = 190   # pixels per row of item plots
 MAX_DAY_TICKS = 6
@@ -338,8 +339,8 @@ class ScreeningView(QWidget):
                      _fixed(s.mean), _fixed(s.sd), _fixed(_pct(s.floor_share), 0),
                      _fixed(_pct(s.ceiling_share), 0), _fixed(s.skewness),
                      _fixed(s.acf[0] if s.acf else None), _fixed(s.trend.slope, 4),
-                     format_p(s.trend.p), format_p(s.adf.p),
-                     format_p(s.kpss.p) + (" (edge)" if s.kpss.p_bounded else ""), s.reading]
+                     fmt(s.trend.p, "p"), fmt(s.adf.p, "p"),
+                     fmt(s.kpss.p, "p") + (" (edge)" if s.kpss.p_bounded else ""), s.reading]
             if self._after is not None:
                 cells.append(self._after.items[j].reading)
             cells.append(", ".join(s.flags))
@@ -436,8 +437,8 @@ class ScreeningView(QWidget):
              []])
         plot.setXRange(-0.5, diary.n_occasions - 0.5, padding=0)
         plot.setYRange(low, high, padding=0)
-        plot.setTitle(escape(f"Series; dashed: trend (p {_p_words(t.p)})"), size="9pt")
-        plot.setToolTip(f"Linear trend: {_slope_words(t)}, p {_p_words(t.p)}")
+        plot.setTitle(escape(f"Series; dashed: trend ({p_phrase(t.p)})"), size="9pt")
+        plot.setToolTip(f"Linear trend: {_slope_words(t)}, {p_phrase(t.p)}")
         for i in answered:
             self._record("series", version, int(i), _occasion_label(diary, int(i)), y[i])
         for i in answered[[0, -1]] if answered.size and t.slope is not None else ():
@@ -572,10 +573,6 @@ def _acf_extent(screen: ItemScreen) -> float:
 def _pct(share: float | None) -> float | None:
     return None if share is None else 100 * share
 
-
-def _p_words(p: float | None) -> str:
-    text = format_p(p)
-    return text if text.startswith("<") or text == "-" else f"= {text}"
 
 
 def _slope_words(t) -> str:

@@ -12,7 +12,8 @@ from PySide6.QtWidgets import QComboBox, QLabel, QSplitter, QVBoxLayout, QWidget
 
 from lagwise.desktop.results.charts import bar_chart, plot_widget, style_plot
 from lagwise.desktop.results.diagram import DiagramScene, DiagramView, Link, Node
-from lagwise.desktop.results.tables import fmt, lagged_parameters, parameter_tooltip, paths_model
+from lagwise.desktop.results.tables import lagged_parameters, parameter_tooltip, paths_model
+from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
 from lagwise.models.results import FitResult, Parameter
 

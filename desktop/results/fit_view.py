@@ -12,13 +12,13 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QLabel, QScrollArea, QSplitter, QVBoxLayout, QWidget
 
 from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
-from lagwise.desktop.results.tables import fit_model, fit_rows, fmt
+from lagwise.desktop.results.tables import fit_model, fit_rows
+from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
+from lagwise.models.estimators import MISSING
+from lagwise.models.flags import FlagCode
 from lagwise.models.results import FitResult
 
-ESTIMATOR_NAMES = {"stationary": "stationary lag windows", "first-copy-free": "lag windows, first copy free",
-                   "exact": "exact likelihood (Kalman filter)"}
-MISSING_NAMES = {"fiml": "full information (every answered item used)", "listwise": "complete windows only"}
 
 READING_GUIDE = (
     "The cut-offs beside the figures are rules of thumb that many researchers use. They were "
@@ -37,8 +37,7 @@ def warnings_of(result: FitResult) -> list[str]:
         notes.append("The estimation did not converge"
                      + (f": {result.message}" if result.message else ".")
                      + " Treat every number below as provisional.")
-    flagged = " ".join(result.flags).lower()
-    if not result.stationary and "stationar" not in flagged:
+    if not result.stationary and not result.flagged(FlagCode.NOT_STATIONARY):
         notes.append(f"The lagged paths are not stationary (spectral radius {fmt(result.spectral_radius)}, "
                      "which should be below 1): the states would drift instead of settling back.")
     notes.extend(result.flags)
@@ -95,11 +94,12 @@ class FitPanel(ResultsPanel):
             self.banner.setText("No warnings: the estimation converged and the lagged paths are stationary.")
             self.banner.setStyleSheet(f"background:#e8f3f2; border-left:5px solid {POSITIVE}; "
                                       "padding:6px 10px; color:#12403d;")
-        options = result.options
+        method = result.options.method
+        missing = (MISSING[result.options.missing].short if method.uses_windows
+                   else "bridged by the filter (every answered item used)")
         self.summary.setText(
-            f"Estimator: {ESTIMATOR_NAMES.get(result.estimator, result.estimator)}; missing prompts: "
-            f"{MISSING_NAMES.get(options.missing, options.missing)}; {fmt(result.n_windows, 'int')} lag "
-            f"windows from {fmt(result.n_occasions, 'int')} prompts; {fmt(result.iterations, 'int')} "
+            f"Estimator: {method.short}; missing prompts: {missing}; {result.data_used} of "
+            f"{fmt(result.n_occasions, 'int')} prompts; {fmt(result.iterations, 'int')} "
             f"iterations, {result.seconds:.2f} s.")
         self.cautions.setText("<br><br>".join(html.escape(c) for c in result.cautions))
 

@@ -11,7 +11,8 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QComboBox, QHeaderView, QLabel, QSplitter, QVBoxLayout, QWidget
 
 from lagwise.desktop.results.diagram import DiagramScene, DiagramView, Link, Node
-from lagwise.desktop.results.tables import MatrixModel, fmt, parameter_tooltip
+from lagwise.desktop.results.tables import MatrixModel, parameter_tooltip
+from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import ResultsPanel, fit_height, note_label, section_label, table_view
 from lagwise.models.results import FitResult, Parameter
 

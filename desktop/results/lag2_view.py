@@ -11,17 +11,17 @@ specification.
 from __future__ import annotations
 
 import html
-from dataclasses import replace
 
 from PySide6.QtCore import QSortFilterProxyModel, Qt, Signal
 from PySide6.QtGui import QBrush, QColor, QFont
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QPushButton
 
 from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
-from lagwise.desktop.results.tables import SORT_ROLE, Column, RecordsModel, fmt
+from lagwise.desktop.results.tables import SORT_ROLE, Column, RecordsModel
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
 from lagwise.desktop.style import WARNING
-from lagwise.models.lag2check import Lag2Check, PathTest, lag1_version
+from lagwise.models.lag2check import Lag2Check, PathTest, in_model, lag1_version
+from lagwise.models.numbers import fmt
 from lagwise.models.results import FitResult
 from lagwise.models.spec import ModelSpec
 
@@ -48,31 +48,6 @@ RUN_TIP = ("Fit the lag-1 and the lag-2 model on the same lag windows and test e
 
 _STALE = ("The model has changed since the last lag-2 check. Press “Run lag-2 check” to test "
           "the current model.")
-
-
-def adopted_spec(spec: ModelSpec, kind: str, from_: str, to: str) -> ModelSpec:
-    """`spec` with one tested path added: a lag-2 path makes the model lag 2 (keeping any
-    lag-2 paths it had) and frees state `from_` at t-2 -> state `to` at t; a unique
-    autocorrelation adds item `to` to `spec.unique_autocorrelation`."""
-    if kind == "unique_autocorrelation":
-        if to in spec.unique_autocorrelation:
-            return spec
-        return replace(spec, unique_autocorrelation=spec.unique_autocorrelation + (to,))
-    names = spec.state_names
-    wider = spec if spec.lags == 2 else spec.with_lags(2)
-    mask = wider.path_mask(2).copy()
-    mask[names.index(to), names.index(from_)] = True
-    return wider.with_paths(2, mask)
-
-
-def in_model(spec: ModelSpec, t: PathTest) -> bool:
-    """True when the tested path is already free in `spec`."""
-    if t.kind == "unique_autocorrelation":
-        return t.to in spec.unique_autocorrelation
-    names = spec.state_names
-    if spec.lags < 2 or t.from_ not in names or t.to not in names:
-        return False
-    return bool(spec.path_mask(2)[names.index(t.to), names.index(t.from_)])
 
 
 def _where(t: PathTest) -> tuple[str, str]:
@@ -132,7 +107,7 @@ class Lag2View(ResultsPanel):
     Feed it `set_spec(spec)` whenever the model changes (or `show_result(result)`) and
     `show_check(check)` when a check finishes. Signals: `adopt_requested(kind, from_, to)`
     for the selected indicated path (kind "lag2": state `from_` at t-2 -> state `to` at t;
-    kind "unique_autocorrelation": item `to`; `adopted_spec` builds the new specification),
+    kind "unique_autocorrelation": item `to`; `lagwise.models.lag2check.adopt` builds the new specification),
     and `run_requested()` from the "Run lag-2 check" button.
     """
 
@@ -229,7 +204,7 @@ class Lag2View(ResultsPanel):
         self.lr_line.setText(
             f"Likelihood-ratio test, lag-1 model against the model with all {check.lr_df} lag-2 paths "
             f"free ({fmt(check.restricted.n_windows, 'int')} lag windows of "
-            f"{fmt(check.restricted.extras.get('depth', 2) + 1, 'int')} prompts): "
+            f"{fmt(check.restricted.depth + 1, 'int')} prompts): "
             f"chi-square {fmt(check.lr_chi2)} on {check.lr_df} df, p {fmt(check.lr_p, 'p')}.")
         self.lr_line.show()
         problems = []

@@ -12,7 +12,8 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QSplitter, QVBoxLayout, QWidget
 
 from lagwise.desktop.results.charts import bar_chart, style_plot
-from lagwise.desktop.results.tables import fmt, loading_rows, loadings_model
+from lagwise.desktop.results.tables import loading_rows, loadings_model
+from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import ResultsPanel, fit_height, note_label, table_view, table_width
 from lagwise.models.results import FitResult
 

@@ -9,7 +9,8 @@ from __future__ import annotations
 from PySide6.QtCore import QRegularExpression, QSortFilterProxyModel, Qt
 from PySide6.QtWidgets import QComboBox, QLabel, QLineEdit
 
-from lagwise.desktop.results.tables import KIND_NAMES, SORT_ROLE, parameters_model
+from lagwise.desktop.results.tables import SORT_ROLE, parameters_model
+from lagwise.models.kinds import Kind
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, table_view
 from lagwise.models.results import CAUTION_SE, FitResult
 
@@ -79,13 +80,13 @@ class ParametersPanel(ResultsPanel):
 
     def show_result(self, result: FitResult) -> None:
         self.model.set_rows(result.parameters)
-        present = [k for k in KIND_NAMES if any(p.kind == k for p in result.parameters)]
+        present = [k for k in Kind if any(p.kind == k for p in result.parameters)]
         current = self.kind_box.currentData()
         self.kind_box.blockSignals(True)
         self.kind_box.clear()
         self.kind_box.addItem("All kinds", "")
         for kind in present:
-            self.kind_box.addItem(KIND_NAMES[kind], kind)
+            self.kind_box.addItem(kind.label, str(kind))
         self.kind_box.setCurrentIndex(max(0, self.kind_box.findData(current)) if current in present else 0)
         self.kind_box.blockSignals(False)
         self.proxy.set_kind(self.kind_box.currentData() or "")

@@ -7,8 +7,8 @@ plot, and the line across it is dotted: there the score is the model's bridge be
 neighbouring answers, and the band widens. The line and band break between segments (by
 default each day), where the exact estimator restarts the states.
 
-Every number is read from `FitResult.extras["state_scores"]` (models.exact); the diary, given
-with `set_diary`, only places the prompts on days. Nothing is computed here but the band ends.
+Every number is read from `FitResult.state_scores` (models.results.StateScores, band ends
+included); the diary, given with `set_diary`, only places the prompts on days.
 """
 
 from __future__ import annotations
@@ -27,9 +27,8 @@ from lagwise.desktop.results.tables import Column, RecordsModel
 from lagwise.desktop.results.widgets import ResultsPanel, note_label
 from lagwise.desktop.style import DAY_SHADE, INK, MUTED, POSITIVE, RULE, SERIES
 from lagwise.models.diary import Diary
-from lagwise.models.results import FitResult
+from lagwise.models.results import FitResult, StateScores
 
-Z95 = 1.96             # two-sided 95% normal quantile (common practice)
 ROW_HEIGHT = 170       # pixels per state plot
 MAX_DAY_TICKS = 14
 SMOOTHED = POSITIVE    # deep teal: the smoothed score and its band
@@ -50,7 +49,7 @@ READING = ("The <b>smoothed</b> score is the best guess of the state at each pro
 
 
 class StateScoresPanel(ResultsPanel):
-    """Plots and table of `result.extras["state_scores"]` (see the module docstring)."""
+    """Plots and table of `result.state_scores` (see the module docstring)."""
 
     name = "state scores"
 
@@ -119,8 +118,8 @@ class StateScoresPanel(ResultsPanel):
 
     def show_result(self, result: FitResult) -> None:
         self._result = result
-        scores = result.extras.get("state_scores") if result is not None else None
-        if not scores:
+        scores = result.state_scores if result is not None else None
+        if scores is None:
             self._clear()
             return
         self._draw(result, scores)
@@ -135,11 +134,9 @@ class StateScoresPanel(ResultsPanel):
         self.stack.setCurrentWidget(self.message)
 
     # ----- drawing ------------------------------------------------------------------------
-    def _draw(self, result: FitResult, scores: dict) -> None:
-        smoothed = np.asarray(scores["smoothed"], dtype=float)
-        smoothed_sd = np.asarray(scores["smoothed_sd"], dtype=float)
-        filtered = np.asarray(scores["filtered"], dtype=float)
-        filtered_sd = np.asarray(scores["filtered_sd"], dtype=float)
+    def _draw(self, result: FitResult, scores: StateScores) -> None:
+        smoothed, filtered = scores.smoothed, scores.filtered
+        lows, highs = scores.band("smoothed", 0.95)
         n, k = smoothed.shape
         states = list(result.spec.state_names)
         layout = _Layout.of(self._diary, result, n)
@@ -160,8 +157,7 @@ class StateScoresPanel(ResultsPanel):
                 plot.getAxis("bottom").setStyle(showValues=False)
             else:
                 plot.setLabel("bottom", "day (tick at its first prompt)", color=INK)
-            m, sd = smoothed[:, j], smoothed_sd[:, j]
-            low, high = m - Z95 * sd, m + Z95 * sd
+            m, low, high = smoothed[:, j], lows[:, j], highs[:, j]
             span = (float(np.nanmin(low)), float(np.nanmax(high)))
             pad = 0.06 * max(span[1] - span[0], 1e-9)
             bottom, top = span[0] - 2.5 * pad, span[1] + pad
@@ -205,7 +201,7 @@ class StateScoresPanel(ResultsPanel):
         self.filtered_box.setEnabled(True)
         self.filtered_box.show()
         self.export_button.setEnabled(True)
-        self._fill_table(states, layout, smoothed, smoothed_sd, filtered, filtered_sd)
+        self._fill_table(states, layout, scores)
         self.note.setText(self._summary(result, layout, n))
         self.stack.setCurrentWidget(self.plot_page)
 
@@ -235,7 +231,7 @@ class StateScoresPanel(ResultsPanel):
         parts.append(f"<span style='color:{MUTED}'>▲</span> missed prompt")
         self.legend.setText("&nbsp;&nbsp;&nbsp;".join(parts))
 
-    def _fill_table(self, states, layout: "_Layout", smoothed, smoothed_sd, filtered, filtered_sd):
+    def _fill_table(self, states, layout: "_Layout", scores: StateScores):
         columns = [Column("Prompt", lambda r: r[0], "int"),
                    Column("Day", lambda r: r[1], "text"),
                    Column("Prompt of the day", lambda r: r[2], "text"),
@@ -246,7 +242,9 @@ class StateScoresPanel(ResultsPanel):
                                            "filtered", "filtered SD")):
                 columns.append(Column(f"{state} {what}", lambda r, c=base + offset: r[c]))
         rows = []
-        low, high = smoothed - Z95 * smoothed_sd, smoothed + Z95 * smoothed_sd
+        smoothed, smoothed_sd = scores.smoothed, scores.smoothed_sd
+        filtered, filtered_sd = scores.filtered, scores.filtered_sd
+        low, high = scores.band("smoothed", 0.95)
         for t in range(smoothed.shape[0]):
             row = [t + 1, layout.day_label(t), layout.prompt_label(t),
                    "yes" if layout.answered[t] else "no"]

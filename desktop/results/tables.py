@@ -1,6 +1,7 @@
-"""Qt table models over a FitResult, and the one number format every results view uses.
+"""Qt table models over a FitResult.
 
-Every cell shows a number taken from the FitResult as `fmt` writes it; nothing is computed
+Every cell shows a number taken from the FitResult as `models.numbers.fmt` writes it (the
+formatter the report and the command line use too); nothing is computed
 here. The display text is what the user sees and what CSV export writes; `SORT_ROLE`
 holds the raw value so that sorting is numeric.
 """
@@ -17,45 +18,11 @@ from PySide6.QtCore import QAbstractTableModel, QModelIndex, QPersistentModelInd
 from PySide6.QtGui import QBrush, QColor
 
 from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
+from lagwise.models.kinds import Kind
+from lagwise.models.numbers import fmt
 from lagwise.models.results import FitResult, Parameter
 
-MISSING = "—"
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
-
-KIND_NAMES = {
-    "loading": "Loading",
-    "intercept": "Intercept",
-    "unique": "Unique variance",
-    "unique_autocorrelation": "Unique autocorrelation",
-    "inertia": "Inertia",
-    "cross_lagged": "Cross-lagged effect",
-    "lag2": "Lag-2 effect",
-    "innovation": "Innovation (co)variance",
-    "partial_correlation": "Innovation partial correlation",
-}
-
-
-def fmt(value: Any, style: str = "number") -> str:
-    """Display text of one engine number.
-
-    style "number": 3 decimals ("-0.000" shown as "0.000"); "p": a p-value, "<.001" below
-    .001, otherwise 3 decimals without the leading zero (".042", "1.000"); "int": a count.
-    None, NaN and infinities show as an em dash.
-    """
-    if value is None:
-        return MISSING
-    number = float(value)
-    if not math.isfinite(number):
-        return MISSING
-    if style == "int":
-        return str(int(round(number)))
-    if style == "p":
-        if number < 0.001:
-            return "<.001"
-        text = f"{number:.3f}"
-        return text[1:] if text.startswith("0.") else text
-    text = f"{number:.3f}"
-    return "0.000" if text == "-0.000" else text
 
 
 @dataclass(frozen=True)
@@ -233,7 +200,7 @@ def _lag_text(p: Parameter) -> str:
 
 
 PARAMETER_COLUMNS = (
-    Column("Kind", lambda p: KIND_NAMES.get(p.kind, p.kind), "text"),
+    Column("Kind", lambda p: Kind(p.kind).label, "text"),
     Column("From", lambda p: p.from_, "text"),
     Column("To", lambda p: p.to, "text"),
     Column("Lag", _lag_text, "text", tip="For lagged paths: how many prompts back the 'From' state is"),
@@ -256,7 +223,7 @@ PATH_COLUMNS = (
     Column("From", lambda p: p.from_, "text"),
     Column("To", lambda p: p.to, "text"),
     Column("Lag", _lag_text, "text"),
-    Column("Kind", lambda p: KIND_NAMES.get(p.kind, p.kind), "text"),
+    Column("Kind", lambda p: Kind(p.kind).label, "text"),
     Column("Estimate", lambda p: p.estimate),
     Column("Standardized", lambda p: p.standardized),
     Column("SE", lambda p: p.se),

@@ -12,8 +12,9 @@ import numpy as np
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.estimate import fit
 from lagwise.models.results import FitResult
-from lagwise.models.spec import FitOptions, ModelSpec
-from lagwise.models.timegrid import load_diary
+from lagwise.models.estimators import FitOptions
+from lagwise.models.spec import ModelSpec
+from lagwise.models.recipe import load_diary
 
 DEMO = Path(__file__).resolve().parents[2] / "resources" / "demo"
 

@@ -15,7 +15,8 @@ import lagwise.desktop.pages.screening_view as screening_module
 from lagwise.desktop.export import save_widget_png
 from lagwise.desktop.pages.data_page import DataPage
 from lagwise.models.preparation import Step
-from lagwise.models.screening import format_p, screen_diary
+from lagwise.models.numbers import fmt
+from lagwise.models.screening import screen_diary
 
 
 @pytest.fixture
@@ -77,7 +78,7 @@ def test_screening_tab_shows_the_sessions_diary(page, session, qtbot, artifacts)
         assert float(model.index(r, mean).data()) == pytest.approx(answers.mean(), abs=0.005)
         assert float(model.index(r, sd).data()) == pytest.approx(answers.std(ddof=1), abs=0.005)
         assert model.index(r, acf).data() == f"{item.acf[0]:.2f}"
-        assert model.index(r, adf).data() == format_p(item.adf.p)
+        assert model.index(r, adf).data() == fmt(item.adf.p, "p")
     text = page.screening.readiness_label.text()
     readiness = expected.readiness
     assert f"<b>{readiness.answered}</b> of {diary.n_occasions} prompts" in text

@@ -15,7 +15,8 @@ from window_helpers import open_window, settle
 from lagwise.desktop.app import load_demo
 from lagwise.desktop.export import save_widget_png
 from lagwise.desktop.mainwindow import PAGES
-from lagwise.desktop.pages.dynamics_page import ESTIMATOR_HELP, DynamicsPage
+from lagwise.desktop.pages.dynamics_page import DynamicsPage
+from lagwise.models.estimators import ESTIMATORS
 
 ESTIMATE_TIMEOUT_MS = 120_000
 
@@ -42,13 +43,13 @@ def test_choosing_exact_sets_the_estimator_and_explains_it(page, session, qtbot,
     offered = [combo.itemData(i) for i in range(combo.count())]
     assert offered == ["stationary", "first-copy-free", "exact"]
     assert combo.itemText(offered.index("exact")) == "Exact (Kalman filter, whole series)"
-    assert page.estimator_help.text() == ESTIMATOR_HELP["stationary"]
+    assert page.estimator_help.text() == ESTIMATORS["stationary"].help
     assert page.missing_combo.isEnabled() and page.depth_combo.isEnabled()
     assert not page.exact_night.isEnabled()
     choose(combo, "exact")
     settle(qtbot, 5)
     assert session.options.estimator == "exact" and session.options.night_gap is None
-    assert page.estimator_help.text() == ESTIMATOR_HELP["exact"]
+    assert page.estimator_help.text() == ESTIMATORS["exact"].help
     for widget in (page.missing_combo, page.depth_combo):      # window-only settings
         assert not widget.isEnabled()
         assert "exact estimator" in widget.toolTip() and "no lag windows" in widget.toolTip()

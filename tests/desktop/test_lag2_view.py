@@ -16,8 +16,9 @@ from PySide6.QtCore import Qt
 
 from lagwise.desktop.export import save_table_csv, save_widget_png
 from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
-from lagwise.desktop.results.lag2_view import Lag2View, adopted_spec, in_model
-from lagwise.desktop.results.tables import fmt
+from lagwise.desktop.results.lag2_view import Lag2View
+from lagwise.models.lag2check import adopt as adopted_spec, in_model
+from lagwise.models.numbers import fmt
 from lagwise.models.lag2check import lag2_check
 from lagwise.models.simulate import simulate_diary
 from lagwise.models.spec import make_spec

@@ -18,7 +18,7 @@ from window_helpers import import_file, open_window, settle
 
 from lagwise.desktop.export import save_widget_png
 from lagwise.desktop.mainwindow import JOB_ESTIMATE, JOB_LAG2, PAGES, MainWindow
-from lagwise.desktop.results.lag2_view import adopted_spec
+from lagwise.models.lag2check import adopt as adopted_spec
 from lagwise.models.lag2check import lag2_check
 from lagwise.models.preparation import Step
 from lagwise.models.simulate import simulate_diary

@@ -21,11 +21,12 @@ from scipy.stats import norm
 
 from lagwise.desktop.results import ResultsView
 from lagwise.desktop.results.lag2_view import Lag2View
-from lagwise.desktop.results.tables import fmt
+from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import save
 from lagwise.models.estimate import fit
 from lagwise.models.lag2check import lag2_check
-from lagwise.models.spec import FitOptions, make_spec
+from lagwise.models.estimators import FitOptions
+from lagwise.models.spec import make_spec
 from results_fixture import demo_diary, demo_result, demo_spec
 
 ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"

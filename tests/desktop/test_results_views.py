@@ -19,7 +19,9 @@ from PySide6.QtGui import QColor, QImage, QTextDocument
 from PySide6.QtWidgets import QGraphicsPolygonItem
 
 from lagwise.desktop.results import ResultsView
-from lagwise.desktop.results.tables import KIND_NAMES, SORT_ROLE, fmt
+from lagwise.desktop.results.tables import SORT_ROLE
+from lagwise.models.kinds import Kind
+from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import save
 from lagwise.desktop.style import NEGATIVE, POSITIVE
 from lagwise.models.results import CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO
@@ -27,6 +29,8 @@ from results_fixture import demo_result, demo_variant
 
 ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
 DISPLAY = Qt.ItemDataRole.DisplayRole
+
+KIND_NAMES = {kind: kind.label for kind in Kind}
 
 
 def cell(model, row: int, header: str) -> str:

@@ -13,7 +13,8 @@ from lagwise.desktop.pages.screening_view import ScreeningView
 from lagwise.models.diary import TimeSettings
 from lagwise.models.preparation import Step, apply_steps
 from lagwise.models.screening import screen_diary
-from lagwise.models.timegrid import diary_from_frame, load_diary
+from lagwise.models.timegrid import diary_from_frame
+from lagwise.models.recipe import load_diary
 
 DEMO = "resources/demo/demo_diary.csv"
 GRID = TimeSettings(mode="grid", day="day", prompt="prompt")

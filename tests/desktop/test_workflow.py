@@ -40,7 +40,7 @@ from lagwise.models.errors import DataError
 from lagwise.models.estimate import fit
 from lagwise.models.progress import checkpoint
 from lagwise.models.spec import ModelSpec
-from lagwise.models.timegrid import load_diary
+from lagwise.models.recipe import load_diary
 
 REPO = Path(__file__).resolve().parents[2]
 TRUTH_SPEC = ModelSpec.from_json(json.loads(DEMO_TRUTH.read_text(encoding="utf-8"))["spec"])

@@ -1,0 +1,176 @@
+"""The estimators, declared once, and the estimator settings (`FitOptions`) checked against them.
+
+Each estimator states its name (the command line's and the JSON's), its label and help text
+(the window, the command line, reports), whether it uses lag windows, which optional settings
+it takes and which missing-data handling it offers, and the objective it maximises
+(`objective` names a class with `build(diary, spec, options, monitor)`; it is looked up when
+a fit starts, so this module stays at the bottom of the import graph). The rest of the
+engine asks the registry instead of comparing estimator names.
+"""
+
+from __future__ import annotations
+
+import importlib
+from dataclasses import dataclass, fields, replace
+from typing import TYPE_CHECKING, Any
+
+from lagwise.models.errors import SpecError
+
+if TYPE_CHECKING:  # type hints only: these modules import this one
+    from lagwise.models.diary import Diary
+    from lagwise.models.progress import Monitor
+    from lagwise.models.spec import ModelSpec
+
+
+@dataclass(frozen=True)
+class Setting:
+    """An optional estimator setting: its FitOptions field, words and command-line flag."""
+
+    field: str
+    words: str
+    flag: str
+
+
+@dataclass(frozen=True)
+class MissingHandling:
+    name: str
+    label: str   # the window's list
+    short: str   # one phrase in reports and on the Fit tab
+
+
+@dataclass(frozen=True)
+class Estimator:
+    """One estimator (see the module docstring)."""
+
+    name: str
+    label: str
+    short: str
+    help: str
+    uses_windows: bool
+    free_first_copies: bool
+    missing: tuple[str, ...]        # offered handling of missed prompts; the first is the default
+    settings: tuple[str, ...]       # optional FitOptions fields it takes
+    objective: str                  # "module:Class"
+
+    def build(self, diary: "Diary", spec: "ModelSpec", options: "FitOptions",
+              monitor: "Monitor | None" = None) -> Any:
+        """The objective of this estimator for `diary` and `spec`."""
+        module, name = self.objective.split(":")
+        return getattr(importlib.import_module(module), name).build(diary, spec, options, monitor)
+
+
+SETTINGS = {s.field: s for s in (
+    Setting("depth", "a window depth", "--depth"),
+    Setting("night_gap", "a night gap", "--night-gap"),
+)}
+MISSING = {m.name: m for m in (
+    MissingHandling("fiml", "Use every answer (full information)",
+                    "full information (every answered item used)"),
+    MissingHandling("listwise", "Complete lag windows only (listwise)", "complete windows only"),
+)}
+_WINDOWS = "lagwise.models.objective:WindowObjective"
+ESTIMATORS = {e.name: e for e in (
+    Estimator(
+        "stationary", "Stationary lag windows (recommended start)", "stationary lag windows",
+        "Cuts the diary into short lag windows of consecutive prompts and fits them all at once, "
+        "assuming the person's dynamics stay the same throughout. Fast and reliable. The windows "
+        "overlap, so its fit figures (chi-square, AIC, BIC) are approximate.",
+        uses_windows=True, free_first_copies=False, missing=("fiml", "listwise"),
+        settings=("depth",), objective=_WINDOWS),
+    Estimator(
+        "first-copy-free", "Lag windows, first copy free (no stationarity assumed)",
+        "lag windows, first copy free",
+        "The same lag windows without assuming a stable process: the oldest prompt of each "
+        "window is left free. A useful cross-check of the stationary estimate; it needs more "
+        "windows.",
+        uses_windows=True, free_first_copies=True, missing=("fiml", "listwise"),
+        settings=("depth",), objective=_WINDOWS),
+    Estimator(
+        "exact", "Exact (Kalman filter, whole series)", "exact likelihood (Kalman filter)",
+        "Follows the whole series prompt by prompt with the Kalman filter: every answered prompt "
+        "counts, missed prompts are bridged, and the log-likelihood, AIC and BIC are exact, so "
+        "they compare models properly. Also gives each state's score at every prompt. Slower; "
+        "starts from the stationary estimate.",
+        uses_windows=False, free_first_copies=False, missing=("fiml",),
+        settings=("night_gap",), objective="lagwise.models.exact:ExactObjective"),
+)}
+DEFAULT_ESTIMATOR = "stationary"
+
+
+def estimator(name: str) -> Estimator:
+    """The estimator called `name`; SpecError naming the choices otherwise."""
+    try:
+        return ESTIMATORS[name]
+    except (KeyError, TypeError):
+        raise SpecError(f"Unknown estimator '{name}' (choose {', '.join(ESTIMATORS)}).") from None
+
+
+@dataclass(frozen=True)
+class FitOptions:
+    """Estimator settings, checked against the registry when made.
+
+    estimator: a name in ESTIMATORS. missing: "fiml" (full information over missingness
+    patterns; the exact estimator's filter is full information too) or "listwise".
+    depth: window depth (window estimators; default the lag order). night_gap (exact only):
+    join the days with this many missed prompts between them (the states carry over the
+    night) instead of restarting each day. max_iter: optimiser iterations at most.
+    A setting the estimator does not take is refused with a plain message; `for_estimator`
+    switches estimator and drops what the new one does not take.
+    """
+
+    estimator: str = DEFAULT_ESTIMATOR
+    missing: str = "fiml"
+    depth: int | None = None
+    max_iter: int = 2000
+    night_gap: int | None = None
+
+    def __post_init__(self) -> None:
+        method = estimator(self.estimator)
+        if self.missing not in MISSING:
+            raise SpecError(f"Unknown missing-data handling '{self.missing}' "
+                            f"(choose {' or '.join(MISSING)}).")
+        if self.missing not in method.missing:
+            raise SpecError(f"The {method.short} estimator handles missed prompts itself; "
+                            f"--missing {self.missing} needs a lag-window estimator.")
+        for setting in SETTINGS.values():
+            if getattr(self, setting.field) is not None and setting.field not in method.settings:
+                takers = [e.name for e in ESTIMATORS.values() if setting.field in e.settings]
+                raise SpecError(f"The {method.short} estimator does not take {setting.words} "
+                                f"({setting.flag} needs --estimator {' or '.join(takers)}).")
+        if self.depth is not None and not 0 <= self.depth <= 50:
+            raise SpecError(f"Window depth must lie between 0 and 50, not {self.depth}.")
+        if self.night_gap is not None and not 0 <= self.night_gap <= 1000:
+            raise SpecError(f"The night gap must lie between 0 and 1000 prompts, not {self.night_gap}.")
+        if self.max_iter < 1:
+            raise SpecError(f"The optimiser needs at least one iteration, not {self.max_iter}.")
+
+    @property
+    def method(self) -> Estimator:
+        return ESTIMATORS[self.estimator]
+
+    def for_estimator(self, name: str) -> "FitOptions":
+        """The same settings for estimator `name`, without those it does not take."""
+        method = estimator(name)
+        drop = {s: None for s in SETTINGS if s not in method.settings}
+        missing = self.missing if self.missing in method.missing else method.missing[0]
+        return replace(self, estimator=name, missing=missing, **drop)
+
+    def window_depth(self, spec: "ModelSpec") -> int:
+        d = spec.lags if self.depth is None else int(self.depth)
+        if d < spec.lags:
+            raise SpecError(f"Window depth {d} is below the lag order {spec.lags}.")
+        return d
+
+    def to_json(self) -> dict:
+        return {f.name: getattr(self, f.name) for f in fields(self)}
+
+    @classmethod
+    def from_json(cls, doc: dict) -> "FitOptions":
+        try:
+            return cls(estimator=str(doc.get("estimator", DEFAULT_ESTIMATOR)),
+                       missing=str(doc.get("missing", "fiml")),
+                       depth=None if doc.get("depth") is None else int(doc["depth"]),
+                       max_iter=int(doc.get("max_iter", 2000)),
+                       night_gap=None if doc.get("night_gap") is None else int(doc["night_gap"]))
+        except (TypeError, ValueError, AttributeError) as exc:
+            raise SpecError(f"The estimator settings are malformed ({exc}).") from None

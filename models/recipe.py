@@ -1,0 +1,52 @@
+"""How a raw table becomes a diary: one recipe used by the window, the command line and
+project files.
+
+A recipe names the item columns (None: every numeric column that is not a time column), how
+rows are placed in time (models.diary.TimeSettings), the answers that mean "missing", and
+for a grid diary the number of prompts scheduled per day (None: the highest prompt number
+seen). `diary(table)` applies it (models.timegrid.diary_from_frame); `read(path)` reads the
+file first (models.readers.read_table).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+from lagwise.models.diary import Diary, TimeSettings
+from lagwise.models.readers import read_table
+from lagwise.models.timegrid import diary_from_frame
+
+
+@dataclass(frozen=True)
+class DiaryRecipe:
+    items: tuple[str, ...] | None = None
+    time: TimeSettings = TimeSettings()
+    missing_codes: tuple[str | float, ...] = ()
+    prompts_per_day: int | None = None
+
+    @classmethod
+    def of(cls, items: Sequence[str] | None = None, time: TimeSettings = TimeSettings(),
+           missing_codes: Iterable[object] = (), prompts_per_day: int | None = None) -> "DiaryRecipe":
+        """A recipe from any sequences (stored as tuples)."""
+        return cls(None if items is None else tuple(str(i) for i in items), time,
+                   tuple(missing_codes), prompts_per_day)  # type: ignore[arg-type]
+
+    def diary(self, table: pd.DataFrame, source: str = "") -> Diary:
+        """The diary of `table`; DataError naming the column and row when it cannot be one."""
+        return diary_from_frame(table, self.items, self.time, self.missing_codes, source=source,
+                                prompts_per_day=self.prompts_per_day)
+
+    def read(self, path: str | Path) -> Diary:
+        """Read a diary file (CSV/TSV/XLSX/SAV/DTA) and apply the recipe."""
+        return self.diary(read_table(path), source=str(path))
+
+
+def load_diary(path: str | Path, items: Sequence[str] | None = None,
+               time: TimeSettings = TimeSettings(), missing_codes: Iterable[object] = (),
+               prompts_per_day: int | None = None) -> Diary:
+    """Read a diary file and place its rows in time: `DiaryRecipe.of(...).read(path)`."""
+    return DiaryRecipe.of(items, time, missing_codes, prompts_per_day).read(path)

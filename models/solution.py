@@ -1,0 +1,181 @@
+"""From an objective to a result: the one step every estimator shares.
+
+`solve` maximises any objective (models.optimise), polishes the optimum with Newton steps on
+the observed information, judges convergence the same way for every estimator, derives the
+standard errors, the stationary solution, the flags and the parameter table with the
+standardized solution, and asks the objective for what only it knows (fit figures, state
+scores). Convergence: the optimiser reported success (or stopped in its line search, which
+L-BFGS-B does at an optimum it cannot improve in floating point) AND the gradient, scaled by
+each parameter's typical size, is below 1e-3 per row at the interior parameters.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any, Protocol
+
+import numpy as np
+
+from lagwise.models import flags as warn
+from lagwise.models.blocks import Scales
+from lagwise.models.estimators import FitOptions
+from lagwise.models.flags import Flag
+from lagwise.models.kinds import Kind
+from lagwise.models.lyapunov import spectral_radius, stationary_covariance
+from lagwise.models.optimise import (covariance_from_hessian, interior, maximise, newton_polish,
+                                     observed_hessian)
+from lagwise.models.parameters import Matrices, ParameterLayout
+from lagwise.models.progress import Monitor, checkpoint, scaled
+from lagwise.models.results import FitIndices, FitResult, Parameter
+from lagwise.models.spec import ModelSpec
+
+GRADIENT_TOLERANCE = 1e-3
+Start = FitResult | Mapping[tuple[str, str, str], float] | np.ndarray | None
+
+
+class Objective(Protocol):
+    """What `solve` needs from an estimator's objective (models.objective, models.exact)."""
+
+    spec: ModelSpec
+    options: FitOptions
+    layout: ParameterLayout
+    item_var: np.ndarray
+    n_rows: int
+    n_occasions: int
+
+    def loglik(self, theta: np.ndarray) -> float: ...
+
+    def loglik_and_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]: ...
+
+    def start(self, monitor: Monitor | None) -> np.ndarray: ...
+
+    def preflight(self) -> list[Flag]: ...
+
+    def latent_covariance(self, theta: np.ndarray, mats: Matrices, radius: float) -> np.ndarray: ...
+
+    def figures(self, theta: np.ndarray, loglik: float, sigma0: np.ndarray) -> tuple[FitIndices, list[Flag]]: ...
+
+    def result_fields(self, theta: np.ndarray, mats: Matrices) -> dict[str, Any]: ...
+
+
+@dataclass(frozen=True)
+class Judgement:
+    converged: bool
+    message: str
+
+
+def judge(optimiser_ok: bool, message: str, gradient: np.ndarray, sizes: np.ndarray,
+          inside: np.ndarray, n_rows: int) -> Judgement:
+    """Converged when the optimiser stopped well and the scaled gradient is small (see the
+    module docstring); otherwise the reason, in words."""
+    if not optimiser_ok:
+        return Judgement(False, message)
+    worst = float(np.max(np.abs(gradient * sizes)[inside])) / max(n_rows, 1) if inside.any() else 0.0
+    if not np.isfinite(worst) or worst >= GRADIENT_TOLERANCE:
+        return Judgement(False, "the gradient is not close to zero at the final estimate")
+    return Judgement(True, message)
+
+
+def start_vector(objective: Objective, start: Start, monitor: Monitor | None) -> np.ndarray:
+    """Start values: the objective's own, or given ones (a previous result or estimates named
+    by (kind, from, to); parameters they do not name take the objective's own start)."""
+    layout = objective.layout
+    if start is None:
+        return objective.start(monitor)
+    if isinstance(start, np.ndarray):
+        if start.shape != (layout.n_free,):
+            raise ValueError(f"start has {start.size} values for {layout.n_free} free parameters")
+        return start.astype(float)
+    named = {p.key: p.estimate for p in start.parameters} if isinstance(start, FitResult) else start
+    theta = layout.theta_from(named, default=np.nan)
+    if np.isnan(theta).any():
+        own = objective.start(monitor)
+        theta = np.where(np.isnan(theta), own, theta)
+    return theta
+
+
+def solve(objective: Objective, notes: list[str], monitor: Monitor | None = None, *,
+          standard_errors: bool = True, start: Start = None) -> FitResult:
+    """Maximise `objective` and build its FitResult (see the module docstring).
+    standard_errors=False skips the observed information (and the Newton polish that uses it)."""
+    started = time.perf_counter()
+    layout, options = objective.layout, objective.options
+    flags = list(objective.preflight())
+    checkpoint(monitor, 0.02, "Start values")
+    theta0 = start_vector(objective, start, scaled(monitor, 0.02, 0.3))
+    sizes = layout.sizes(theta0, objective.item_var)
+    theta, ok, message, iterations = maximise(objective, theta0, sizes, options.max_iter,
+                                              scaled(monitor, 0.3, 0.8))
+    steps = 0
+    cov = np.full((layout.n_free, layout.n_free), np.nan)
+    if standard_errors:
+        checkpoint(monitor, 0.8, "Standard errors")
+        hessian = observed_hessian(objective, theta, sizes, scaled(monitor, 0.8, 0.9))
+        theta, hessian, steps = newton_polish(objective, theta, hessian)
+    ll, grad = objective.loglik_and_gradient(theta)
+    inside = interior(objective, theta)
+    verdict = judge(ok, message, grad, sizes, inside, objective.n_rows)
+    if standard_errors:
+        cov, se_ok = covariance_from_hessian(hessian, inside)
+        if verdict.converged and not se_ok:
+            flags.append(warn.not_identified())
+    checkpoint(monitor, 0.9, "Fit figures")
+    mats = layout.unpack(theta)
+    radius = spectral_radius(list(mats.lagged)) if layout.q else 0.0
+    latent = (stationary_covariance(list(mats.lagged), mats.psi) if radius < 1.0
+              else objective.latent_covariance(theta, mats, radius))
+    sigma0 = mats.lam @ latent @ mats.lam.T + np.diag(mats.theta)
+    fit, figure_flags = objective.figures(theta, ll, sigma0)
+    flags += figure_flags + warn.stationarity(radius) + boundary_flags(layout, theta, sigma0,
+                                                                        objective.item_var)
+    parameters = parameter_table(layout, theta, cov, latent, sigma0, mats)
+    fields = objective.result_fields(theta, mats)
+    checkpoint(monitor, 1.0, "Done")
+    return FitResult(
+        spec=objective.spec, options=options, estimator=options.estimator,
+        converged=verdict.converged, message=verdict.message, iterations=iterations,
+        seconds=time.perf_counter() - started, n_windows=objective.n_rows,
+        n_occasions=objective.n_occasions, parameters=tuple(parameters), fit=fit,
+        loadings=mats.lam.copy(), intercepts=mats.nu.copy(), unique=mats.theta.copy(),
+        lagged=tuple(mats.lagged[l].copy() for l in range(layout.q)), innovation=mats.psi.copy(),
+        latent_cov=latent, r_squared=1.0 - mats.theta / np.diag(sigma0), spectral_radius=radius,
+        flags=tuple(flags), notes=tuple(notes), newton_steps=steps, **fields)
+
+
+def boundary_flags(layout: ParameterLayout, theta: np.ndarray, sigma0: np.ndarray,
+                   item_var: np.ndarray) -> list[Flag]:
+    """Estimates on the boundary: unique variances 0 (Heywood), innovation variances 0,
+    partial correlations near +-1."""
+    out = []
+    for n, e in enumerate(layout.free_entries):
+        if e.kind == Kind.UNIQUE and theta[n] <= 1e-6 * sigma0[e.index[0], e.index[0]]:
+            out.append(warn.heywood(e.to))
+        elif e.kind == Kind.INNOVATION and e.is_variance and theta[n] <= 1e-6 * float(np.mean(item_var)):
+            out.append(warn.zero_innovation(e.to))
+        elif e.kind == Kind.PARTIAL_CORRELATION and abs(theta[n]) > 0.99:
+            out.append(warn.partial_boundary(e.from_, e.to))
+    return out
+
+
+def parameter_table(layout: ParameterLayout, theta: np.ndarray, cov: np.ndarray,
+                    latent: np.ndarray, sigma0: np.ndarray, mats: Matrices) -> list[Parameter]:
+    """Every parameter with its standard error (free ones off the boundary) and its value
+    standardized by the stationary standard deviations of states and items."""
+    values = layout.values(theta)
+    scales = Scales(sd_item=np.sqrt(np.clip(np.diag(sigma0), 1e-300, None)),
+                    sd_state=np.sqrt(np.clip(np.diag(latent), 1e-300, None)),
+                    item_var=np.diag(sigma0), first_copy=mats.phif)
+    standardized = layout.standardized(values, scales)
+    variances = np.diag(cov)
+    se_free = np.where(np.isfinite(variances) & (variances > 0), np.sqrt(np.abs(variances)), np.nan)
+    out, n = [], 0
+    for e, value, std in zip(layout.entries, values, standardized):
+        se = None
+        if e.free:
+            se = None if np.isnan(se_free[n]) else float(se_free[n])
+            n += 1
+        out.append(Parameter(kind=e.kind, from_=e.from_, to=e.to, estimate=float(value), se=se,
+                             standardized=float(std), free=e.free, lag=e.lag))
+    return out
