@@ -3,3 +3,13 @@
 Installed as `lagwise.resources`; code finds the files with
 ``importlib.resources.files("lagwise.resources")``, so they work from a wheel too.
 """
+
+from __future__ import annotations
+
+from importlib.resources import files
+from pathlib import Path
+
+
+def demo_diary_path() -> Path:
+    """Where the installed demo diary (demo/demo_diary.csv) is, from any working folder."""
+    return Path(str(files(__name__).joinpath("demo", "demo_diary.csv")))
