@@ -14,14 +14,14 @@ import argparse
 import json
 import os
 import sys
-from importlib.resources import files
 from pathlib import Path
 
 from lagwise.models.errors import LagwiseError, ProjectError
+from lagwise.resources import demo_diary_path
 
 # the demo ships inside the package (lagwise.resources), so installed copies find it too
-DEMO_FOLDER = Path(str(files("lagwise.resources").joinpath("demo")))
-DEMO_DIARY = DEMO_FOLDER / "demo_diary.csv"
+DEMO_DIARY = demo_diary_path()
+DEMO_FOLDER = DEMO_DIARY.parent
 DEMO_TRUTH = DEMO_FOLDER / "demo_truth.json"
 SCREENSHOT_SIZE = (1440, 900)
 NO_DISPLAY = ("no display is available to open the window (DISPLAY and WAYLAND_DISPLAY are "
