@@ -25,7 +25,7 @@ from lagwise.models.flags import Flag
 from lagwise.models.implied import NotAdmissible
 from lagwise.models.kalman import filter_plan, kalman_gradient, kalman_loglik, kalman_smooth
 from lagwise.models.objective import WindowObjective
-from lagwise.models.optimise import maximise
+from lagwise.models.optimise import maximise, observed_information
 from lagwise.models.parameters import Gradients, Matrices, ParameterLayout
 from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.results import CAUTION_IDIOGRAPHIC, FitIndices, StateScores
@@ -92,6 +92,11 @@ class ExactObjective:
         checkpoint(monitor, 0.0, "Window estimate for start values")
         theta0, self.start_loglik = _window_start(self.diary, self.spec, self.options, self, monitor)
         return theta0
+
+    def information(self, theta: np.ndarray, sizes: np.ndarray,
+                    monitor: Monitor | None = None) -> np.ndarray:
+        """The observed information (forward differences of the analytic gradient)."""
+        return observed_information(self, theta, sizes, monitor)
 
     def preflight(self) -> list[Flag]:
         return []

@@ -12,7 +12,7 @@ sqrt(s_ii s_jj) over i <= j. AIC = -2 loglik + 2 n_free, BIC = -2 loglik + n_fre
 from __future__ import annotations
 
 import numpy as np
-from scipy.optimize import brentq
+from scipy.special import chndtrinc
 from scipy.stats import chi2 as chi2_dist
 from scipy.stats import ncx2
 
@@ -20,19 +20,15 @@ from lagwise.models.results import FitIndices
 
 
 def rmsea_interval(chi2: float, df: int, n: int, level: float = 0.90) -> tuple[float, float]:
-    """Confidence interval for RMSEA from the noncentral chi-square (Browne & Cudeck 1993)."""
-    lo_p, hi_p = 1 - (1 - level) / 2, (1 - level) / 2
-
+    """Confidence interval for RMSEA from the noncentral chi-square (Browne & Cudeck 1993):
+    each bound is the noncentrality at which the observed chi2 sits at the 1 - a/2 or a/2
+    point (scipy.special.chndtrinc), 0 when even the central chi-square puts it below."""
     def bound(target: float) -> float:
-        f = lambda lam: ncx2.cdf(chi2, df, lam) - target if lam > 0 else chi2_dist.cdf(chi2, df) - target
-        if f(0.0) < 0:
+        if chi2_dist.cdf(chi2, df) < target:
             return 0.0
-        hi = max(chi2, 1.0)
-        while f(hi) > 0:
-            hi *= 2.0
-        return brentq(f, 0.0, hi, xtol=1e-10)
+        return float(chndtrinc(chi2, df, target))
 
-    lam_lo, lam_hi = bound(lo_p), bound(hi_p)
+    lam_lo, lam_hi = bound(1 - (1 - level) / 2), bound((1 - level) / 2)
     return float(np.sqrt(lam_lo / (df * n))), float(np.sqrt(lam_hi / (df * n)))
 
 

@@ -196,7 +196,7 @@ def _score_tests(obj_r: WindowObjective, restricted: FitResult, windows, options
     free_before = {e.key for e in obj_r.layout.free_entries}
     tested = np.array([e.key not in free_before for e in obj_f.layout.free_entries])
     _, grad = obj_f.loglik_and_gradient(theta)
-    info = obj_f.expected_information(theta, obj_f.layout.sizes(theta, obj_f.item_var))
+    info = obj_f.expected_information(theta)
     keep = ~tested & interior(obj_f, theta)
     f_idx, t_idx = np.flatnonzero(keep), np.flatnonzero(tested)
     i_ff_inv = np.linalg.pinv(info[np.ix_(f_idx, f_idx)])

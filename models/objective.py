@@ -18,7 +18,8 @@ from lagwise.models import flags as warn
 from lagwise.models.errors import EstimationError, SpecError
 from lagwise.models.fitindices import fit_indices
 from lagwise.models.flags import Flag
-from lagwise.models.implied import Implied, implied_moments, matrix_gradients
+from lagwise.models.implied import Implied, implied_moments, matrix_gradients, moment_jacobian
+from lagwise.models.optimise import observed_information
 from lagwise.models.parameters import Matrices, ParameterLayout
 from lagwise.models.patterns import PatternData
 from lagwise.models.progress import Monitor, checkpoint
@@ -78,31 +79,35 @@ class WindowObjective:
         g = matrix_gradients(m, imp, g_sigma, g_mu, self.depth, self.free_first_copies)
         return ll, self.layout.gradient_vector(m, g)
 
-    def expected_information(self, theta: np.ndarray, scale: np.ndarray) -> np.ndarray:
+    def expected_information(self, theta: np.ndarray) -> np.ndarray:
         """Expected (Fisher) information of the window rows at `theta`, summed over patterns:
         I_ij = sum_g n_g [ 1/2 tr(S^-1 dS_i S^-1 dS_j) + dmu_i' S^-1 dmu_j ] with S = Sigma_oo
-        (normal-theory information; the moment derivatives by central differences of the
-        implied moments with steps 1e-6 x `scale`)."""
-        m = theta.size
-        w = self.data.width
-        d_sigma = np.empty((m, w, w))
-        d_mu = np.empty((m, w))
-        for i in range(m):
-            step = 1e-6 * max(abs(theta[i]), scale[i])
-            e = np.zeros(m)
-            e[i] = step
-            plus, minus = self.implied(theta + e), self.implied(theta - e)
-            d_sigma[i] = (plus.sigma - minus.sigma) / (2 * step)
-            d_mu[i] = (plus.mu - minus.mu) / (2 * step)
-        imp = self.implied(theta)
+        (normal-theory information; the moment derivatives analytic, models.implied.moment_jacobian)."""
+        m = self.layout.unpack(theta)
+        imp = implied_moments(m, self.depth, self.free_first_copies)
+        d_mu, d_sigma = moment_jacobian(m, self.layout.directions(m), imp, self.depth,
+                                        self.free_first_copies)
         data = self.data
-        inv = np.where(data.obs_outer, np.linalg.inv(data.padded(imp.sigma)), 0.0)
-        info = np.zeros((m, m))
-        for g in range(data.n_patterns):
-            a = inv[g] @ d_sigma @ inv[g]                       # (m, w, w)
-            info += data.counts[g] * (0.5 * np.einsum("iab,jba->ij", a, d_sigma)
-                                      + d_mu @ inv[g] @ d_mu.T)
+        if data.complete:
+            inverses = np.linalg.inv(imp.sigma)[None]
+        else:
+            inverses = np.where(data.obs_outer, np.linalg.inv(data.padded(imp.sigma)), 0.0)
+        n = theta.size
+        flat = d_sigma.reshape(n, -1)
+        info = np.zeros((n, n))
+        for count, inv in zip(data.counts, inverses):
+            y = (inv @ d_sigma @ inv).reshape(n, -1)
+            info += count * (0.5 * y @ flat.T + d_mu @ inv @ d_mu.T)
         return 0.5 * (info + info.T)
+
+    def information(self, theta: np.ndarray, sizes: np.ndarray,
+                    monitor: Monitor | None = None) -> np.ndarray:
+        """The information for standard errors and Newton steps: the expected information
+        when every window is complete (then it is the usual choice for normal ML), else the
+        observed information (the recommended one under missingness at random)."""
+        if self.data.complete:
+            return self.expected_information(theta)
+        return observed_information(self, theta, sizes, monitor)
 
     # ----- what models.solution asks ----------------------------------------------------
     def start(self, monitor: Monitor | None = None) -> np.ndarray:

@@ -34,12 +34,17 @@ class Likelihood(Protocol):
     def loglik_and_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]: ...
 
 
+PRECISE = {"ftol": 1e-12, "gtol": 1e-8}
+ROUGH = {"ftol": 1e-8, "gtol": 1e-5}   # when Newton steps with the information finish the job
+
+
 def maximise(objective: Likelihood, theta0: np.ndarray, sizes: np.ndarray, max_iter: int,
-             monitor: Monitor | None) -> tuple[np.ndarray, bool, str, int]:
-    """L-BFGS-B on theta / sizes. Returns the estimate, whether the optimiser stopped well
-    (success, or a line search that could not improve: L-BFGS-B's usual stop at an optimum
-    in floating point; `models.solution.judge` checks the gradient either way), its message
-    and the number of iterations."""
+             monitor: Monitor | None, precise: bool = True) -> tuple[np.ndarray, bool, str, int]:
+    """L-BFGS-B on theta / sizes, to PRECISE tolerances or ROUGH ones (then `newton_polish`
+    takes over). Returns the estimate, whether the optimiser stopped well (success, or a line
+    search that could not improve: L-BFGS-B's usual stop at an optimum in floating point;
+    `models.solution.judge` checks the gradient either way), its message and the number of
+    iterations."""
     n = max(objective.n_rows, 1)
     penalty = abs(objective.loglik(theta0)) / n * 10.0 + 1e3
     count = [0]
@@ -59,7 +64,8 @@ def maximise(objective: Likelihood, theta0: np.ndarray, sizes: np.ndarray, max_i
     bounds = [(None if not np.isfinite(lo) else lo / s, None if not np.isfinite(hi) else hi / s)
               for lo, hi, s in zip(lower, upper, sizes)]
     res = minimize(f, theta0 / sizes, jac=True, method="L-BFGS-B", bounds=bounds, callback=callback,
-                   options={"maxiter": max_iter, "maxcor": 30, "ftol": 1e-12, "gtol": 1e-8})
+                   options={"maxiter": max(max_iter, 1), "maxcor": 30,
+                            **(PRECISE if precise else ROUGH)})
     theta = res.x * sizes
     try:
         objective.loglik(theta)
@@ -78,10 +84,11 @@ def interior(objective: Likelihood, theta: np.ndarray) -> np.ndarray:
     return ~(at_lower | at_upper)
 
 
-def observed_hessian(objective: Likelihood, theta: np.ndarray, sizes: np.ndarray,
-                     monitor: Monitor | None) -> np.ndarray:
-    """Observed information by forward differences of the analytic gradient (one gradient per
-    parameter; steps 1e-6 x the parameter's size, backwards where a step leaves the region)."""
+def observed_information(objective: Likelihood, theta: np.ndarray, sizes: np.ndarray,
+                         monitor: Monitor | None = None) -> np.ndarray:
+    """Observed information -d2 loglik by forward differences of the analytic gradient (one
+    gradient per parameter; steps 1e-6 x the parameter's size, backwards where a step leaves
+    the region)."""
     m = theta.size
     h_mat = np.zeros((m, m))
     g0 = objective.loglik_and_gradient(theta)[1]
@@ -95,26 +102,33 @@ def observed_hessian(objective: Likelihood, theta: np.ndarray, sizes: np.ndarray
             h_mat[:, i] = (g0 - objective.loglik_and_gradient(theta - e)[1]) / step
         if i % 10 == 0:
             checkpoint(monitor, i / m, "Standard errors")
-    return 0.5 * (h_mat + h_mat.T)
+    return -0.5 * (h_mat + h_mat.T)
 
 
-def newton_polish(objective: Likelihood, theta: np.ndarray, hessian: np.ndarray,
-                  steps: int = 3) -> tuple[np.ndarray, np.ndarray, int]:
-    """Newton steps on the interior parameters while they raise the log-likelihood."""
-    done = 0
+def newton_polish(objective: Likelihood, theta: np.ndarray, information: np.ndarray,
+                  steps: int = 10) -> tuple[np.ndarray, int, bool]:
+    """Newton steps theta += I^-1 g on the interior parameters while they raise the
+    log-likelihood (I the observed or expected information at the starting point), until the
+    Newton decrement g' I^-1 g falls below 1e-12 per row (the log-likelihood is then within
+    about that of its maximum). Returns the estimate, the steps taken and whether the
+    decrement got that small."""
+    done, settled = 0, False
     lower, upper = objective.layout.bounds()
     ll, grad = objective.loglik_and_gradient(theta)
     for _ in range(steps):
         free = interior(objective, theta)
         if not free.any():
             break
-        sub = hessian[np.ix_(free, free)]
+        sub = information[np.ix_(free, free)]
         try:
-            np.linalg.cholesky(-sub)
+            np.linalg.cholesky(sub)
         except np.linalg.LinAlgError:
             break
         step = np.zeros_like(theta)
-        step[free] = -np.linalg.solve(sub, grad[free])
+        step[free] = np.linalg.solve(sub, grad[free])
+        if grad[free] @ step[free] < 1e-12 * max(objective.n_rows, 1):
+            settled = True
+            break
         trial = theta + step
         try:
             ll_new, grad_new = objective.loglik_and_gradient(trial)
@@ -125,18 +139,20 @@ def newton_polish(objective: Likelihood, theta: np.ndarray, hessian: np.ndarray,
         theta, ll, grad = trial, ll_new, grad_new
         done += 1
         if np.max(np.abs(step)) < 1e-10:
+            settled = True
             break
-    return theta, hessian, done
+    return theta, done, settled
 
 
-def covariance_from_hessian(hessian: np.ndarray, interior: np.ndarray) -> tuple[np.ndarray, bool]:
-    """(-H)^-1 over interior parameters; NaN rows for parameters at a bound."""
-    m = hessian.shape[0]
+def covariance_from_information(information: np.ndarray, interior: np.ndarray
+                                ) -> tuple[np.ndarray, bool]:
+    """I^-1 over interior parameters; NaN rows for parameters at a bound."""
+    m = information.shape[0]
     cov = np.full((m, m), np.nan)
     idx = np.flatnonzero(interior)
     if idx.size == 0:
         return cov, True
-    info = -hessian[np.ix_(idx, idx)]
+    info = information[np.ix_(idx, idx)]
     try:
         np.linalg.cholesky(info)
     except np.linalg.LinAlgError:

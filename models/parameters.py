@@ -51,6 +51,13 @@ class Gradients:
     c: np.ndarray | None = None
 
 
+_GRADIENT_BLOCKS = frozenset(("nu", "lam", "theta", "d", "lagged", "psi", "phif", "c"))
+
+
+def _zeros(n: int) -> np.ndarray:
+    return np.zeros(n)
+
+
 def partial_to_psi(pv: np.ndarray, rmat: np.ndarray) -> np.ndarray:
     """Psi from innovation variances v and R = I - rho: Psi = D R^-1 D, D = sqrt(v / diag R^-1)."""
     c = np.linalg.inv(rmat)
@@ -92,11 +99,12 @@ class ParameterLayout:
         self.free_entries = tuple(e for e in self.entries if e.free)
         self.n_free = len(self.free_entries)
         self._shapes = self._matrix_shapes()
-        offsets, total = {}, 0
+        offsets, slices, total = {}, {}, 0
         for name, shape in self._shapes.items():
-            offsets[name] = total
-            total += int(np.prod(shape))
-        self._offsets, self._size = offsets, total      # position `total` is a spare zero
+            size = int(np.prod(shape))
+            offsets[name], slices[name] = total, (total, total + size, shape)
+            total += size
+        self._offsets, self._slices, self._size = offsets, slices, total  # `total`: a spare zero
         self._base = np.zeros(total + 1)
         if self.partial:
             self._matrix(self._base, "rmat")[...] = np.eye(self.k)
@@ -133,9 +141,8 @@ class ParameterLayout:
         return shapes
 
     def _matrix(self, buffer: np.ndarray, name: str) -> np.ndarray:
-        lo = self._offsets[name]
-        shape = self._shapes[name]
-        return buffer[lo:lo + int(np.prod(shape))].reshape(shape)
+        lo, hi, shape = self._slices[name]
+        return buffer[lo:hi].reshape(shape)
 
     def _positions(self, e: Entry) -> list[int]:
         """Flat positions of an entry in the buffer (two for an off-diagonal symmetric entry)."""
@@ -166,8 +173,8 @@ class ParameterLayout:
         buffer[self._pos] = values
         buffer[self._mirror] = values
         buffer[-1] = 0.0
-        mats = {name: self._matrix(buffer, name) for name in self._shapes}
-        m = Matrices(**mats)
+        m = Matrices(**{name: buffer[lo:hi].reshape(shape)
+                        for name, (lo, hi, shape) in self._slices.items()})
         if self.partial:
             m.psi[...] = partial_to_psi(m.pv, m.rmat)
         return m
@@ -181,10 +188,9 @@ class ParameterLayout:
 
     def gradient_vector(self, m: Matrices, g: Gradients) -> np.ndarray:
         """d loglik / d free values from the element-wise matrix gradients."""
-        buffer = np.zeros(self._size + 1)
-        for name in ("nu", "lam", "theta", "d", "lagged", "psi", "phif", "c"):
-            if name in self._shapes and getattr(g, name) is not None:
-                self._matrix(buffer, name)[...] = getattr(g, name)
+        parts = [np.ravel(getattr(g, name)) if name in _GRADIENT_BLOCKS else _zeros(hi - lo)
+                 for name, (lo, hi, _) in self._slices.items()]
+        buffer = np.concatenate(parts + [_zeros(1)])
         if self.partial:
             gpv, grmat = _partial_chain(m.pv, m.rmat, g.psi)
             self._matrix(buffer, "pv")[...] = gpv
@@ -224,3 +230,32 @@ class ParameterLayout:
         if default is None:
             return np.array([estimates[e.key] for e in self.free_entries], dtype=float)
         return np.array([estimates.get(e.key, default) for e in self.free_entries], dtype=float)
+
+    def directions(self, m: Matrices) -> Matrices:
+        """d matrices / d each free value at `m`, batched along a first axis of length n_free
+        (forward mode; the partial-correlation form through Psi = D R^-1 D)."""
+        n = self.n_free
+        buffer = np.zeros((n, self._size + 1))
+        rows = np.arange(n)
+        buffer[rows, self._pos] = self._sign
+        buffer[rows, self._mirror] = self._sign
+        buffer[:, -1] = 0.0
+        d = Matrices(**{name: buffer[:, lo:hi].reshape((n,) + shape)
+                        for name, (lo, hi, shape) in self._slices.items()})
+        if self.partial:
+            d.psi = _partial_directions(m.pv, m.rmat, d.pv, d.rmat)
+        return d
+
+
+def _partial_directions(pv: np.ndarray, rmat: np.ndarray, dpv: np.ndarray, drmat: np.ndarray
+                        ) -> np.ndarray:
+    """dPsi for Psi = D C D, C = R^-1, D = diag(sqrt(v / diag C)): dC = -C dR C,
+    dD_i = D_i / 2 (dv_i / v_i - dC_ii / C_ii), dPsi = dD C D + D dC D + D C dD."""
+    c = np.linalg.inv(rmat)
+    cd = np.diag(c)
+    dd = np.sqrt(pv / cd)
+    dc = -c @ drmat @ c
+    ddd = 0.5 * dd * (dpv / pv - np.diagonal(dc, axis1=1, axis2=2) / cd)
+    cdd = c * dd[None, :]                        # C D
+    return (ddd[:, :, None] * cdd[None] + dd[None, :, None] * dc * dd[None, None, :]
+            + (dd[:, None] * c)[None] * ddd[:, None, :])

@@ -49,6 +49,8 @@ class PatternData:
             rows = dev[order[bounds[k]:bounds[k + 1]]]
             self.covs[k] = rows.T @ rows / self.counts[k]
         self.obs_outer = self.observed[:, :, None] & self.observed[:, None, :]
+        # every row answered in full: one pattern, no padding needed
+        self.complete = g == 1 and bool(self.observed.all())
         self.n_obs_per_pattern = self.observed.sum(axis=1)
         # per-column observed values' count, mean and ML variance (independence baseline)
         self.col_n = mask.sum(axis=0)
@@ -68,6 +70,8 @@ class PatternData:
     def loglik(self, mu: np.ndarray, sigma: np.ndarray, gradient: bool = True
                ) -> tuple[float, np.ndarray | None, np.ndarray | None]:
         """Log-likelihood and (optionally) its gradients w.r.t. Sigma (as in tr(G dSigma)) and mu."""
+        if self.complete:
+            return self._complete_loglik(mu, sigma, gradient)
         padded = self.padded(sigma)
         try:
             chol = np.linalg.cholesky(padded)
@@ -89,6 +93,25 @@ class PatternData:
         g_sigma = np.einsum("g,gij->ij", 0.5 * n, np.where(self.obs_outer, a - inv, 0.0))
         g_mu = np.einsum("g,gi->i", n, np.where(self.observed, np.einsum("gij,gj->gi", inv, e), 0.0))
         return total, g_sigma, g_mu
+
+    def _complete_loglik(self, mu: np.ndarray, sigma: np.ndarray, gradient: bool
+                         ) -> tuple[float, np.ndarray | None, np.ndarray | None]:
+        """`loglik` for one complete pattern (the same formulas without padding)."""
+        try:
+            chol = np.linalg.cholesky(sigma)
+        except np.linalg.LinAlgError:
+            raise NotAdmissible("window covariance not positive definite") from None
+        diag = np.diagonal(chol)
+        if not np.all(np.isfinite(diag)) or np.any(diag <= 0):
+            raise NotAdmissible("window covariance not positive definite")
+        inv = np.linalg.inv(sigma)
+        e = self.means[0] - mu
+        mg = self.covs[0] + np.outer(e, e)
+        n = self.counts[0]
+        total = float(-0.5 * n * (self.width * LOG2PI + 2.0 * np.log(diag).sum() + np.vdot(inv, mg)))
+        if not gradient:
+            return total, None, None
+        return total, 0.5 * n * (inv @ mg @ inv - inv), n * (inv @ e)
 
     def saturated(self, tol: float = 1e-10, max_iter: int = 20000) -> tuple[np.ndarray, np.ndarray, float, bool]:
         """Unrestricted mean and covariance by ML: closed form when complete, else the EM

@@ -24,8 +24,7 @@ from lagwise.models.estimators import FitOptions
 from lagwise.models.flags import Flag
 from lagwise.models.kinds import Kind
 from lagwise.models.lyapunov import spectral_radius, stationary_covariance
-from lagwise.models.optimise import (covariance_from_hessian, interior, maximise, newton_polish,
-                                     observed_hessian)
+from lagwise.models.optimise import covariance_from_information, interior, maximise, newton_polish
 from lagwise.models.parameters import Matrices, ParameterLayout
 from lagwise.models.progress import Monitor, checkpoint, scaled
 from lagwise.models.results import FitIndices, FitResult, Parameter
@@ -50,6 +49,9 @@ class Objective(Protocol):
     def loglik_and_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]: ...
 
     def start(self, monitor: Monitor | None) -> np.ndarray: ...
+
+    def information(self, theta: np.ndarray, sizes: np.ndarray,
+                    monitor: Monitor | None) -> np.ndarray: ...
 
     def preflight(self) -> list[Flag]: ...
 
@@ -106,19 +108,28 @@ def solve(objective: Objective, notes: list[str], monitor: Monitor | None = None
     checkpoint(monitor, 0.02, "Start values")
     theta0 = start_vector(objective, start, scaled(monitor, 0.02, 0.3))
     sizes = layout.sizes(theta0, objective.item_var)
+    # with standard errors the information is computed anyway: a rough optimum, then Newton
+    # steps; if those do not settle, the precise optimiser finishes and the steps are retried
     theta, ok, message, iterations = maximise(objective, theta0, sizes, options.max_iter,
-                                              scaled(monitor, 0.3, 0.8))
+                                              scaled(monitor, 0.3, 0.8), precise=not standard_errors)
     steps = 0
     cov = np.full((layout.n_free, layout.n_free), np.nan)
     if standard_errors:
         checkpoint(monitor, 0.8, "Standard errors")
-        hessian = observed_hessian(objective, theta, sizes, scaled(monitor, 0.8, 0.9))
-        theta, hessian, steps = newton_polish(objective, theta, hessian)
+        information = objective.information(theta, sizes, scaled(monitor, 0.8, 0.9))
+        theta, steps, settled = newton_polish(objective, theta, information)
+        if not settled and iterations < options.max_iter:
+            theta, ok, message, more = maximise(objective, theta, sizes, options.max_iter - iterations,
+                                                scaled(monitor, 0.8, 0.85))
+            iterations += more
+            information = objective.information(theta, sizes, scaled(monitor, 0.85, 0.9))
+            theta, more_steps, _ = newton_polish(objective, theta, information)
+            steps += more_steps
     ll, grad = objective.loglik_and_gradient(theta)
     inside = interior(objective, theta)
     verdict = judge(ok, message, grad, sizes, inside, objective.n_rows)
     if standard_errors:
-        cov, se_ok = covariance_from_hessian(hessian, inside)
+        cov, se_ok = covariance_from_information(information, inside)
         if verdict.converged and not se_ok:
             flags.append(warn.not_identified())
     checkpoint(monitor, 0.9, "Fit figures")

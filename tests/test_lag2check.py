@@ -195,7 +195,7 @@ def test_expected_information_equals_observed_information_at_model_moments():
     rows = np.vstack([complete, partial])
     obj = _full_objective(LagWindows(depth=2, items=SPEC1.items, data=rows, occasion=np.arange(len(rows))))
     assert obj.data.n_patterns == 2
-    info = obj.expected_information(theta, np.maximum(np.abs(theta), 0.1))
+    info = obj.expected_information(theta)
     m = theta.size
     observed = np.empty((m, m))
     for i in range(m):
