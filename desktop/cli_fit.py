@@ -16,9 +16,7 @@ import sys
 from dataclasses import replace
 from pathlib import Path
 
-from lagwise.desktop.cli_common import (
-    add_diary_arguments, diary_from_args, split_list, time_settings_from_args,
-)
+from lagwise.desktop.cli_common import add_diary_arguments, diary_from_args, recipe_from_args
 from lagwise.models.errors import ProjectError, SpecError
 from lagwise.models.estimate import fit
 from lagwise.models.lag2check import lag2_check
@@ -116,11 +114,8 @@ def run(args: argparse.Namespace) -> int:
         Path(args.json).write_text(json.dumps(doc, indent=2, allow_nan=False), encoding="utf-8")
     if args.save is not None:
         if project is None:
-            project = Project(
-                data=embed_file(args.data), items=tuple(split_list(args.items)),
-                time=time_settings_from_args(args),
-                missing_codes=tuple(split_list(args.missing_codes) or ()),
-                prompts_per_day=args.prompts_per_day, spec=spec, options=options)
+            project = Project.of_recipe(embed_file(args.data), recipe_from_args(args),
+                                        spec=spec, options=options)
         save_project(replace(project, result=result), args.save)
         print(f"\nProject saved to {args.save}")
     if not result.converged:

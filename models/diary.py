@@ -13,7 +13,11 @@ from typing import Literal
 
 import numpy as np
 
+from lagwise.models import jsonread as jr
+from lagwise.models.errors import FieldError
+
 TimeMode = Literal["grid", "timestamp", "order"]
+TIME_MODES: tuple[str, ...] = ("grid", "timestamp", "order")
 
 
 @dataclass(frozen=True)
@@ -37,6 +41,32 @@ class TimeSettings:
     def columns(self) -> tuple[str, ...]:
         """The file columns this setting uses as time columns."""
         return tuple(c for c in (self.day, self.prompt, self.time) if c)
+
+    def to_json(self) -> dict:
+        return {"mode": self.mode, "day": self.day, "prompt": self.prompt, "time": self.time,
+                "max_gap_minutes": self.max_gap_minutes,
+                "days_independent": self.days_independent}
+
+    @classmethod
+    def from_json(cls, doc: object, where: str = "", others: tuple[str, ...] = ()
+                  ) -> "TimeSettings":
+        """Settings from `to_json` output; FieldError names a malformed field. Every field is
+        required, and the object may hold no other keys but `others` (read by the caller)."""
+        return cls(**jr.read_fields(doc, where, (
+            jr.field("mode", jr.choice, choices=TIME_MODES),
+            jr.field("day", jr.text, null=True),
+            jr.field("prompt", jr.text, null=True),
+            jr.field("time", jr.text, null=True),
+            jr.field("max_gap_minutes", _gap_minutes),
+            jr.field("days_independent", jr.boolean),
+        ), closed=True, others=others))
+
+
+def _gap_minutes(value: object, where: str) -> float | None:
+    gap = jr.number(value, where, null=True)
+    if gap is not None and not 0 < gap <= 1e8:
+        raise FieldError(where, "should be more than 0 and at most 1e8 minutes")
+    return gap
 
 
 @dataclass(frozen=True, eq=False)

@@ -28,6 +28,22 @@ class ProjectError(LagwiseError):
     """A project file that cannot be opened or saved."""
 
 
+class FieldError(LagwiseError, ValueError):
+    """A field of a JSON document with the wrong type, size or shape (models.jsonread).
+
+    `where` is the field's path, e.g. "results.parameters[3].se" ("" for the document as a
+    whole); `problem` says what is wrong, e.g. "should be a number, not text".
+    """
+
+    def __init__(self, where: str, problem: str) -> None:
+        super().__init__(f"{where}: {problem}" if where else f"the document {problem}")
+        self.where = where
+        self.problem = problem
+
+    def __reduce__(self):
+        return type(self), (self.where, self.problem)
+
+
 class Cancelled(LagwiseError):
     """Long work stopped because the user asked for it."""
 

@@ -14,7 +14,8 @@ import importlib
 from dataclasses import dataclass, fields, replace
 from typing import TYPE_CHECKING, Any
 
-from lagwise.models.errors import SpecError
+from lagwise.models import jsonread as jr
+from lagwise.models.errors import FieldError, SpecError
 
 if TYPE_CHECKING:  # type hints only: these modules import this one
     from lagwise.models.diary import Diary
@@ -165,12 +166,17 @@ class FitOptions:
         return {f.name: getattr(self, f.name) for f in fields(self)}
 
     @classmethod
-    def from_json(cls, doc: dict) -> "FitOptions":
+    def from_json(cls, doc: object, where: str = "") -> "FitOptions":
+        """Settings from `to_json` output; FieldError names a malformed field, or the settings
+        when the estimator does not take one of them."""
+        fields = jr.read_fields(doc, where, (
+            jr.field("estimator", jr.choice, choices=tuple(ESTIMATORS)),
+            jr.field("missing", jr.choice, choices=tuple(MISSING)),
+            jr.field("depth", jr.integer, None, low=0, high=50, null=True),
+            jr.field("max_iter", jr.integer, 2000, low=1, high=10_000_000),
+            jr.field("night_gap", jr.integer, None, low=0, high=1000, null=True),
+        ))
         try:
-            return cls(estimator=str(doc.get("estimator", DEFAULT_ESTIMATOR)),
-                       missing=str(doc.get("missing", "fiml")),
-                       depth=None if doc.get("depth") is None else int(doc["depth"]),
-                       max_iter=int(doc.get("max_iter", 2000)),
-                       night_gap=None if doc.get("night_gap") is None else int(doc["night_gap"]))
-        except (TypeError, ValueError, AttributeError) as exc:
-            raise SpecError(f"The estimator settings are malformed ({exc}).") from None
+            return cls(**fields)
+        except SpecError as error:
+            raise FieldError(where or "options", str(error)) from None

@@ -7,10 +7,13 @@ windows overlap, so they are approximate (they treat overlapping rows as indepen
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import partial
 
 import numpy as np
 from scipy.stats import norm
 
+from lagwise.models import jsonread as jr
+from lagwise.models.errors import FieldError, SpecError
 from lagwise.models.estimators import FitOptions
 from lagwise.models.flags import Flag, FlagCode
 from lagwise.models.kinds import Kind
@@ -48,14 +51,34 @@ class StateScores:
         return mean - z * sd, mean + z * sd
 
     def to_json(self) -> dict:
-        return {name: getattr(self, name).tolist()
-                for name in ("filtered", "filtered_sd", "smoothed", "smoothed_sd")}
+        return {name: getattr(self, name).tolist() for name in _SCORES}
 
     @classmethod
-    def from_json(cls, doc: dict) -> "StateScores":
-        return cls(**{name: np.array([[np.nan if v is None else v for v in row] for row in doc[name]],
-                                     dtype=float).reshape(len(doc[name]), -1)
-                      for name in ("filtered", "filtered_sd", "smoothed", "smoothed_sd")})
+    def from_json(cls, doc: object, where: str = "") -> "StateScores":
+        """Scores from `to_json` output: four tables of the same shape (null: NaN)."""
+        fields = jr.read_fields(doc, where, tuple(jr.field(name, _table) for name in _SCORES))
+        shapes = {name: value.shape for name, value in fields.items()}
+        if len(set(shapes.values())) != 1:
+            raise FieldError(where, f"should hold four tables of one shape, not {shapes}")
+        return cls(**fields)
+
+
+_SCORES = ("filtered", "filtered_sd", "smoothed", "smoothed_sd")
+MAX_OCCASIONS = 5_000_000
+
+
+def _table(value: object, where: str) -> np.ndarray:
+    """A list of equally long rows of numbers (one row per occasion of the diary)."""
+    rows = jr.array(value, where, MAX_OCCASIONS)
+    width = len(jr.array(rows[0], f"{where}[0]")) if rows else 0
+    out = np.empty((len(rows), width))
+    for i, row in enumerate(rows):
+        out[i] = jr.matrix(row, f"{where}[{i}]", (width,))
+    return out
+
+
+def _state_scores(value: object, where: str) -> StateScores | None:
+    return None if value is None else StateScores.from_json(value, where)
 
 
 @dataclass(frozen=True)
@@ -94,6 +117,20 @@ class Parameter:
         return {"kind": self.kind, "from": self.from_, "to": self.to, "estimate": self.estimate,
                 "se": self.se, "standardized": self.standardized, "free": self.free, "lag": self.lag}
 
+    @classmethod
+    def from_json(cls, doc: object, where: str = "") -> "Parameter":
+        """A row from `to_json` output; FieldError names a malformed field."""
+        return cls(**jr.read_fields(doc, where, (
+            jr.field("kind", _kind),
+            jr.field("from", jr.text, name="from_"),
+            jr.field("to", jr.text),
+            jr.field("estimate", jr.number),
+            jr.field("se", jr.number, null=True),
+            jr.field("standardized", jr.number, null=True),
+            jr.field("free", jr.boolean),
+            jr.field("lag", jr.integer, 0, low=0, high=2),
+        )))
+
 
 @dataclass(frozen=True)
 class FitIndices:
@@ -121,6 +158,27 @@ class FitIndices:
                 "rmsea_pclose": self.rmsea_pclose, "cfi": self.cfi, "tli": self.tli,
                 "srmr": self.srmr, "loglik": self.loglik, "aic": self.aic, "bic": self.bic,
                 "n_free": self.n_free, "n_obs": self.n_obs, "exact": self.exact}
+
+    @classmethod
+    def from_json(cls, doc: object, where: str = "") -> "FitIndices":
+        """Fit figures from `to_json` output; FieldError names a malformed field."""
+        return cls(**jr.read_fields(doc, where, (
+            jr.field("chi2", jr.number, null=True),
+            jr.field("df", jr.integer),
+            jr.field("p", jr.number, null=True),
+            jr.field("rmsea", jr.number, null=True),
+            jr.field("rmsea_ci", _interval, None),
+            jr.field("rmsea_pclose", jr.number, None, null=True),
+            jr.field("cfi", jr.number, null=True),
+            jr.field("tli", jr.number, null=True),
+            jr.field("srmr", jr.number, null=True),
+            jr.field("loglik", jr.number_or_nan),
+            jr.field("aic", jr.number_or_nan),
+            jr.field("bic", jr.number_or_nan),
+            jr.field("n_free", jr.integer),
+            jr.field("n_obs", jr.integer),
+            jr.field("exact", jr.boolean, False),
+        )))
 
 
 @dataclass(frozen=True, eq=False)
@@ -250,69 +308,87 @@ class FitResult:
         })
 
     @classmethod
-    def from_json(cls, doc: dict) -> "FitResult":
-        """Rebuild a result written by `to_json`; malformed documents raise ValueError."""
-        try:
-            spec = ModelSpec.from_json(doc["spec"])
-            extras = dict(doc.get("extras", {}))
-            m = doc["matrices"]
-            f = doc["fit"]
-
-            def arr(x, shape):
-                a = np.array([np.nan if v is None else v for v in np.ravel(np.array(x, dtype=object))],
-                             dtype=float)
-                return a.reshape(shape)
-
-            p, k = len(spec.items), spec.k
-            fit = FitIndices(
-                chi2=_opt(f["chi2"]), df=int(f["df"]), p=_opt(f["p"]), rmsea=_opt(f["rmsea"]),
-                rmsea_ci=None if f.get("rmsea_ci") is None else (float(f["rmsea_ci"][0]), float(f["rmsea_ci"][1])),
-                rmsea_pclose=_opt(f.get("rmsea_pclose")), cfi=_opt(f["cfi"]), tli=_opt(f["tli"]),
-                srmr=_opt(f["srmr"]), loglik=_nan(f["loglik"]), aic=_nan(f["aic"]), bic=_nan(f["bic"]),
-                n_free=int(f["n_free"]), n_obs=int(f["n_obs"]), exact=bool(f.get("exact", False)))
-            params = tuple(
-                Parameter(kind=Kind(q["kind"]), from_=str(q["from"]), to=str(q["to"]),
-                          estimate=float(q["estimate"]), se=_opt(q["se"]), standardized=_opt(q["standardized"]),
-                          free=bool(q["free"]), lag=int(q.get("lag", 0)))
-                for q in doc["parameters"])
-            return cls(
-                spec=spec, options=FitOptions.from_json(doc["options"]), estimator=str(doc["estimator"]),
-                converged=bool(doc["converged"]), message=str(doc.get("message", "")),
-                iterations=int(doc.get("iterations", 0)), seconds=float(doc.get("seconds", 0.0)),
-                n_windows=int(doc["n_windows"]), n_occasions=int(doc["n_occasions"]), parameters=params,
-                fit=fit, loadings=arr(m["loadings"], (p, k)), intercepts=arr(m["intercepts"], (p,)),
-                unique=arr(m["unique"], (p,)),
-                lagged=tuple(arr(b, (k, k)) for b in m["lagged"]),
-                innovation=arr(m["innovation"], (k, k)), latent_cov=arr(m["latent_cov"], (k, k)),
-                r_squared=arr(m["r_squared"], (p,)), spectral_radius=_nan(doc["spectral_radius"]),
-                flags=_flags(doc),
-                cautions=tuple(str(x) for x in doc.get("cautions", [])) or (CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO, CAUTION_SE),
-                notes=tuple(str(x) for x in extras.get("notes", [])),
-                newton_steps=int(extras.get("newton_steps", 0)),
-                depth=None if extras.get("depth") is None else int(extras["depth"]),
-                state_scores=(None if extras.get("state_scores") is None
-                              else StateScores.from_json(extras["state_scores"])),
-                start_loglik_windows=_opt(extras.get("start_loglik_windows")),
-            )
-        except (KeyError, TypeError, ValueError, IndexError, AttributeError) as exc:
-            raise ValueError(f"the stored result is malformed ({exc.__class__.__name__}: {exc})") from None
+    def from_json(cls, doc: object, where: str = "") -> "FitResult":
+        """Rebuild a result written by `to_json`. A malformed document raises FieldError (a
+        ValueError) naming the field (`where`: the document's own path, e.g. "results")."""
+        fields = jr.read_fields(doc, where, (
+            jr.field("spec", _estimated_spec),
+            jr.field("options", FitOptions.from_json),
+            jr.field("estimator", jr.text),
+            jr.field("converged", jr.boolean),
+            jr.field("message", jr.text, "", limit=jr.MAX_TEXT),
+            jr.field("iterations", jr.integer, 0, low=0),
+            jr.field("seconds", jr.number, 0.0),
+            jr.field("n_windows", jr.integer, low=0),
+            jr.field("n_occasions", jr.integer, low=0),
+            jr.field("spectral_radius", jr.number_or_nan),
+            jr.field("flags", jr.tuple_of, [], item=_long_text),
+            jr.field("flag_codes", _flag_codes, None),
+            jr.field("cautions", jr.tuple_of, [], item=_long_text),
+            jr.field("parameters", jr.tuple_of, item=Parameter.from_json),
+            jr.field("fit", FitIndices.from_json),
+            jr.field("matrices", jr.obj, closed=False),  # read below: shapes follow the spec
+            jr.field("extras", jr.obj, {}, closed=False),
+        ))
+        fields["cautions"] = fields["cautions"] or (CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO, CAUTION_SE)
+        fields["flags"] = _flags(fields["flags"], fields.pop("flag_codes"), jr.at(where, "flag_codes"))
+        fields.update(jr.read_fields(fields.pop("extras"), jr.at(where, "extras"), (
+            jr.field("notes", jr.tuple_of, [], item=_long_text),
+            jr.field("newton_steps", jr.integer, 0, low=0),
+            jr.field("depth", jr.integer, None, low=0, high=50, null=True),
+            jr.field("state_scores", _state_scores, None),
+            jr.field("start_loglik_windows", jr.number, None, null=True),
+        )))
+        p, k = len(fields["spec"].items), fields["spec"].k
+        square = partial(jr.matrix, shape=(k, k))
+        fields.update(jr.read_fields(fields.pop("matrices"), jr.at(where, "matrices"), (
+            jr.field("loadings", jr.matrix, shape=(p, k)),
+            jr.field("intercepts", jr.matrix, shape=(p,)),
+            jr.field("unique", jr.matrix, shape=(p,)),
+            jr.field("lagged", jr.tuple_of, item=square, limit=2),
+            jr.field("innovation", square),
+            jr.field("latent_cov", square),
+            jr.field("r_squared", jr.matrix, shape=(p,)),
+        )))
+        return cls(**fields)
 
 
-def _flags(doc: dict) -> tuple[Flag, ...]:
-    texts = [str(x) for x in doc.get("flags", [])]
-    codes = [str(x) for x in doc.get("flag_codes", [""] * len(texts))]
+_long_text = partial(jr.text, limit=jr.MAX_TEXT)
+
+
+def _kind(value: object, where: str) -> Kind:
+    return Kind(jr.choice(value, where, [str(k) for k in Kind]))
+
+
+def _flag_code(value: object, where: str) -> FlagCode:
+    return FlagCode(jr.choice(value, where, [str(c) for c in FlagCode]))
+
+
+def _flag_codes(value: object, where: str) -> tuple[FlagCode, ...] | None:
+    """The flags' codes; None for a file written before flags had codes."""
+    return None if value is None else jr.tuple_of(value, where, _flag_code)
+
+
+def _flags(texts: tuple[str, ...], codes: tuple[FlagCode, ...] | None, where: str) -> tuple[Flag, ...]:
+    """Flags from their texts and codes (files written before flags had codes: none)."""
+    codes = (FlagCode.UNKNOWN,) * len(texts) if codes is None else codes
     if len(codes) != len(texts):
-        raise ValueError("flags and flag_codes differ in length")
+        raise FieldError(where, f"should hold one code per flag ({len(texts)})")
     return tuple(Flag(code, text) for code, text in zip(codes, texts))
 
 
-def _opt(value) -> float | None:
-    return None if value is None else float(value)
+def _estimated_spec(value: object, where: str) -> ModelSpec:
+    """The model a result was estimated with (so one that passes ModelSpec.validate)."""
+    spec = ModelSpec.from_json(value, where, validate=False)
+    try:
+        spec.validate()
+    except SpecError as error:
+        raise FieldError(where, f"is not a model that can be estimated ({error})") from None
+    return spec
 
 
-def _nan(value) -> float:
-    """A number that `to_json` may have written as null (non-finite)."""
-    return float("nan") if value is None else float(value)
+def _interval(value: object, where: str) -> tuple[float, float] | None:
+    return None if value is None else tuple(float(v) for v in jr.matrix(value, where, (2,)))
 
 
 def _finite(obj):

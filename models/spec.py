@@ -17,8 +17,9 @@ from typing import Literal
 import numpy as np
 
 from lagwise.models import blocks
+from lagwise.models import jsonread as jr
 from lagwise.models.blocks import Entry
-from lagwise.models.errors import SpecError
+from lagwise.models.errors import FieldError, SpecError
 from lagwise.models.estimators import estimator
 from lagwise.models.kinds import Kind
 
@@ -41,6 +42,18 @@ class State:
     @property
     def marker_item(self) -> str:
         return self.marker if self.marker is not None else (self.items[0] if self.items else "")
+
+    def to_json(self) -> dict:
+        return {"name": self.name, "items": list(self.items), "marker": self.marker}
+
+    @classmethod
+    def from_json(cls, doc: object, where: str = "") -> "State":
+        """A state from `to_json` output; FieldError names a malformed field."""
+        return cls(**jr.read_fields(doc, where, (
+            jr.field("name", jr.text),
+            jr.field("items", jr.tuple_of, item=jr.text, limit=jr.MAX_ITEMS),
+            jr.field("marker", jr.text, None, null=True),
+        )))
 
 
 def full_mask(k: int, value: bool = True) -> PathMask:
@@ -266,7 +279,7 @@ class ModelSpec:
     # ----- JSON ----------------------------------------------------------------------
     def to_json(self) -> dict:
         return {
-            "states": [{"name": s.name, "items": list(s.items), "marker": s.marker} for s in self.states],
+            "states": [s.to_json() for s in self.states],
             "lags": self.lags,
             "paths": None if self.paths is None else [[list(r) for r in m] for m in self.paths],
             "identification": self.identification,
@@ -277,29 +290,59 @@ class ModelSpec:
         }
 
     @classmethod
-    def from_json(cls, doc: dict) -> "ModelSpec":
-        """Build a spec from `to_json` output; malformed documents raise SpecError."""
-        try:
-            states = tuple(
-                State(name=str(s["name"]), items=tuple(str(i) for i in s["items"]),
-                      marker=None if s.get("marker") is None else str(s["marker"]))
-                for s in doc["states"])
-            paths = doc.get("paths")
-            spec = cls(
-                states=states,
-                lags=int(doc.get("lags", 1)),
-                paths=None if paths is None else tuple(
-                    tuple(tuple(bool(v) for v in row) for row in m) for m in paths),
-                identification=str(doc.get("identification", "marker")),  # type: ignore[arg-type]
-                innovations=str(doc.get("innovations", "free")),  # type: ignore[arg-type]
-                partial_zeros=tuple((str(a), str(b)) for a, b in doc.get("partial_zeros", [])),
-                reliability=tuple((str(k), float(v)) for k, v in dict(doc.get("reliability", {})).items()),
-                unique_autocorrelation=tuple(str(i) for i in doc.get("unique_autocorrelation", [])),
-            )
-        except (KeyError, TypeError, ValueError, AttributeError) as exc:
-            raise SpecError(f"The model specification is malformed ({exc.__class__.__name__}: {exc}).") from None
-        spec.validate()
+    def from_json(cls, doc: object, where: str = "", validate: bool = True) -> "ModelSpec":
+        """Build a spec from `to_json` output.
+
+        A malformed document raises FieldError naming the field (`where`: the document's own
+        path, e.g. "results.spec"). With `validate` (the default) a spec that cannot be
+        estimated raises SpecError (`validate`); without it an unfinished model is returned.
+        """
+        fields = jr.read_fields(doc, where, (
+            jr.field("states", jr.tuple_of, item=State.from_json, limit=jr.MAX_STATES),
+            jr.field("lags", jr.integer, 1, low=0, high=2),
+            jr.field("paths", jr.array, None, limit=2, null=True),  # masks read below
+            jr.field("identification", jr.choice, "marker", choices=IDENTIFICATIONS),
+            jr.field("innovations", jr.choice, "free", choices=INNOVATION_FORMS),
+            jr.field("partial_zeros", jr.tuple_of, [], item=_state_pair),
+            jr.field("reliability", _reliability, {}),
+            jr.field("unique_autocorrelation", jr.tuple_of, [], item=jr.text,
+                     limit=jr.MAX_ITEMS),
+        ))
+        if fields["paths"] is not None:  # their shape follows the lag order and the states
+            fields["paths"] = _masks(fields["paths"], jr.at(where, "paths"), fields["lags"],
+                                     len(fields["states"]))
+        spec = cls(**fields)
+        if validate:
+            spec.validate()
         return spec
+
+
+def _masks(masks: list, where: str, lags: int, k: int) -> tuple[PathMask, ...]:
+    """One k x k true/false mask per lag."""
+    if len(masks) != lags:
+        raise FieldError(where, f"should hold {lags} path mask(s)")
+    out = []
+    for lag, mask in enumerate(masks):
+        rows = jr.array(mask, f"{where}[{lag}]", k)
+        if len(rows) != k:
+            raise FieldError(f"{where}[{lag}]", f"should be {k} x {k} (one row per state)")
+        for i, row in enumerate(rows):
+            if len(jr.array(row, f"{where}[{lag}][{i}]", k)) != k:
+                raise FieldError(f"{where}[{lag}][{i}]", f"should hold {k} true/false values")
+        out.append(tuple(jr.tuple_of(row, f"{where}[{lag}][{i}]", jr.boolean)
+                         for i, row in enumerate(rows)))
+    return tuple(out)
+
+
+def _state_pair(value: object, where: str) -> tuple[str, str]:
+    pair = jr.tuple_of(value, where, jr.text, 2)
+    if len(pair) != 2:
+        raise FieldError(where, "should name two states")
+    return pair
+
+
+def _reliability(value: object, where: str) -> tuple[tuple[str, float], ...]:
+    return tuple(jr.mapping(value, where, jr.number).items())
 
 
 def _as_mask(m: np.ndarray) -> PathMask:

@@ -481,6 +481,22 @@ def test_damage_messages_name_the_problem(base_text, scratch):
     assert "not a Lagwise project" in str(refuse(scratch, json.dumps({"format": "other"})))
 
 
+def test_a_bad_field_inside_a_value_is_named_with_its_path_in_the_project(base_text, scratch):
+    # the values read themselves (from_json) with the project's prefix for where they sit
+    doc = json.loads(base_text)
+    doc["results"]["parameters"][3]["se"] = "0.1"
+    assert "field 'results.parameters[3].se' should be a number, not text" in \
+        str(refuse(scratch, json.dumps(doc)))
+    doc = json.loads(base_text)
+    doc["spec"]["states"][1]["items"][0] = 5
+    assert "field 'spec.states[1].items[0]' should be text, not a number" in \
+        str(refuse(scratch, json.dumps(doc)))
+    doc = json.loads(base_text)
+    doc["time"]["max_gap_minutes"] = -1
+    assert "field 'time.max_gap_minutes' should be more than 0" in \
+        str(refuse(scratch, json.dumps(doc)))
+
+
 def test_a_newer_format_version_gets_a_clear_message(base_text, scratch):
     doc = json.loads(base_text)
     doc["format_version"] = FORMAT_VERSION + 1
