@@ -55,6 +55,8 @@ class WindowShape:
     lam_at: tuple[np.ndarray, np.ndarray, np.ndarray]
     theta_at: tuple[np.ndarray, np.ndarray, np.ndarray]
     theta_lag: np.ndarray     # |a - b| of each Theta~ entry
+    item_of: np.ndarray       # the item of each window column (column a p + i: item i)
+    state_of: np.ndarray      # the state of each latent copy (copy a state j: a k + j)
 
     @property
     def kk(self) -> int:
@@ -88,7 +90,19 @@ def window_shape(p: int, k: int, q: int, depth: int) -> WindowShape:
     theta_at = ((a_idx * p + i_idx).ravel(), (b_idx * p + i_idx).ravel(), i_idx.ravel())
     return WindowShape(p=p, k=k, q=q, copies=copies, n_reg=n_reg, a_at=a_at, psi_at=psi_at,
                        lam_at=lam_at, theta_at=theta_at,
-                       theta_lag=np.abs(a_idx - b_idx).ravel().astype(float))
+                       theta_lag=np.abs(a_idx - b_idx).ravel().astype(float),
+                       item_of=np.tile(np.arange(p), copies), state_of=np.tile(np.arange(k), copies))
+
+
+def _inverse_nilpotent(eye_minus_a: np.ndarray, copies: int) -> np.ndarray:
+    """(I - A)^-1 = I + A + ... + A^(copies-1): copies only regress on older copies, so A is
+    block strictly upper triangular and A^copies = 0."""
+    a = np.eye(eye_minus_a.shape[0]) - eye_minus_a
+    out, term = np.eye(a.shape[0]), np.eye(a.shape[0])
+    for _ in range(copies - 1):
+        term = term @ a
+        out += term
+    return out
 
 
 @dataclass
@@ -127,7 +141,7 @@ def implied_moments(m: Matrices, depth: int, free_first_copies: bool = False) ->
             big_q[:k, :k] = m.psi
             p_old = solve_lyapunov(comp, big_q)
         psi_big[n_reg * k:, n_reg * k:] = p_old
-    m_inv = np.linalg.inv(eye_minus_a)
+    m_inv = _inverse_nilpotent(eye_minus_a, shape.copies)
     phi_xi = m_inv @ psi_big @ m_inv.T
     lam_big = np.zeros((shape.width, kk))
     rows, cols, src = shape.lam_at
@@ -137,13 +151,12 @@ def implied_moments(m: Matrices, depth: int, free_first_copies: bool = False) ->
     if m.d.any():
         sigma[rows, cols] += m.theta[src] * m.d[src] ** shape.theta_lag
     else:
-        diagonal = np.arange(shape.width)
-        sigma[diagonal, diagonal] += np.tile(m.theta, shape.copies)
-    mu = np.tile(m.nu, shape.copies)
+        sigma.flat[::shape.width + 1] += m.theta[shape.item_of]
+    mu = m.nu[shape.item_of]
     latent_mean = None
     if m.c is not None:
         c_big = np.zeros(kk)
-        c_big[:n_reg * k] = np.tile(m.c, n_reg)
+        c_big[:n_reg * k] = m.c[shape.state_of[:n_reg * k]]
         latent_mean = m_inv @ c_big
         mu = mu + lam_big @ latent_mean
     return Implied(mu=mu, sigma=sigma, lam_big=lam_big, m_inv=m_inv, latent_mean=latent_mean,
@@ -248,12 +261,12 @@ def moment_jacobian(m: Matrices, dm: Matrices, imp: Implied, depth: int,
     d_src = m.d[src]
     d_sigma[:, rows, cols] += (dm.theta[:, src] * d_src ** lag
                                + dm.d[:, src] * m.theta[src] * lag * d_src ** np.maximum(lag - 1, 0))
-    d_mu = np.tile(dm.nu, (1, shape.copies))
+    d_mu = dm.nu[:, shape.item_of]
     if imp.latent_mean is not None:
         c_big = np.zeros(kk)
-        c_big[:n_reg * k] = np.tile(m.c, n_reg)
+        c_big[:n_reg * k] = m.c[shape.state_of[:n_reg * k]]
         d_c_big = np.zeros((n, kk))
-        d_c_big[:, :n_reg * k] = np.tile(dm.c, (1, n_reg))
+        d_c_big[:, :n_reg * k] = dm.c[:, shape.state_of[:n_reg * k]]
         d_latent = d_m @ c_big + d_c_big @ m_inv.T
         d_mu = d_mu + d_lam @ imp.latent_mean + d_latent @ lam_big.T
     return d_mu, d_sigma

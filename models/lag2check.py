@@ -19,8 +19,8 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.stats import chi2 as chi2_dist
-from threadpoolctl import threadpool_limits
 
+from lagwise.models.blas import one_blas_thread
 from lagwise.models.diary import Diary
 from lagwise.models.errors import SpecError
 from lagwise.models.estimators import FitOptions
@@ -110,7 +110,7 @@ def lag2_check(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions()
     opts = replace(window_options, depth=max(2, window_options.depth or 2))
     restricted_spec, extended_spec = lag1_version(spec), lag2_version(spec)
     notes = restricted_spec.validate(diary.items)
-    with threadpool_limits(limits=1, user_api="blas"):
+    with one_blas_thread():
         windows = lag_windows(diary.select(restricted_spec.items), opts.depth)
         checkpoint(monitor, 0.0, "Fitting the lag-1 model on depth-2 windows")
         obj_r = WindowObjective(windows, restricted_spec, opts)

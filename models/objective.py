@@ -21,7 +21,7 @@ from lagwise.models.flags import Flag
 from lagwise.models.implied import Implied, implied_moments, matrix_gradients, moment_jacobian
 from lagwise.models.optimise import observed_information
 from lagwise.models.parameters import Matrices, ParameterLayout
-from lagwise.models.patterns import PatternData
+from lagwise.models.patterns import pattern_data
 from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.results import FitIndices
 from lagwise.models.spec import ModelSpec
@@ -45,7 +45,7 @@ class WindowObjective:
         self.n_occasions = windows.n_occasions
         rows = windows.data if options.missing == "fiml" else windows.data[windows.complete]
         self.rows = rows
-        self.data = PatternData(rows)
+        self.data = pattern_data(rows)
         p = len(spec.items)
         self.item_var = np.nanvar(rows[:, :p], axis=0) if rows.size else np.ones(p)
         self.layout = ParameterLayout(spec, self.item_var, self.free_first_copies)
@@ -134,7 +134,7 @@ class WindowObjective:
     def figures(self, theta: np.ndarray, loglik: float, sigma0: np.ndarray
                 ) -> tuple[FitIndices, list[Flag]]:
         """Fit indices on the window covariance against the saturated and independence models."""
-        _, sigma_sat, ll_sat, sat_ok = self.data.saturated()
+        _, sigma_sat, ll_sat, sat_ok = self.data.saturated_model
         fit = fit_indices(loglik, ll_sat, self.data.independence_loglik(), self.layout.n_free,
                           self.data.width, self.n_rows, sigma_sat, self.implied(theta).sigma)
         return fit, ([] if sat_ok else [warn.saturated_not_converged()])

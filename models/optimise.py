@@ -35,7 +35,7 @@ class Likelihood(Protocol):
 
 
 PRECISE = {"ftol": 1e-12, "gtol": 1e-8}
-ROUGH = {"ftol": 1e-8, "gtol": 1e-5}   # when Newton steps with the information finish the job
+ROUGH = {"ftol": 1e-6, "gtol": 1e-4}   # when Newton steps with the information finish the job
 
 
 def maximise(objective: Likelihood, theta0: np.ndarray, sizes: np.ndarray, max_iter: int,

@@ -14,11 +14,33 @@ and trace unchanged and keeps the missing part out of the gradient.
 
 from __future__ import annotations
 
+from collections import OrderedDict
+from functools import cached_property
+from hashlib import blake2b
+
 import numpy as np
+from scipy.linalg import lapack
 
 from lagwise.models.implied import NotAdmissible
 
 LOG2PI = float(np.log(2.0 * np.pi))
+
+
+def pattern_data(rows: np.ndarray) -> "PatternData":
+    """PatternData of `rows`, shared by every objective built on the same rows (the last
+    PATTERN_CACHE distinct ones), so a refit of the same windows skips the grouping and the
+    saturated model."""
+    rows = np.ascontiguousarray(rows, dtype=float)
+    key = blake2b(rows.tobytes() + repr(rows.shape).encode(), digest_size=16).digest()
+    data = _CACHE.pop(key, None) or PatternData(rows)
+    _CACHE[key] = data
+    while len(_CACHE) > PATTERN_CACHE:
+        _CACHE.popitem(last=False)
+    return data
+
+
+PATTERN_CACHE = 4
+_CACHE: "OrderedDict[bytes, PatternData]" = OrderedDict()
 
 
 class PatternData:
@@ -51,6 +73,7 @@ class PatternData:
         self.obs_outer = self.observed[:, :, None] & self.observed[:, None, :]
         # every row answered in full: one pattern, no padding needed
         self.complete = g == 1 and bool(self.observed.all())
+        self._lower = np.tri(w, dtype=bool)
         self.n_obs_per_pattern = self.observed.sum(axis=1)
         # per-column observed values' count, mean and ML variance (independence baseline)
         self.col_n = mask.sum(axis=0)
@@ -97,21 +120,25 @@ class PatternData:
     def _complete_loglik(self, mu: np.ndarray, sigma: np.ndarray, gradient: bool
                          ) -> tuple[float, np.ndarray | None, np.ndarray | None]:
         """`loglik` for one complete pattern (the same formulas without padding)."""
-        try:
-            chol = np.linalg.cholesky(sigma)
-        except np.linalg.LinAlgError:
-            raise NotAdmissible("window covariance not positive definite") from None
+        chol, info = lapack.dpotrf(sigma, lower=1)
         diag = np.diagonal(chol)
-        if not np.all(np.isfinite(diag)) or np.any(diag <= 0):
+        if info != 0 or not np.all(np.isfinite(diag)) or np.any(diag <= 0):
             raise NotAdmissible("window covariance not positive definite")
-        inv = np.linalg.inv(sigma)
+        inv, _ = lapack.dpotri(chol, lower=1)      # the lower triangle of Sigma^-1
+        inv = np.where(self._lower, inv, inv.T)
         e = self.means[0] - mu
-        mg = self.covs[0] + np.outer(e, e)
+        mg = self.covs[0] + e[:, None] * e[None, :]
         n = self.counts[0]
         total = float(-0.5 * n * (self.width * LOG2PI + 2.0 * np.log(diag).sum() + np.vdot(inv, mg)))
         if not gradient:
             return total, None, None
         return total, 0.5 * n * (inv @ mg @ inv - inv), n * (inv @ e)
+
+    @cached_property
+    def saturated_model(self) -> tuple[np.ndarray, np.ndarray, float, bool]:
+        """`saturated()` at its defaults, computed once: it depends on the data alone, so
+        refits of the same windows with other models reuse it."""
+        return self.saturated()
 
     def saturated(self, tol: float = 1e-10, max_iter: int = 20000) -> tuple[np.ndarray, np.ndarray, float, bool]:
         """Unrestricted mean and covariance by ML: closed form when complete, else the EM
