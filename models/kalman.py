@@ -49,6 +49,7 @@ check for this one (tests/test_kalman.py).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -60,6 +61,7 @@ from lagwise.models.lyapunov import companion, companion_covariance, solve_lyapu
 
 _LOG_2PI = float(np.log(2.0 * np.pi))
 _CHUNK = 4096   # occasions per block in per-occasion products (bounds temporary memory)
+_PIECE = 64     # segments longer than this are cut into pieces for the mean recursions
 
 
 @dataclass(frozen=True, eq=False)
@@ -129,6 +131,8 @@ class FilterPlan:
     occasion_node: np.ndarray
     node_order: np.ndarray        # occasions sorted by node
     later: np.ndarray             # occasions that are not the first of their segment
+    forward: _Lanes               # the mean recursion, forwards
+    backward: _Lanes              # and backwards (the adjoints of the means)
 
     @property
     def n_nodes(self) -> int:
@@ -177,7 +181,8 @@ def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
                       node_pattern=node_pattern, node_parent=np.concatenate(parent_parts),
                       occasion_node=occasion_node,
                       node_order=np.argsort(occasion_node, kind="stable"),
-                      later=np.flatnonzero(~first))
+                      later=np.flatnonzero(~first), forward=_lanes(starts, lengths, 1),
+                      backward=_lanes(starts + lengths - 1, lengths, -1))
 
 
 def _layout(segment: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
@@ -199,6 +204,54 @@ def _layout(segment: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
 def _n_active(lengths: np.ndarray, b: int) -> int:
     """Number of segments longer than b (lengths sorted in decreasing order)."""
     return int(np.searchsorted(-lengths, -b, side="left"))
+
+
+@dataclass(frozen=True, eq=False)
+class _Lanes:
+    """A mean recursion x_t = M_t x_t-step + g_t along every segment, cut into pieces.
+
+    Each segment, in the recursion's direction (step 1 forwards, -1 backwards), is cut into
+    pieces of `piece` occasions (the last one shorter): its head (first piece) and its
+    tails. heads[b] / tails[b]: the occasion at position b of each head / tail longer than b
+    (longest first). `first`: the tails that follow a head; links[i] = (tails, the tails
+    they follow), for the second, third, ... tail of each segment.
+    """
+
+    step: int
+    heads: tuple[np.ndarray, ...]
+    tails: tuple[np.ndarray, ...]
+    first: np.ndarray
+    links: tuple[tuple[np.ndarray, np.ndarray], ...]
+
+
+def _lanes(origins: np.ndarray, lengths: np.ndarray, step: int) -> _Lanes:
+    """Lanes of the segments that begin (in the recursion's direction) at `origins`, with
+    `lengths` (decreasing); pieces of max(_PIECE, sqrt(longest)) occasions, so that the
+    recursion takes O(sqrt(T)) vectorised steps on one long segment of T occasions."""
+    piece = max(_PIECE, math.isqrt(int(lengths[0])))
+    cuts = (lengths - 1) // piece                      # tails per segment
+    seg = np.repeat(np.arange(lengths.size), cuts)     # the tails, segment by segment,
+    ordinal = np.arange(seg.size) - np.repeat(np.cumsum(cuts) - cuts, cuts) + 1   # 1, 2, ...
+    offset = ordinal * piece
+    size = np.minimum(piece, lengths[seg] - offset)
+    order = np.argsort(-size, kind="stable")           # longest first
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.size)
+    tail_origin = (origins[seg] + step * offset)[order]
+    links = []
+    for c in range(2, int(ordinal.max(initial=1)) + 1):
+        later = np.flatnonzero(ordinal == c)
+        links.append((rank[later], rank[later - 1]))
+    return _Lanes(step=step, heads=_positions(origins, np.minimum(piece, lengths), step),
+                  tails=_positions(tail_origin, size[order], step),
+                  first=rank[ordinal == 1], links=tuple(links))
+
+
+def _positions(origins: np.ndarray, sizes: np.ndarray, step: int) -> tuple[np.ndarray, ...]:
+    """Occasions at each position b of the pieces (sizes decreasing) longer than b."""
+    if not sizes.size:
+        return ()
+    return tuple(origins[:_n_active(sizes, b)] + step * b for b in range(int(sizes[0])))
 
 
 # ----- the system matrices ------------------------------------------------------------------
@@ -410,7 +463,42 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
                         logdet=logdet[:size])
 
 
-# ----- the mean recursion, per occasion ------------------------------------------------------
+# ----- the mean recursions, per occasion ----------------------------------------------------
+def _recursion(lanes: _Lanes, mats: np.ndarray, link: np.ndarray, x: np.ndarray) -> None:
+    """x_t += M_t x_t-step along every segment, in place (x holds g_t), M_t = mats[link[t]].
+
+    The heads run as they are. Each tail runs first from a zero start, keeping its end value r
+    and the product Phi of its M_t; the value c before each tail then follows along the
+    segment, c' = r + Phi c, one piece at a time; then each tail runs again from its c.
+    """
+    _sweep(lanes.heads, lanes.step, mats, link, x)
+    if not lanes.tails:
+        return
+    rows = lanes.tails[0]
+    r, phi = x[rows], mats[link[rows]]
+    for rows in lanes.tails[1:]:
+        s, mt = rows.size, mats[link[rows]]
+        r[:s] = np.einsum("sij,sj->si", mt, r[:s]) + x[rows]
+        phi[:s] = mt @ phi[:s]
+    rows = lanes.tails[0]
+    c = np.empty_like(r)
+    c[lanes.first] = x[rows[lanes.first] - lanes.step]
+    for later, before in lanes.links:
+        c[later] = r[before] + np.einsum("sij,sj->si", phi[before], c[before])
+    x[rows] += np.einsum("sij,sj->si", mats[link[rows]], c)
+    _sweep(lanes.tails, lanes.step, mats, link, x)
+
+
+def _sweep(positions: tuple[np.ndarray, ...], step: int, mats: np.ndarray, link: np.ndarray,
+           x: np.ndarray) -> None:
+    """x_t += M_t x_t-step for the occasions at positions 1, 2, ... of pieces."""
+    for rows in positions[1:]:
+        if rows.size == 1:
+            t = int(rows[0])
+            x[t] += np.dot(mats[link[t]], x[t - step])
+        else:
+            x[rows] += np.einsum("sij,sj->si", mats[link[rows]], x[rows - step])
+
 @dataclass(frozen=True, eq=False)
 class _Pass:
     """One run of the filter."""
@@ -438,15 +526,7 @@ def _run(plan: FilterPlan, values, intercepts, sys: _System) -> _Pass:
     node = cov.canon[plan.occasion_node]
     closed = (np.eye(m) - cov.w.transpose(0, 2, 1) @ cov.zb) @ t
     a_filt = _apply(cov.w, node, centred, transpose=True)   # W' (y - nu): the part without a_t
-    canon = cov.canon
-    for st in plan.steps[1:]:
-        rows = st.rows
-        if st.row >= 0:
-            a_filt[st.row] += np.dot(closed[canon[st.lo]], a_filt[st.row - 1])
-        elif st.hi - st.lo == 1:
-            a_filt[rows] += a_filt[rows - 1] @ closed[canon[st.lo]].T
-        else:
-            a_filt[rows] += np.einsum("sij,sj->si", closed[canon[st.node]], a_filt[rows - 1])
+    _recursion(plan.forward, closed, node, a_filt)
     a_pred = np.zeros((n, m))
     a_pred[plan.later] = a_filt[plan.later - 1] @ t.T
     r = centred - np.where(observed, a_pred @ sys.z.T, 0.0)
@@ -543,21 +623,8 @@ def kalman_gradient(values: np.ndarray, segment: np.ndarray, intercepts: np.ndar
     zu = run.u @ z
     tzu = zu @ t
     afbar = np.zeros((n, m))                     # adjoint of a_t|t
-    steps = plan.steps
-    for st in reversed(steps[:-1]):
-        if not st.n_next:
-            continue
-        after = steps[st.b + 1]
-        if after.row >= 0:
-            r = after.row
-            afbar[r - 1] = np.dot(afbar[r], closed[cov.canon[after.lo]]) + tzu[r]
-            continue
-        rows = st.rows[:st.n_next]
-        nxt = rows + 1
-        if after.hi - after.lo == 1:
-            afbar[rows] = afbar[nxt] @ closed[cov.canon[after.lo]] + tzu[nxt]
-        else:
-            afbar[rows] = np.einsum("sji,sj->si", closed[node[nxt]], afbar[nxt]) + tzu[nxt]
+    afbar[plan.later - 1] = tzu[plan.later]
+    _recursion(plan.backward, closed.transpose(0, 2, 1), np.append(node[1:], 0), afbar)
     mu = _apply(cov.w, node, afbar)              # M ZP abar_t|t
     rb = np.where(observed, mu - run.u, 0.0)     # adjoint of r
     abar = afbar - rb @ z                        # adjoint of a_t
