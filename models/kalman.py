@@ -101,35 +101,26 @@ class KalmanGradient:
 
 # ----- the plan: answer histories shared by occasions ---------------------------------------
 @dataclass(frozen=True, eq=False)
-class _Step:
-    """The occasions at one position b (0-based) within their segments."""
-
-    b: int
-    rows: np.ndarray     # (S,) occasions, one per segment at least b + 1 long (longest first)
-    node: np.ndarray     # (S,) history node of each occasion
-    lo: int              # this position's history nodes are lo .. hi - 1
-    hi: int
-    n_next: int          # the first n_next segments continue to position b + 1
-    row: int             # the occasion when there is only one (S = 1), else -1
-
-
-@dataclass(frozen=True, eq=False)
 class FilterPlan:
     """Where the diary's answers are, organised for the filter (see the module docstring).
 
     Depends only on which values are missing and on the segments, so it is built once per
     diary and reused for every evaluation. History node j: the answered items
     `patterns[node_pattern[j]]`, the node of the previous occasion `node_parent[j]` (-1 at a
-    segment start); `occasion_node` (n,) gives each occasion's node.
+    segment start); `occasion_node` (n,) gives each occasion's node. The nodes of position b
+    that some segments still share are levels[b] = (lo, hi); the nodes from levels[-1][1] on
+    are chains: each belongs to one occasion, its parent comes before it.
     """
 
     observed: np.ndarray
-    steps: tuple[_Step, ...]
     patterns: np.ndarray          # (distinct answer patterns, p) bool
     node_pattern: np.ndarray
     node_parent: np.ndarray
     occasion_node: np.ndarray
+    levels: tuple[tuple[int, int], ...]
     node_order: np.ndarray        # occasions sorted by node
+    starts: np.ndarray            # segments, longest first: first occasion
+    lengths: np.ndarray           # and number of occasions
     later: np.ndarray             # occasions that are not the first of their segment
     forward: _Lanes               # the mean recursion, forwards
     backward: _Lanes              # and backwards (the adjoints of the means)
@@ -141,7 +132,11 @@ class FilterPlan:
 
 def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
     """Build the plan of `values` (n, p) (NaN = unanswered) with segment ids (n,) (a new
-    segment starts where the id changes)."""
+    segment starts where the id changes).
+
+    The history nodes are made position by position while segments share them; once a
+    segment's history is its own, the rest of the segment is a chain, made in one go.
+    """
     y = np.asarray(values, dtype=float)
     if y.ndim != 2:
         raise EstimationError("The data must be a table of occasions by items.")
@@ -150,38 +145,43 @@ def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
     observed = ~np.isnan(y)
     patterns, pattern_of = np.unique(observed, axis=0, return_inverse=True)
     pattern_of = pattern_of.reshape(-1)
-    node_prev = np.zeros(starts.size, dtype=np.int64)
+    node_prev = np.full(starts.size, -1, dtype=np.int64)
     occasion_node = np.empty(n, dtype=np.int64)
-    steps, pattern_parts, parent_parts = [], [], []
-    total = 0
-    for b in range(int(lengths[0])):
-        n_act = _n_active(lengths, b)
-        rows = starts[:n_act] + b
-        parent = node_prev[:n_act].copy() if b else np.full(n_act, -1, dtype=np.int64)
-        if n_act == 1:
-            inverse, node_pat, node_par = np.zeros(1, dtype=np.int64), pattern_of[rows], parent
-        else:
-            key = np.stack([parent, pattern_of[rows]], axis=1)
-            unique, inverse = np.unique(key, axis=0, return_inverse=True)
-            inverse = inverse.reshape(-1)
-            node_pat, node_par = unique[:, 1], unique[:, 0]
-        node = total + inverse
-        steps.append(_Step(b=b, rows=rows, node=node, lo=total, hi=total + node_pat.size,
-                           n_next=_n_active(lengths, b + 1),
-                           row=int(rows[0]) if n_act == 1 else -1))
-        pattern_parts.append(node_pat)
-        parent_parts.append(node_par)
-        node_prev[:n_act] = node
-        occasion_node[rows] = node
-        total += node_pat.size
-    node_pattern = np.concatenate(pattern_parts)
+    levels, pattern_parts, parent_parts, alone, alone_from = [], [], [], [], []
+    shared = np.arange(starts.size)         # segments whose history so far is not theirs alone
+    total, b = 0, 0
+    while shared.size:
+        rows = starts[shared] + b
+        key = np.stack([node_prev[shared], pattern_of[rows]], axis=1)
+        unique, inverse, counts = np.unique(key, axis=0, return_inverse=True, return_counts=True)
+        inverse = inverse.reshape(-1)
+        node_prev[shared] = occasion_node[rows] = total + inverse
+        levels.append((total, total + unique.shape[0]))
+        pattern_parts.append(unique[:, 1])
+        parent_parts.append(unique[:, 0])
+        total += unique.shape[0]
+        single = counts[inverse] == 1
+        alone.append(shared[single])
+        alone_from.append(np.full(int(single.sum()), b + 1))
+        b += 1
+        shared = shared[~single & (lengths[shared] > b)]
+    seg, begin = np.concatenate(alone), np.concatenate(alone_from)
+    size = np.maximum(lengths[seg] - begin, 0)
+    within = np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size)
+    rows = np.repeat(starts[seg] + begin, size) + within
+    ids = total + np.arange(rows.size)
+    parent = ids - 1
+    parent[within == 0] = node_prev[seg[size > 0]]
+    occasion_node[rows] = ids
     first = np.zeros(n, dtype=bool)
     first[starts] = True
-    return FilterPlan(observed=observed, steps=tuple(steps), patterns=patterns,
-                      node_pattern=node_pattern, node_parent=np.concatenate(parent_parts),
-                      occasion_node=occasion_node,
-                      node_order=np.argsort(occasion_node, kind="stable"),
-                      later=np.flatnonzero(~first), forward=_lanes(starts, lengths, 1),
+    return FilterPlan(observed=observed, patterns=patterns,
+                      node_pattern=np.concatenate(pattern_parts + [pattern_of[rows]]),
+                      node_parent=np.concatenate(parent_parts + [parent]),
+                      occasion_node=occasion_node, levels=tuple(levels), starts=starts,
+                      lengths=lengths, node_order=np.argsort(occasion_node, kind="stable"),
+                      later=np.flatnonzero(~first),
+                      forward=_lanes(starts, lengths, 1),
                       backward=_lanes(starts + lengths - 1, lengths, -1))
 
 
@@ -362,7 +362,8 @@ _NOT_PD = "The predicted covariance of the answers is not positive definite at s
 
 
 def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
-    """Run the covariance recursion over the history nodes of the plan, step by step.
+    """Run the covariance recursion over the history nodes of the plan: a level at a time
+    (vectorised), then along the chains a node at a time.
 
     A history node whose (parent's filter node, answered items) was seen before reuses that
     filter node; so does one whose predicted covariance equals, bit for bit, that of an
@@ -372,7 +373,7 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
     z, t, q = sys.z, sys.t, sys.q
     p, m = z.shape
     cap = plan.n_nodes
-    canon = np.empty(cap, dtype=np.int64)
+    canon = [0] * cap
     parent, pattern = np.empty(cap, dtype=np.int64), np.empty(cap, dtype=np.int64)
     p_pred, p_filt = np.empty((cap, m, m)), np.empty((cap, m, m))
     minv, zp, w = np.empty((cap, p, p)), np.empty((cap, p, m)), np.empty((cap, p, m))
@@ -386,36 +387,35 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
     size = 0
     rhs = np.zeros((p, m + p))
     rhs[:, m:] = np.eye(p)
-    for st in plan.steps:
-        if st.hi - st.lo == 1:      # one node: plain LAPACK (numpy's overhead dominates here)
-            j = st.lo
-            pat = node_pattern[j]
-            cp = int(canon[node_parent[j]]) if st.b else -1
-            hit = edges.get((cp, pat))
-            if hit is None:
-                pm = sys.p0 if cp < 0 else np.dot(np.dot(t, p_filt[cp]), t.T) + q
-                hit = seen.setdefault((pat, pm.tobytes()), size)
-                if hit == size:
-                    zb, zpb = zb_pat[pat], np.dot(zb_pat[pat], pm)
-                    f = np.dot(zpb, zb.T)
-                    f.flat[::p + 1] += hb_pat[pat]
-                    rhs[:, :m] = zpb
-                    chol, x, info = lapack.dposv(f, rhs)
-                    if info != 0:
-                        raise EstimationError(_NOT_PD)
-                    pf = pm - np.dot(zpb.T, x[:, :m])
-                    p_pred[size], p_filt[size] = pm, (pf + pf.T) * 0.5
-                    zp[size], w[size], minv[size] = zpb, x[:, :m], x[:, m:]
-                    logdet[size] = 2.0 * np.log(np.diagonal(chol)).sum()
-                    parent[size], pattern[size] = cp, pat
-                    batches.append((size, size + 1))
-                    size += 1
-                edges[(cp, pat)] = hit
-            canon[j] = hit
-            continue
+
+    def one(cp: int, pat: int) -> int:
+        """The filter node after filter node cp with the answered items pat (plain LAPACK:
+        numpy's overhead would dominate for a single node)."""
+        nonlocal size
+        pm = np.dot(np.dot(t, p_filt[cp]), t.T) + q
+        hit = edges[(cp, pat)] = seen.setdefault((pat, pm.tobytes()), size)
+        if hit < size:
+            return hit
+        zb, zpb = zb_pat[pat], np.dot(zb_pat[pat], pm)
+        f = np.dot(zpb, zb.T)
+        f.flat[::p + 1] += hb_pat[pat]
+        rhs[:, :m] = zpb
+        chol, x, info = lapack.dposv(f, rhs)
+        if info != 0:
+            raise EstimationError(_NOT_PD)
+        pf = pm - np.dot(zpb.T, x[:, :m])
+        p_pred[size], p_filt[size] = pm, (pf + pf.T) * 0.5
+        zp[size], w[size], minv[size] = zpb, x[:, :m], x[:, m:]
+        logdet[size] = 2.0 * np.log(np.diagonal(chol)).sum()
+        parent[size], pattern[size] = cp, pat
+        batches.append((size, size + 1))
+        size += 1
+        return hit
+
+    for b, (first, last) in enumerate(plan.levels):
         fresh, fresh_parent = [], []
-        for j in range(st.lo, st.hi):
-            cp = int(canon[node_parent[j]]) if st.b else -1
+        for j in range(first, last):
+            cp = canon[node_parent[j]] if b else -1
             hit = edges.get((cp, node_pattern[j]))
             if hit is None:
                 fresh.append(j)
@@ -424,7 +424,7 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
                 canon[j] = hit
         if not fresh:
             continue
-        if st.b == 0:
+        if b == 0:
             pms = np.broadcast_to(sys.p0, (len(fresh), m, m))
         else:
             pms = t @ p_filt[fresh_parent] @ t.T + q
@@ -454,10 +454,14 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
         p_filt[lo:hi] = (pf + pf.transpose(0, 2, 1)) * 0.5
         zp[lo:hi], w[lo:hi], minv[lo:hi] = zpb, wb, mi
         logdet[lo:hi] = 2.0 * np.log(np.diagonal(chol, axis1=1, axis2=2)).sum(axis=1)
+    for j in range(plan.levels[-1][1], cap):
+        cp, pat = canon[node_parent[j]], node_pattern[j]
+        hit = edges.get((cp, pat))
+        canon[j] = one(cp, pat) if hit is None else hit
     if not np.all(np.isfinite(logdet[:size])):
         raise EstimationError(_NOT_PD)
     pattern = pattern[:size]
-    return _Covariances(canon=canon, parent=parent[:size], obs=plan.patterns[pattern],
+    return _Covariances(canon=np.array(canon, dtype=np.int64), parent=parent[:size], obs=plan.patterns[pattern],
                         batches=batches, p_pred=p_pred[:size], p_filt=p_filt[:size],
                         minv=minv[:size], zp=zp[:size], w=w[:size], zb=zb_pat[pattern],
                         logdet=logdet[:size])
@@ -576,8 +580,8 @@ def kalman_smooth(values: np.ndarray, segment: np.ndarray, intercepts: np.ndarra
     # T' P_t+1|t^+ per filter node; P_pred may be singular (exact items): pseudo-inverse
     tpinv = sys.t.T @ np.linalg.pinv(cov.p_pred, hermitian=True)
     a_s, p_s = run.a_filt.copy(), cov.p_filt[node]
-    for st in reversed(plan.steps[:-1]):
-        rows = st.rows[:st.n_next]
+    for b in reversed(range(int(plan.lengths[0]) - 1)):
+        rows = plan.starts[:_n_active(plan.lengths, b + 1)] + b
         nxt = rows + 1
         j = cov.p_filt[node[rows]] @ tpinv[node[nxt]]
         a_s[rows] += np.einsum("smn,sn->sm", j, a_s[nxt] - run.a_pred[nxt])
