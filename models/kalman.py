@@ -54,6 +54,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import sparse
 from scipy.linalg import lapack
 
 from lagwise.models.errors import EstimationError
@@ -118,7 +119,6 @@ class FilterPlan:
     node_parent: np.ndarray
     occasion_node: np.ndarray
     levels: tuple[tuple[int, int], ...]
-    node_order: np.ndarray        # occasions sorted by node
     starts: np.ndarray            # segments, longest first: first occasion
     lengths: np.ndarray           # and number of occasions
     later: np.ndarray             # occasions that are not the first of their segment
@@ -179,8 +179,7 @@ def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
                       node_pattern=np.concatenate(pattern_parts + [pattern_of[rows]]),
                       node_parent=np.concatenate(parent_parts + [parent]),
                       occasion_node=occasion_node, levels=tuple(levels), starts=starts,
-                      lengths=lengths, node_order=np.argsort(occasion_node, kind="stable"),
-                      later=np.flatnonzero(~first),
+                      lengths=lengths, later=np.flatnonzero(~first),
                       forward=_lanes(starts, lengths, 1),
                       backward=_lanes(starts + lengths - 1, lengths, -1))
 
@@ -319,16 +318,10 @@ def _apply(mats: np.ndarray, node: np.ndarray, vecs: np.ndarray, transpose: bool
     return out
 
 
-def _node_outer_sums(plan: FilterPlan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
-    """(history nodes, a, c): sum over each node's occasions of x_t y_t'."""
-    out = np.zeros((plan.n_nodes, x.shape[1], y.shape[1]))
-    order = plan.node_order
-    for lo in range(0, order.size, _CHUNK):
-        idx = order[lo:lo + _CHUNK]
-        nodes = plan.occasion_node[idx]
-        first = np.flatnonzero(np.r_[True, nodes[1:] != nodes[:-1]])
-        out[nodes[first]] += np.add.reduceat(x[idx][:, :, None] * y[idx][:, None, :], first, axis=0)
-    return out
+def _node_sums(pick: sparse.csc_array, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """(filter nodes, a, c): the sum over each node's occasions of x_t y_t', as the 0/1
+    (filter node, occasion) matrix `pick` times the products, one column of x at a time."""
+    return np.stack([pick @ (x[:, i, None] * y) for i in range(x.shape[1])], axis=1)
 
 
 # ----- the covariance recursion, per node ---------------------------------------------------
@@ -637,9 +630,9 @@ def kalman_gradient(values: np.ndarray, segment: np.ndarray, intercepts: np.ndar
     tbar = abar[plan.later].T @ run.a_filt[plan.later - 1]
     # covariances: the sums over each filter node's occasions of the adjoints of ZP and F
     size = cov.size
-    s_zp, s_f = np.zeros((size, p, m)), np.zeros((size, p, p))
-    np.add.at(s_zp, cov.canon, _node_outer_sums(plan, run.u, afbar))
-    np.add.at(s_f, cov.canon, _node_outer_sums(plan, 0.5 * run.u - mu, run.u))
+    pick = sparse.csc_array((np.ones(n), node, np.arange(n + 1)), shape=(size, n))
+    s_zp = _node_sums(pick, run.u, afbar)
+    s_f = _node_sums(pick, 0.5 * run.u - mu, run.u)
     s_f -= 0.5 * np.bincount(node, minlength=size)[:, None, None] * cov.minv
     zb, w = cov.zb, cov.w
     e = _sym(zb.transpose(0, 2, 1) @ (s_f @ zb + s_zp))
