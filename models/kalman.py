@@ -63,6 +63,7 @@ from lagwise.models.lyapunov import companion, companion_covariance, solve_lyapu
 _LOG_2PI = float(np.log(2.0 * np.pi))
 _CHUNK = 4096   # occasions per block in per-occasion products (bounds temporary memory)
 _PIECE = 64     # segments longer than this are cut into pieces for the mean recursions
+_SIDE_BY_SIDE = 16   # fewest segments whose history nodes are made together, a position at a time
 
 
 @dataclass(frozen=True, eq=False)
@@ -109,8 +110,8 @@ class FilterPlan:
     diary and reused for every evaluation. History node j: the answered items
     `patterns[node_pattern[j]]`, the node of the previous occasion `node_parent[j]` (-1 at a
     segment start); `occasion_node` (n,) gives each occasion's node. The nodes of position b
-    that some segments still share are levels[b] = (lo, hi); the nodes from levels[-1][1] on
-    are chains: each belongs to one occasion, its parent comes before it.
+    are levels[b] = (lo, hi) for the first positions; those from levels[-1][1] on are chains,
+    the rest of each longer segment: one node per occasion, each after its parent.
     """
 
     observed: np.ndarray
@@ -134,8 +135,9 @@ def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
     """Build the plan of `values` (n, p) (NaN = unanswered) with segment ids (n,) (a new
     segment starts where the id changes).
 
-    The history nodes are made position by position while segments share them; once a
-    segment's history is its own, the rest of the segment is a chain, made in one go.
+    The history nodes are made a position at a time while at least _SIDE_BY_SIDE segments
+    (or only the first position) remain; the rest of each longer segment is a chain, made in
+    one go.
     """
     y = np.asarray(values, dtype=float)
     if y.ndim != 2:
@@ -147,31 +149,25 @@ def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
     pattern_of = pattern_of.reshape(-1)
     node_prev = np.full(starts.size, -1, dtype=np.int64)
     occasion_node = np.empty(n, dtype=np.int64)
-    levels, pattern_parts, parent_parts, alone, alone_from = [], [], [], [], []
-    shared = np.arange(starts.size)         # segments whose history so far is not theirs alone
-    total, b = 0, 0
-    while shared.size:
-        rows = starts[shared] + b
-        key = np.stack([node_prev[shared], pattern_of[rows]], axis=1)
-        unique, inverse, counts = np.unique(key, axis=0, return_inverse=True, return_counts=True)
-        inverse = inverse.reshape(-1)
-        node_prev[shared] = occasion_node[rows] = total + inverse
+    levels, pattern_parts, parent_parts = [], [], []
+    depth = int(lengths[_SIDE_BY_SIDE - 1]) if lengths.size >= _SIDE_BY_SIDE else 1
+    total = 0
+    for b in range(depth):
+        n_act = _n_active(lengths, b)
+        rows = starts[:n_act] + b
+        key = np.stack([node_prev[:n_act], pattern_of[rows]], axis=1)
+        unique, inverse = np.unique(key, axis=0, return_inverse=True)
+        node_prev[:n_act] = occasion_node[rows] = total + inverse.reshape(-1)
         levels.append((total, total + unique.shape[0]))
         pattern_parts.append(unique[:, 1])
         parent_parts.append(unique[:, 0])
         total += unique.shape[0]
-        single = counts[inverse] == 1
-        alone.append(shared[single])
-        alone_from.append(np.full(int(single.sum()), b + 1))
-        b += 1
-        shared = shared[~single & (lengths[shared] > b)]
-    seg, begin = np.concatenate(alone), np.concatenate(alone_from)
-    size = np.maximum(lengths[seg] - begin, 0)
+    size = np.maximum(lengths - depth, 0)
     within = np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size)
-    rows = np.repeat(starts[seg] + begin, size) + within
+    rows = np.repeat(starts + depth, size) + within
     ids = total + np.arange(rows.size)
     parent = ids - 1
-    parent[within == 0] = node_prev[seg[size > 0]]
+    parent[within == 0] = node_prev[size > 0]
     occasion_node[rows] = ids
     first = np.zeros(n, dtype=bool)
     first[starts] = True
