@@ -22,23 +22,34 @@ gain) does not depend on the answers, only on which items were answered at each 
 occasion of the segment. `filter_plan` groups the occasions whose segments share that
 history (the same position in the segment, the same answered items so far) into "history
 nodes", once per diary (a prefix tree of the answer patterns): a diary of complete days has
-one node per prompt position, however many days it has. Each evaluation runs the covariance
-recursion once per node, and reuses a node's result when its predicted covariance equals,
+one node per prompt position, however many days it has. The nodes are made a position at a
+time while at least 16 segments are that long; beyond, each longer segment continues as a
+chain, one node per occasion, walked a node at a time. Each evaluation runs the covariance
+recursion once per node, and reuses a node's result ("filter node") when its parent's
+filter node and answered items were seen before, or when its predicted covariance equals,
 bit for bit, that of an earlier node with the same answered items: the recursion has
 settled into a steady state or a cycle (days joined by nights repeat the same covariances
 after a few days, even with some missed prompts), and everything after it repeats exactly.
 The mean recursion
     a_t|t = a_t + P_t Z_t' F_t^-1 v_t = C_t a_t-1|t-1 + W_t' (y_t - nu),   a_t+1 = T a_t|t,
 with C_t = (I - W_t' Z_t) T and W_t = F_t^-1 Z_t P_t taken from the node, runs over all
-segments at once, one vectorised step per position in the segment. The log-likelihood is
-the plain filter's, to the last bit; the cost is linear in the number of occasions.
+segments at once, one vectorised step per position in the segment. A segment longer than
+max(64, sqrt(longest segment)) occasions is cut into pieces of that length that run side by
+side: each piece from a zero start, keeping the product of its C_t, then, once the value
+before each piece has been carried along the segment, again from that value (a two-pass
+scan of the linear recursion); one long segment of T occasions so takes O(sqrt(T))
+vectorised steps. The log-likelihood is the plain filter's: sharing and reuse change no
+number, and the pieces of a long segment change only the rounding (about 1e-15, relative).
+The cost is linear in the number of occasions and in the number of filter nodes (a few
+hundred on a long diary with missed prompts; up to one per occasion when items are skipped
+so often that the covariances never settle).
 
 Gradient. The filter is differentiated in reverse mode: the adjoints of the means run back
-per occasion, those of the covariances per node (summing the contributions of all occasions
-that share it), then through the Lyapunov equation of P_0. A reused covariance counts as
-one quantity: its derivative has converged along with it (the gradient agrees with a run
-without reuse to about 1e-15, relative). One gradient costs about two evaluations whatever
-the number of parameters.
+per occasion (in pieces like the means), those of the covariances per filter node (the sums
+over each node's occasions collected by a sparse 0/1 matrix), then through the Lyapunov
+equation of P_0. A reused covariance counts as one quantity: its derivative has converged
+along with it (the gradient agrees with a run without reuse to about 1e-15, relative). One
+gradient costs about two evaluations whatever the number of parameters.
 
 Why not statsmodels' state-space filter: it filters one series at a time (a diary of many
 short segments would take one filter run per day, each with its own Python overhead), it
