@@ -146,9 +146,9 @@ def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
     """Build the plan of `values` (n, p) (NaN = unanswered) with segment ids (n,) (a new
     segment starts where the id changes).
 
-    The history nodes are made a position at a time while at least _SIDE_BY_SIDE segments
-    (or only the first position) remain; the rest of each longer segment is a chain, made in
-    one go.
+    The history nodes are made a position at a time, vectorised over the segments, as long
+    as at least _SIDE_BY_SIDE segments reach the position (the first position always); the
+    rest of each longer segment is a chain, made in one go.
     """
     y = np.asarray(values, dtype=float)
     if y.ndim != 2:
@@ -217,8 +217,8 @@ class _Lanes:
     """A mean recursion x_t = M_t x_t-step + g_t along every segment, cut into pieces.
 
     Each segment, in the recursion's direction (step 1 forwards, -1 backwards), is cut into
-    pieces of `piece` occasions (the last one shorter): its head (first piece) and its
-    tails. heads[b] / tails[b]: the occasion at position b of each head / tail longer than b
+    pieces of one length (the last one shorter): its head (first piece) and its tails.
+    heads[b] / tails[b]: the occasion at position b of each head / tail longer than b
     (longest first). `first`: the tails that follow a head; links[i] = (tails, the tails
     they follow), for the second, third, ... tail of each segment.
     """
@@ -246,8 +246,8 @@ def _lanes(origins: np.ndarray, lengths: np.ndarray, step: int) -> _Lanes:
     tail_origin = (origins[seg] + step * offset)[order]
     links = []
     for c in range(2, int(ordinal.max(initial=1)) + 1):
-        later = np.flatnonzero(ordinal == c)
-        links.append((rank[later], rank[later - 1]))
+        tail = np.flatnonzero(ordinal == c)
+        links.append((rank[tail], rank[tail - 1]))
     return _Lanes(step=step, heads=_positions(origins, np.minimum(piece, lengths), step),
                   tails=_positions(tail_origin, size[order], step),
                   first=rank[ordinal == 1], links=tuple(links))
@@ -461,10 +461,10 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
     if not np.all(np.isfinite(logdet[:size])):
         raise EstimationError(_NOT_PD)
     pattern = pattern[:size]
-    return _Covariances(canon=np.array(canon, dtype=np.int64), parent=parent[:size], obs=plan.patterns[pattern],
-                        batches=batches, p_pred=p_pred[:size], p_filt=p_filt[:size],
-                        minv=minv[:size], zp=zp[:size], w=w[:size], zb=zb_pat[pattern],
-                        logdet=logdet[:size])
+    return _Covariances(canon=np.array(canon, dtype=np.int64), parent=parent[:size],
+                        obs=plan.patterns[pattern], batches=batches, p_pred=p_pred[:size],
+                        p_filt=p_filt[:size], minv=minv[:size], zp=zp[:size], w=w[:size],
+                        zb=zb_pat[pattern], logdet=logdet[:size])
 
 
 # ----- the mean recursions, per occasion ----------------------------------------------------
@@ -487,8 +487,8 @@ def _recursion(lanes: _Lanes, mats: np.ndarray, link: np.ndarray, x: np.ndarray)
     rows = lanes.tails[0]
     c = np.empty_like(r)
     c[lanes.first] = x[rows[lanes.first] - lanes.step]
-    for later, before in lanes.links:
-        c[later] = r[before] + np.einsum("sij,sj->si", phi[before], c[before])
+    for tail, before in lanes.links:
+        c[tail] = r[before] + np.einsum("sij,sj->si", phi[before], c[before])
     x[rows] += np.einsum("sij,sj->si", mats[link[rows]], c)
     _sweep(lanes.tails, lanes.step, mats, link, x)
 
