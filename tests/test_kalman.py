@@ -444,3 +444,40 @@ def test_chains_and_pieces_change_only_the_rounding(monkeypatch):
                  "innovation"):
         a, b = getattr(got, name), getattr(plain, name)
         assert np.allclose(a, b, rtol=1e-12, atol=1e-12 * np.abs(b).max()), name
+
+
+def test_mean_recursion_in_pieces_equals_the_plain_loop():
+    # x_t = M_t x_t-1 + g_t within each segment, forwards and backwards, against a plain loop
+    # over the occasions; segments just shorter and longer than the pieces (64 here)
+    from lagwise.models.kalman import _recursion
+    rng = np.random.default_rng(35)
+    lengths = [1000, 200, 129, 128, 65, 64, 63, 2, 1]
+    segment = np.repeat(rng.permutation(len(lengths)), lengths)
+    n = segment.size
+    plan = filter_plan(np.zeros((n, 1)), segment)
+    mats = rng.normal(size=(7, 4, 4)) * 0.3
+    node = rng.integers(0, 7, n)
+    g = rng.normal(size=(n, 4))
+    forward, backward = g.copy(), g.copy()
+    _recursion(plan.forward, mats, node, forward)
+    _recursion(plan.backward, mats.transpose(0, 2, 1), np.append(node[1:], 0), backward)
+    plain_f, plain_b = g.copy(), g.copy()
+    for t in range(1, n):
+        if segment[t] == segment[t - 1]:
+            plain_f[t] += mats[node[t]] @ plain_f[t - 1]
+    for t in range(n - 2, -1, -1):
+        if segment[t] == segment[t + 1]:
+            plain_b[t] += mats[node[t + 1]].T @ plain_b[t + 1]
+    assert plan.forward.tails and plan.forward.links
+    assert np.allclose(forward, plain_f, rtol=1e-13, atol=1e-13)
+    assert np.allclose(backward, plain_b, rtol=1e-13, atol=1e-13)
+
+
+def test_answer_patterns_match_numpys_unique_rows():
+    from lagwise.models.kalman import _unique_rows
+    observed = np.random.default_rng(36).random((500, 7)) > 0.3
+    observed[::9] = False
+    patterns, index = _unique_rows(observed)
+    ref, ref_index = np.unique(observed, axis=0, return_inverse=True)   # numpy's own
+    assert np.array_equal(patterns, ref)
+    assert np.array_equal(index, ref_index.reshape(-1))
