@@ -35,10 +35,12 @@ Exact estimator (issue 7, item 5), on diaries of 3 states x 3 items with days of
   statsmodels' fit takes about 20 s here, so its runs get no warm-up run;
 - evaluation cost: one log-likelihood and one gradient at T = 1,000, 10,000 and 100,000
   prompts (10% missed), the time per occasion and the growth exponent of the gradient time
-  between the two largest diaries, log(t_b / t_a) / log(T_b / T_a) (1 = linear);
+  between the two largest diaries, log(t_b / t_a) / log(T_b / T_a) (1 = linear), for days of
+  8 prompts and for the same diaries as one segment (row order: the states carry over every
+  night, so the filter never restarts);
 - peak memory of one exact fit of T = 100,000 prompts (10% missed), in a fresh process.
-Targets: statsmodels takes at least 5x the Lagwise time; growth exponent at most 1.1; peak
-memory under 1 GB. These are reported as PASS/MISS lines, never as timed tests.
+Targets: statsmodels takes at least 5x the Lagwise time; growth exponent at most 1.1 on both
+layouts; peak memory under 1 GB. These are reported as PASS/MISS lines, never as timed tests.
 """
 
 from __future__ import annotations
@@ -49,7 +51,7 @@ import subprocess
 import sys
 import time
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -229,6 +231,7 @@ class BenchReport:
     semopy_threads: str = "1"
     exact_speed: ExactSpeedResult | None = None
     exact_evaluations: list[ExactEvaluation] = field(default_factory=list)
+    exact_segment_evaluations: list[ExactEvaluation] = field(default_factory=list)  # one segment
     exact_memory: MemoryResult | None = None
 
 
@@ -307,9 +310,11 @@ def measure_exact_speed(case: Case = EXACT_CASE, repeats: int = 3,
 
 
 def measure_exact_evaluation(sizes: tuple[int, ...] = EXACT_SIZES, repeats: int = 3,
-                             monitor: Monitor | None = None) -> list[ExactEvaluation]:
+                             monitor: Monitor | None = None, one_segment: bool = False
+                             ) -> list[ExactEvaluation]:
     """Best seconds of the exact log-likelihood and of its gradient at the true parameters, on
-    diaries of 3 states x 3 items, days of 8 prompts, 10% missed, of each size."""
+    diaries of 3 states x 3 items, days of 8 prompts, 10% missed, of each size; with
+    `one_segment`, the same diaries as one segment (row order)."""
     from threadpoolctl import threadpool_limits
 
     from lagwise.models.exact import ExactObjective
@@ -317,9 +322,12 @@ def measure_exact_evaluation(sizes: tuple[int, ...] = EXACT_SIZES, repeats: int 
 
     out = []
     for n, occasions in enumerate(sizes):
-        checkpoint(monitor, n / len(sizes), f"Exact evaluation, T = {occasions:,}")
+        checkpoint(monitor, n / len(sizes), f"Exact evaluation, T = {occasions:,}"
+                   + (", one segment" if one_segment else ""))
         case = Case(EXACT_CASE.states, EXACT_CASE.items, occasions, EXACT_CASE.prompts)
         spec, diary = bench_diary(case, p_missed=0.1)
+        if one_segment:
+            diary = replace(diary, segment=np.zeros(diary.n_occasions, dtype=int))
         _, truth = bench_model(case.states, case.items)
         objective = ExactObjective(diary, spec, FitOptions(estimator="exact"))
         p = len(spec.items)
@@ -406,7 +414,7 @@ def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bo
     repeats = (1 if quick else 3) if repeats is None else repeats
     report = BenchReport(repeats=repeats, semopy_threads=semopy_threads)
     cases = (QUICK_SPEED_CASES if quick else SPEED_CASES) if windows else ()
-    parts = len(cases) + int(windows and memory) + (2 + int(memory) if exact else 0)
+    parts = len(cases) + int(windows and memory) + (3 + int(memory) if exact else 0)
     done = 0
     for case in cases:
         checkpoint(monitor, done / parts, f"Timing {case.label}")
@@ -421,11 +429,14 @@ def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bo
         case = QUICK_EXACT_CASE if quick else EXACT_CASE
         checkpoint(monitor, done / parts, f"Exact estimator: timing {case.label}")
         report.exact_speed = measure_exact_speed(case, repeats)
+        sizes = QUICK_EXACT_SIZES if quick else EXACT_SIZES
         checkpoint(monitor, (done + 1) / parts, "Exact estimator: evaluation cost")
-        report.exact_evaluations = measure_exact_evaluation(
-            QUICK_EXACT_SIZES if quick else EXACT_SIZES, repeats)
+        report.exact_evaluations = measure_exact_evaluation(sizes, repeats)
+        checkpoint(monitor, (done + 2) / parts, "Exact estimator: evaluation cost, one segment")
+        report.exact_segment_evaluations = measure_exact_evaluation(sizes, repeats,
+                                                                    one_segment=True)
         if memory:
-            checkpoint(monitor, (done + 2) / parts, "Exact estimator: peak memory of a long diary")
+            checkpoint(monitor, (done + 3) / parts, "Exact estimator: peak memory of a long diary")
             report.exact_memory = measure_memory(
                 QUICK_EXACT_MEMORY_CASE if quick else EXACT_MEMORY_CASE, estimator="exact")
     checkpoint(monitor, 1.0, "Done")
@@ -473,7 +484,8 @@ def format_report(report: BenchReport) -> str:
     if report.memory is not None:
         lines.append("")
         _memory_lines(report.memory, lines, verdicts)
-    if report.exact_speed is not None or report.exact_evaluations or report.exact_memory:
+    if (report.exact_speed is not None or report.exact_evaluations
+            or report.exact_segment_evaluations or report.exact_memory):
         lines += ["", "Exact estimator (Kalman filter)"]
         _exact_lines(report, lines, verdicts)
     lines += [""] + verdicts
@@ -518,29 +530,39 @@ def _exact_lines(report: BenchReport, lines: list[str], verdicts: list[str]) -> 
         verdicts.append(f"{_verdict(r.ratio >= EXACT_SPEED_TARGET)}  exact, {r.case.label}: "
                         f"statsmodels DynamicFactor (one factor) takes {r.ratio:.1f}x the Lagwise "
                         f"exact time (target at least {EXACT_SPEED_TARGET:g}x)")
-    evals = report.exact_evaluations
-    if evals:
-        head = (f"{'prompts T':>12}{'log-lik ms':>13}{'gradient ms':>13}"
-                f"{'us/prompt, log-lik':>21}{'us/prompt, gradient':>22}")
-        lines += ["", f"Exact evaluation cost, {EXACT_CASE.states} states x {EXACT_CASE.items} "
-                      f"items, days of {EXACT_CASE.prompts}, 10% missed prompts (best of "
-                      f"{max(report.repeats, 5)}, after a warm-up call):", head, "-" * len(head)]
-        for e in evals:
-            lines.append(f"{e.occasions:>12,}{e.loglik_seconds * 1e3:>13.2f}"
-                         f"{e.gradient_seconds * 1e3:>13.2f}"
-                         f"{e.loglik_seconds / e.occasions * 1e6:>21.2f}"
-                         f"{e.gradient_seconds / e.occasions * 1e6:>22.2f}")
-        b = growth_exponent(evals)
-        if b is not None:
-            lines.append(f"gradient time grows as T^{b:.2f} between the two largest diaries "
-                         "(1 = linear)")
-            verdicts.append(f"{_verdict(b <= EXACT_GROWTH_TARGET)}  exact evaluation: the gradient "
-                            f"time grows as T^{b:.2f} from T = {evals[-2].occasions:,} to "
-                            f"{evals[-1].occasions:,} (target: linear, exponent at most "
-                            f"{EXACT_GROWTH_TARGET:g})")
+    days = f"days of {EXACT_CASE.prompts}"
+    layouts = ((report.exact_evaluations, days, days),
+               (report.exact_segment_evaluations, "the same diaries as one segment (row order)",
+                "one segment"))
+    for evals, layout, short in layouts:
+        if evals:
+            _evaluation_lines(evals, layout, short, max(report.repeats, 5), lines, verdicts)
     if report.exact_memory is not None:
         lines.append("")
         _memory_lines(report.exact_memory, lines, verdicts)
+
+
+def _evaluation_lines(evals: list[ExactEvaluation], layout: str, short: str, runs: int,
+                      lines: list[str], verdicts: list[str]) -> None:
+    """The evaluation costs on one layout of the diaries, and the verdict on their growth."""
+    head = (f"{'prompts T':>12}{'log-lik ms':>13}{'gradient ms':>13}"
+            f"{'us/prompt, log-lik':>21}{'us/prompt, gradient':>22}")
+    lines += ["", f"Exact evaluation cost, {EXACT_CASE.states} states x {EXACT_CASE.items} "
+                  f"items, {layout}, 10% missed prompts (best of {runs}, after a warm-up call):",
+              head, "-" * len(head)]
+    for e in evals:
+        lines.append(f"{e.occasions:>12,}{e.loglik_seconds * 1e3:>13.2f}"
+                     f"{e.gradient_seconds * 1e3:>13.2f}"
+                     f"{e.loglik_seconds / e.occasions * 1e6:>21.2f}"
+                     f"{e.gradient_seconds / e.occasions * 1e6:>22.2f}")
+    b = growth_exponent(evals)
+    if b is not None:
+        lines.append(f"gradient time grows as T^{b:.2f} between the two largest diaries "
+                     "(1 = linear)")
+        verdicts.append(f"{_verdict(b <= EXACT_GROWTH_TARGET)}  exact evaluation, {short}: the "
+                        f"gradient time grows as T^{b:.2f} from T = {evals[-2].occasions:,} to "
+                        f"{evals[-1].occasions:,} (target: linear, exponent at most "
+                        f"{EXACT_GROWTH_TARGET:g})")
 
 
 def _main(argv: list[str]) -> int:

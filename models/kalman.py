@@ -22,23 +22,34 @@ gain) does not depend on the answers, only on which items were answered at each 
 occasion of the segment. `filter_plan` groups the occasions whose segments share that
 history (the same position in the segment, the same answered items so far) into "history
 nodes", once per diary (a prefix tree of the answer patterns): a diary of complete days has
-one node per prompt position, however many days it has. Each evaluation runs the covariance
-recursion once per node, and reuses a node's result when its predicted covariance equals,
+one node per prompt position, however many days it has. The nodes are made a position at a
+time while at least 16 segments are that long; beyond, each longer segment continues as a
+chain, one node per occasion, walked a node at a time. Each evaluation runs the covariance
+recursion once per node, and reuses a node's result ("filter node") when its parent's
+filter node and answered items were seen before, or when its predicted covariance equals,
 bit for bit, that of an earlier node with the same answered items: the recursion has
 settled into a steady state or a cycle (days joined by nights repeat the same covariances
 after a few days, even with some missed prompts), and everything after it repeats exactly.
 The mean recursion
     a_t|t = a_t + P_t Z_t' F_t^-1 v_t = C_t a_t-1|t-1 + W_t' (y_t - nu),   a_t+1 = T a_t|t,
 with C_t = (I - W_t' Z_t) T and W_t = F_t^-1 Z_t P_t taken from the node, runs over all
-segments at once, one vectorised step per position in the segment. The log-likelihood is
-the plain filter's, to the last bit; the cost is linear in the number of occasions.
+segments at once, one vectorised step per position in the segment. A segment longer than
+max(64, sqrt(longest segment)) occasions is cut into pieces of that length that run side by
+side: each piece from a zero start, keeping the product of its C_t, then, once the value
+before each piece has been carried along the segment, again from that value (a two-pass
+scan of the linear recursion); one long segment of T occasions so takes O(sqrt(T))
+vectorised steps. The log-likelihood is the plain filter's: sharing and reuse change no
+number, and the pieces of a long segment change only the rounding (about 1e-15, relative).
+The cost is linear in the number of occasions and in the number of filter nodes (a few
+hundred on a long diary with missed prompts; up to one per occasion when items are skipped
+so often that the covariances never settle).
 
 Gradient. The filter is differentiated in reverse mode: the adjoints of the means run back
-per occasion, those of the covariances per node (summing the contributions of all occasions
-that share it), then through the Lyapunov equation of P_0. A reused covariance counts as
-one quantity: its derivative has converged along with it (the gradient agrees with a run
-without reuse to about 1e-15, relative). One gradient costs about two evaluations whatever
-the number of parameters.
+per occasion (in pieces like the means), those of the covariances per filter node (the sums
+over each node's occasions collected by a sparse 0/1 matrix), then through the Lyapunov
+equation of P_0. A reused covariance counts as one quantity: its derivative has converged
+along with it (the gradient agrees with a run without reuse to about 1e-15, relative). One
+gradient costs about two evaluations whatever the number of parameters.
 
 Why not statsmodels' state-space filter: it filters one series at a time (a diary of many
 short segments would take one filter run per day, each with its own Python overhead), it
@@ -49,10 +60,12 @@ check for this one (tests/test_kalman.py).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import sparse
 from scipy.linalg import lapack
 
 from lagwise.models.errors import EstimationError
@@ -60,6 +73,8 @@ from lagwise.models.lyapunov import companion, companion_covariance, solve_lyapu
 
 _LOG_2PI = float(np.log(2.0 * np.pi))
 _CHUNK = 4096   # occasions per block in per-occasion products (bounds temporary memory)
+_PIECE = 64     # segments longer than this are cut into pieces for the mean recursions
+_SIDE_BY_SIDE = 16   # fewest segments whose history nodes are made together, a position at a time
 
 
 @dataclass(frozen=True, eq=False)
@@ -99,36 +114,28 @@ class KalmanGradient:
 
 # ----- the plan: answer histories shared by occasions ---------------------------------------
 @dataclass(frozen=True, eq=False)
-class _Step:
-    """The occasions at one position b (0-based) within their segments."""
-
-    b: int
-    rows: np.ndarray     # (S,) occasions, one per segment at least b + 1 long (longest first)
-    node: np.ndarray     # (S,) history node of each occasion
-    lo: int              # this position's history nodes are lo .. hi - 1
-    hi: int
-    n_next: int          # the first n_next segments continue to position b + 1
-    row: int             # the occasion when there is only one (S = 1), else -1
-
-
-@dataclass(frozen=True, eq=False)
 class FilterPlan:
     """Where the diary's answers are, organised for the filter (see the module docstring).
 
     Depends only on which values are missing and on the segments, so it is built once per
     diary and reused for every evaluation. History node j: the answered items
     `patterns[node_pattern[j]]`, the node of the previous occasion `node_parent[j]` (-1 at a
-    segment start); `occasion_node` (n,) gives each occasion's node.
+    segment start); `occasion_node` (n,) gives each occasion's node. The nodes of position b
+    are levels[b] = (lo, hi) for the first positions; those from levels[-1][1] on are chains,
+    the rest of each longer segment: one node per occasion, each after its parent.
     """
 
     observed: np.ndarray
-    steps: tuple[_Step, ...]
     patterns: np.ndarray          # (distinct answer patterns, p) bool
     node_pattern: np.ndarray
     node_parent: np.ndarray
     occasion_node: np.ndarray
-    node_order: np.ndarray        # occasions sorted by node
+    levels: tuple[tuple[int, int], ...]
+    starts: np.ndarray            # segments, longest first: first occasion
+    lengths: np.ndarray           # and number of occasions
     later: np.ndarray             # occasions that are not the first of their segment
+    forward: _Lanes               # the mean recursion, forwards
+    backward: _Lanes              # and backwards (the adjoints of the means)
 
     @property
     def n_nodes(self) -> int:
@@ -137,47 +144,62 @@ class FilterPlan:
 
 def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
     """Build the plan of `values` (n, p) (NaN = unanswered) with segment ids (n,) (a new
-    segment starts where the id changes)."""
+    segment starts where the id changes).
+
+    The history nodes are made a position at a time, vectorised over the segments, as long
+    as at least _SIDE_BY_SIDE segments reach the position (the first position always); the
+    rest of each longer segment is a chain, made in one go.
+    """
     y = np.asarray(values, dtype=float)
     if y.ndim != 2:
         raise EstimationError("The data must be a table of occasions by items.")
     n = y.shape[0]
     starts, lengths = _layout(segment, n)
     observed = ~np.isnan(y)
-    patterns, pattern_of = np.unique(observed, axis=0, return_inverse=True)
-    pattern_of = pattern_of.reshape(-1)
-    node_prev = np.zeros(starts.size, dtype=np.int64)
+    patterns, pattern_of = _unique_rows(observed)
+    n_pat = patterns.shape[0]
+    node_prev = np.full(starts.size, -1, dtype=np.int64)
     occasion_node = np.empty(n, dtype=np.int64)
-    steps, pattern_parts, parent_parts = [], [], []
+    levels, pattern_parts, parent_parts = [], [], []
+    depth = int(lengths[_SIDE_BY_SIDE - 1]) if lengths.size >= _SIDE_BY_SIDE else 1
     total = 0
-    for b in range(int(lengths[0])):
+    for b in range(depth):
         n_act = _n_active(lengths, b)
         rows = starts[:n_act] + b
-        parent = node_prev[:n_act].copy() if b else np.full(n_act, -1, dtype=np.int64)
-        if n_act == 1:
-            inverse, node_pat, node_par = np.zeros(1, dtype=np.int64), pattern_of[rows], parent
-        else:
-            key = np.stack([parent, pattern_of[rows]], axis=1)
-            unique, inverse = np.unique(key, axis=0, return_inverse=True)
-            inverse = inverse.reshape(-1)
-            node_pat, node_par = unique[:, 1], unique[:, 0]
-        node = total + inverse
-        steps.append(_Step(b=b, rows=rows, node=node, lo=total, hi=total + node_pat.size,
-                           n_next=_n_active(lengths, b + 1),
-                           row=int(rows[0]) if n_act == 1 else -1))
-        pattern_parts.append(node_pat)
-        parent_parts.append(node_par)
-        node_prev[:n_act] = node
-        occasion_node[rows] = node
-        total += node_pat.size
-    node_pattern = np.concatenate(pattern_parts)
+        key = (node_prev[:n_act] + 1) * n_pat + pattern_of[rows]    # (parent, answered items)
+        unique, inverse = np.unique(key, return_inverse=True)
+        node_prev[:n_act] = occasion_node[rows] = total + inverse
+        levels.append((total, total + unique.size))
+        pattern_parts.append(unique % n_pat)
+        parent_parts.append(unique // n_pat - 1)
+        total += unique.size
+    size = np.maximum(lengths - depth, 0)
+    within = np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size)
+    rows = np.repeat(starts + depth, size) + within
+    ids = total + np.arange(rows.size)
+    parent = ids - 1
+    parent[within == 0] = node_prev[size > 0]
+    occasion_node[rows] = ids
     first = np.zeros(n, dtype=bool)
     first[starts] = True
-    return FilterPlan(observed=observed, steps=tuple(steps), patterns=patterns,
-                      node_pattern=node_pattern, node_parent=np.concatenate(parent_parts),
-                      occasion_node=occasion_node,
-                      node_order=np.argsort(occasion_node, kind="stable"),
-                      later=np.flatnonzero(~first))
+    return FilterPlan(observed=observed, patterns=patterns,
+                      node_pattern=np.concatenate(pattern_parts + [pattern_of[rows]]),
+                      node_parent=np.concatenate(parent_parts + [parent]),
+                      occasion_node=occasion_node, levels=tuple(levels), starts=starts,
+                      lengths=lengths, later=np.flatnonzero(~first),
+                      forward=_lanes(starts, lengths, 1),
+                      backward=_lanes(starts + lengths - 1, lengths, -1))
+
+
+def _unique_rows(observed: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct rows of a bool table, sorted, and the index of each row among them (as
+    np.unique(axis=0), by a stable lexicographic sort of the bool columns: linear in rows)."""
+    order = np.lexsort(observed.T[::-1])
+    ranked = observed[order]
+    new = np.r_[True, np.any(ranked[1:] != ranked[:-1], axis=1)]
+    index = np.empty(observed.shape[0], dtype=np.int64)
+    index[order] = np.cumsum(new) - 1
+    return ranked[new], index
 
 
 def _layout(segment: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
@@ -199,6 +221,54 @@ def _layout(segment: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
 def _n_active(lengths: np.ndarray, b: int) -> int:
     """Number of segments longer than b (lengths sorted in decreasing order)."""
     return int(np.searchsorted(-lengths, -b, side="left"))
+
+
+@dataclass(frozen=True, eq=False)
+class _Lanes:
+    """A mean recursion x_t = M_t x_t-step + g_t along every segment, cut into pieces.
+
+    Each segment, in the recursion's direction (step 1 forwards, -1 backwards), is cut into
+    pieces of one length (the last one shorter): its head (first piece) and its tails.
+    heads[b] / tails[b]: the occasion at position b of each head / tail longer than b
+    (longest first). `first`: the tails that follow a head; links[i] = (tails, the tails
+    they follow), for the second, third, ... tail of each segment.
+    """
+
+    step: int
+    heads: tuple[np.ndarray, ...]
+    tails: tuple[np.ndarray, ...]
+    first: np.ndarray
+    links: tuple[tuple[np.ndarray, np.ndarray], ...]
+
+
+def _lanes(origins: np.ndarray, lengths: np.ndarray, step: int) -> _Lanes:
+    """Lanes of the segments that begin (in the recursion's direction) at `origins`, with
+    `lengths` (decreasing); pieces of max(_PIECE, sqrt(longest)) occasions, so that the
+    recursion takes O(sqrt(T)) vectorised steps on one long segment of T occasions."""
+    piece = max(_PIECE, math.isqrt(int(lengths[0])))
+    cuts = (lengths - 1) // piece                      # tails per segment
+    seg = np.repeat(np.arange(lengths.size), cuts)     # the tails, segment by segment,
+    ordinal = np.arange(seg.size) - np.repeat(np.cumsum(cuts) - cuts, cuts) + 1   # 1, 2, ...
+    offset = ordinal * piece
+    size = np.minimum(piece, lengths[seg] - offset)
+    order = np.argsort(-size, kind="stable")           # longest first
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.size)
+    tail_origin = (origins[seg] + step * offset)[order]
+    links = []
+    for c in range(2, int(ordinal.max(initial=1)) + 1):
+        tail = np.flatnonzero(ordinal == c)
+        links.append((rank[tail], rank[tail - 1]))
+    return _Lanes(step=step, heads=_positions(origins, np.minimum(piece, lengths), step),
+                  tails=_positions(tail_origin, size[order], step),
+                  first=rank[ordinal == 1], links=tuple(links))
+
+
+def _positions(origins: np.ndarray, sizes: np.ndarray, step: int) -> tuple[np.ndarray, ...]:
+    """Occasions at each position b of the pieces (sizes decreasing) longer than b."""
+    if not sizes.size:
+        return ()
+    return tuple(origins[:_n_active(sizes, b)] + step * b for b in range(int(sizes[0])))
 
 
 # ----- the system matrices ------------------------------------------------------------------
@@ -266,16 +336,10 @@ def _apply(mats: np.ndarray, node: np.ndarray, vecs: np.ndarray, transpose: bool
     return out
 
 
-def _node_outer_sums(plan: FilterPlan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
-    """(history nodes, a, c): sum over each node's occasions of x_t y_t'."""
-    out = np.zeros((plan.n_nodes, x.shape[1], y.shape[1]))
-    order = plan.node_order
-    for lo in range(0, order.size, _CHUNK):
-        idx = order[lo:lo + _CHUNK]
-        nodes = plan.occasion_node[idx]
-        first = np.flatnonzero(np.r_[True, nodes[1:] != nodes[:-1]])
-        out[nodes[first]] += np.add.reduceat(x[idx][:, :, None] * y[idx][:, None, :], first, axis=0)
-    return out
+def _node_sums(pick: sparse.csc_array, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """(filter nodes, a, c): the sum over each node's occasions of x_t y_t', as the 0/1
+    (filter node, occasion) matrix `pick` times the products, one column of x at a time."""
+    return np.stack([pick @ (x[:, i, None] * y) for i in range(x.shape[1])], axis=1)
 
 
 # ----- the covariance recursion, per node ---------------------------------------------------
@@ -309,7 +373,8 @@ _NOT_PD = "The predicted covariance of the answers is not positive definite at s
 
 
 def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
-    """Run the covariance recursion over the history nodes of the plan, step by step.
+    """Run the covariance recursion over the history nodes of the plan: a level at a time
+    (vectorised), then along the chains a node at a time.
 
     A history node whose (parent's filter node, answered items) was seen before reuses that
     filter node; so does one whose predicted covariance equals, bit for bit, that of an
@@ -319,7 +384,7 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
     z, t, q = sys.z, sys.t, sys.q
     p, m = z.shape
     cap = plan.n_nodes
-    canon = np.empty(cap, dtype=np.int64)
+    canon = [0] * cap
     parent, pattern = np.empty(cap, dtype=np.int64), np.empty(cap, dtype=np.int64)
     p_pred, p_filt = np.empty((cap, m, m)), np.empty((cap, m, m))
     minv, zp, w = np.empty((cap, p, p)), np.empty((cap, p, m)), np.empty((cap, p, m))
@@ -333,36 +398,35 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
     size = 0
     rhs = np.zeros((p, m + p))
     rhs[:, m:] = np.eye(p)
-    for st in plan.steps:
-        if st.hi - st.lo == 1:      # one node: plain LAPACK (numpy's overhead dominates here)
-            j = st.lo
-            pat = node_pattern[j]
-            cp = int(canon[node_parent[j]]) if st.b else -1
-            hit = edges.get((cp, pat))
-            if hit is None:
-                pm = sys.p0 if cp < 0 else np.dot(np.dot(t, p_filt[cp]), t.T) + q
-                hit = seen.setdefault((pat, pm.tobytes()), size)
-                if hit == size:
-                    zb, zpb = zb_pat[pat], np.dot(zb_pat[pat], pm)
-                    f = np.dot(zpb, zb.T)
-                    f.flat[::p + 1] += hb_pat[pat]
-                    rhs[:, :m] = zpb
-                    chol, x, info = lapack.dposv(f, rhs)
-                    if info != 0:
-                        raise EstimationError(_NOT_PD)
-                    pf = pm - np.dot(zpb.T, x[:, :m])
-                    p_pred[size], p_filt[size] = pm, (pf + pf.T) * 0.5
-                    zp[size], w[size], minv[size] = zpb, x[:, :m], x[:, m:]
-                    logdet[size] = 2.0 * np.log(np.diagonal(chol)).sum()
-                    parent[size], pattern[size] = cp, pat
-                    batches.append((size, size + 1))
-                    size += 1
-                edges[(cp, pat)] = hit
-            canon[j] = hit
-            continue
+
+    def one(cp: int, pat: int) -> int:
+        """The filter node after filter node cp with the answered items pat (plain LAPACK:
+        numpy's overhead would dominate for a single node)."""
+        nonlocal size
+        pm = np.dot(np.dot(t, p_filt[cp]), t.T) + q
+        hit = edges[(cp, pat)] = seen.setdefault((pat, pm.tobytes()), size)
+        if hit < size:
+            return hit
+        zb, zpb = zb_pat[pat], np.dot(zb_pat[pat], pm)
+        f = np.dot(zpb, zb.T)
+        f.flat[::p + 1] += hb_pat[pat]
+        rhs[:, :m] = zpb
+        chol, x, info = lapack.dposv(f, rhs)
+        if info != 0:
+            raise EstimationError(_NOT_PD)
+        pf = pm - np.dot(zpb.T, x[:, :m])
+        p_pred[size], p_filt[size] = pm, (pf + pf.T) * 0.5
+        zp[size], w[size], minv[size] = zpb, x[:, :m], x[:, m:]
+        logdet[size] = 2.0 * np.log(np.diagonal(chol)).sum()
+        parent[size], pattern[size] = cp, pat
+        batches.append((size, size + 1))
+        size += 1
+        return hit
+
+    for b, (first, last) in enumerate(plan.levels):
         fresh, fresh_parent = [], []
-        for j in range(st.lo, st.hi):
-            cp = int(canon[node_parent[j]]) if st.b else -1
+        for j in range(first, last):
+            cp = canon[node_parent[j]] if b else -1
             hit = edges.get((cp, node_pattern[j]))
             if hit is None:
                 fresh.append(j)
@@ -371,7 +435,7 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
                 canon[j] = hit
         if not fresh:
             continue
-        if st.b == 0:
+        if b == 0:
             pms = np.broadcast_to(sys.p0, (len(fresh), m, m))
         else:
             pms = t @ p_filt[fresh_parent] @ t.T + q
@@ -401,16 +465,55 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
         p_filt[lo:hi] = (pf + pf.transpose(0, 2, 1)) * 0.5
         zp[lo:hi], w[lo:hi], minv[lo:hi] = zpb, wb, mi
         logdet[lo:hi] = 2.0 * np.log(np.diagonal(chol, axis1=1, axis2=2)).sum(axis=1)
+    for j in range(plan.levels[-1][1], cap):
+        cp, pat = canon[node_parent[j]], node_pattern[j]
+        hit = edges.get((cp, pat))
+        canon[j] = one(cp, pat) if hit is None else hit
     if not np.all(np.isfinite(logdet[:size])):
         raise EstimationError(_NOT_PD)
     pattern = pattern[:size]
-    return _Covariances(canon=canon, parent=parent[:size], obs=plan.patterns[pattern],
-                        batches=batches, p_pred=p_pred[:size], p_filt=p_filt[:size],
-                        minv=minv[:size], zp=zp[:size], w=w[:size], zb=zb_pat[pattern],
-                        logdet=logdet[:size])
+    return _Covariances(canon=np.array(canon, dtype=np.int64), parent=parent[:size],
+                        obs=plan.patterns[pattern], batches=batches, p_pred=p_pred[:size],
+                        p_filt=p_filt[:size], minv=minv[:size], zp=zp[:size], w=w[:size],
+                        zb=zb_pat[pattern], logdet=logdet[:size])
 
 
-# ----- the mean recursion, per occasion ------------------------------------------------------
+# ----- the mean recursions, per occasion ----------------------------------------------------
+def _recursion(lanes: _Lanes, mats: np.ndarray, link: np.ndarray, x: np.ndarray) -> None:
+    """x_t += M_t x_t-step along every segment, in place (x holds g_t), M_t = mats[link[t]].
+
+    The heads run as they are. Each tail runs first from a zero start, keeping its end value r
+    and the product Phi of its M_t; the value c before each tail then follows along the
+    segment, c' = r + Phi c, one piece at a time; then each tail runs again from its c.
+    """
+    _sweep(lanes.heads, lanes.step, mats, link, x)
+    if not lanes.tails:
+        return
+    rows = lanes.tails[0]
+    r, phi = x[rows], mats[link[rows]]
+    for rows in lanes.tails[1:]:
+        s, mt = rows.size, mats[link[rows]]
+        r[:s] = np.einsum("sij,sj->si", mt, r[:s]) + x[rows]
+        phi[:s] = mt @ phi[:s]
+    rows = lanes.tails[0]
+    c = np.empty_like(r)
+    c[lanes.first] = x[rows[lanes.first] - lanes.step]
+    for tail, before in lanes.links:
+        c[tail] = r[before] + np.einsum("sij,sj->si", phi[before], c[before])
+    x[rows] += np.einsum("sij,sj->si", mats[link[rows]], c)
+    _sweep(lanes.tails, lanes.step, mats, link, x)
+
+
+def _sweep(positions: tuple[np.ndarray, ...], step: int, mats: np.ndarray, link: np.ndarray,
+           x: np.ndarray) -> None:
+    """x_t += M_t x_t-step for the occasions at positions 1, 2, ... of pieces."""
+    for rows in positions[1:]:
+        if rows.size == 1:
+            t = int(rows[0])
+            x[t] += np.dot(mats[link[t]], x[t - step])
+        else:
+            x[rows] += np.einsum("sij,sj->si", mats[link[rows]], x[rows - step])
+
 @dataclass(frozen=True, eq=False)
 class _Pass:
     """One run of the filter."""
@@ -438,15 +541,7 @@ def _run(plan: FilterPlan, values, intercepts, sys: _System) -> _Pass:
     node = cov.canon[plan.occasion_node]
     closed = (np.eye(m) - cov.w.transpose(0, 2, 1) @ cov.zb) @ t
     a_filt = _apply(cov.w, node, centred, transpose=True)   # W' (y - nu): the part without a_t
-    canon = cov.canon
-    for st in plan.steps[1:]:
-        rows = st.rows
-        if st.row >= 0:
-            a_filt[st.row] += np.dot(closed[canon[st.lo]], a_filt[st.row - 1])
-        elif st.hi - st.lo == 1:
-            a_filt[rows] += a_filt[rows - 1] @ closed[canon[st.lo]].T
-        else:
-            a_filt[rows] += np.einsum("sij,sj->si", closed[canon[st.node]], a_filt[rows - 1])
+    _recursion(plan.forward, closed, node, a_filt)
     a_pred = np.zeros((n, m))
     a_pred[plan.later] = a_filt[plan.later - 1] @ t.T
     r = centred - np.where(observed, a_pred @ sys.z.T, 0.0)
@@ -496,8 +591,8 @@ def kalman_smooth(values: np.ndarray, segment: np.ndarray, intercepts: np.ndarra
     # T' P_t+1|t^+ per filter node; P_pred may be singular (exact items): pseudo-inverse
     tpinv = sys.t.T @ np.linalg.pinv(cov.p_pred, hermitian=True)
     a_s, p_s = run.a_filt.copy(), cov.p_filt[node]
-    for st in reversed(plan.steps[:-1]):
-        rows = st.rows[:st.n_next]
+    for b in reversed(range(int(plan.lengths[0]) - 1)):
+        rows = plan.starts[:_n_active(plan.lengths, b + 1)] + b
         nxt = rows + 1
         j = cov.p_filt[node[rows]] @ tpinv[node[nxt]]
         a_s[rows] += np.einsum("smn,sn->sm", j, a_s[nxt] - run.a_pred[nxt])
@@ -543,21 +638,8 @@ def kalman_gradient(values: np.ndarray, segment: np.ndarray, intercepts: np.ndar
     zu = run.u @ z
     tzu = zu @ t
     afbar = np.zeros((n, m))                     # adjoint of a_t|t
-    steps = plan.steps
-    for st in reversed(steps[:-1]):
-        if not st.n_next:
-            continue
-        after = steps[st.b + 1]
-        if after.row >= 0:
-            r = after.row
-            afbar[r - 1] = np.dot(afbar[r], closed[cov.canon[after.lo]]) + tzu[r]
-            continue
-        rows = st.rows[:st.n_next]
-        nxt = rows + 1
-        if after.hi - after.lo == 1:
-            afbar[rows] = afbar[nxt] @ closed[cov.canon[after.lo]] + tzu[nxt]
-        else:
-            afbar[rows] = np.einsum("sji,sj->si", closed[node[nxt]], afbar[nxt]) + tzu[nxt]
+    afbar[plan.later - 1] = tzu[plan.later]
+    _recursion(plan.backward, closed.transpose(0, 2, 1), np.append(node[1:], 0), afbar)
     mu = _apply(cov.w, node, afbar)              # M ZP abar_t|t
     rb = np.where(observed, mu - run.u, 0.0)     # adjoint of r
     abar = afbar - rb @ z                        # adjoint of a_t
@@ -566,9 +648,9 @@ def kalman_gradient(values: np.ndarray, segment: np.ndarray, intercepts: np.ndar
     tbar = abar[plan.later].T @ run.a_filt[plan.later - 1]
     # covariances: the sums over each filter node's occasions of the adjoints of ZP and F
     size = cov.size
-    s_zp, s_f = np.zeros((size, p, m)), np.zeros((size, p, p))
-    np.add.at(s_zp, cov.canon, _node_outer_sums(plan, run.u, afbar))
-    np.add.at(s_f, cov.canon, _node_outer_sums(plan, 0.5 * run.u - mu, run.u))
+    pick = sparse.csc_array((np.ones(n), node, np.arange(n + 1)), shape=(size, n))
+    s_zp = _node_sums(pick, run.u, afbar)
+    s_f = _node_sums(pick, 0.5 * run.u - mu, run.u)
     s_f -= 0.5 * np.bincount(node, minlength=size)[:, None, None] * cov.minv
     zb, w = cov.zb, cov.w
     e = _sym(zb.transpose(0, 2, 1) @ (s_f @ zb + s_zp))

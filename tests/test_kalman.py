@@ -373,3 +373,111 @@ def test_a_plan_built_for_other_data_is_refused():
     y[2, 1] = np.nan
     with pytest.raises(EstimationError, match="other data"):
         kalman_loglik(y, np.zeros(8), NU, LAM1, THETA, [np.array([[0.5]])], np.eye(1), plan=plan)
+
+
+# --------------------------------------------------------------------------- long segments
+# A long segment (a diary in row order, or days joined by nights) is a chain of history nodes,
+# and its means run in pieces side by side; long segments of different lengths share the
+# pieces' steps. Checked against statsmodels' DynamicFactor (an independent filter and
+# smoother) segment by segment, and against the same filter with neither chains nor pieces
+# (the history nodes made a position at a time, the means an occasion at a time).
+def _long(lengths: list[int], seed: int, skipped: float = 0.02) -> tuple[np.ndarray, np.ndarray]:
+    """Segments of the given lengths, 10% missed prompts and some skipped items."""
+    rng = np.random.default_rng(seed)
+    n = sum(lengths)
+    y = rng.normal(size=(n, 3)) * 1.3 + NU_SM
+    y[rng.random(n) < 0.1] = np.nan
+    y[rng.random((n, 3)) < skipped] = np.nan
+    return y, np.repeat(np.arange(len(lengths)), lengths)
+
+
+@pytest.mark.parametrize("lengths", [[1200], [500, 200, 130, 65, 64, 8, 2]])
+def test_long_segments_match_statsmodels_segment_by_segment(lengths):
+    y, segment = _long(lengths, seed=31)
+    st = kalman_smooth(y, segment, **ARGS_SM)
+    total = 0.0
+    for s in range(len(lengths)):
+        part = segment == s
+        ref = _statsmodels(y[part])
+        total += ref.llf
+        assert np.allclose(st.filtered_mean[part], ref.filtered_state.T, atol=1e-10)
+        assert np.allclose(st.smoothed_mean[part], ref.smoothed_state.T, atol=1e-10)
+        assert np.allclose(st.smoothed_cov[part], ref.smoothed_state_cov.transpose(2, 0, 1),
+                           atol=1e-10)
+    assert st.loglik == pytest.approx(total, rel=1e-12)
+    assert kalman_gradient(y, segment, **ARGS_SM).loglik == pytest.approx(total, rel=1e-12)
+
+
+def test_a_long_segment_with_missed_prompts_reuses_its_covariances():
+    # missed prompts only: after each one the covariances settle, bit for bit, on those of
+    # the complete stretch, so the 3,000 occasions share a few hundred filter nodes
+    from lagwise.models.kalman import _covariances, _system
+    y, segment = _long([3000], seed=32, skipped=0.0)
+    sys = _system(LAM_SM, THETA_SM, [B_SM], np.eye(2), None)
+    assert _covariances(filter_plan(y, segment), sys).size < 3000 // 5
+
+
+def test_gradient_on_a_long_segment_matches_numerical_differences():
+    lam, lagged, psi, d = CASES["2 states, lag 1, autocorrelated unique part"]
+    rng = np.random.default_rng(34)
+    y = rng.normal(size=(400, 3)) * 1.4 + NU
+    y[rng.random(400) < 0.1] = np.nan
+    y[rng.random((400, 3)) < 0.03] = np.nan
+    _flat_gradient_check(lam, lagged, psi, d, THETA, y, np.zeros(400, int))
+
+
+def test_chains_and_pieces_change_only_the_rounding(monkeypatch):
+    from lagwise.models import kalman
+
+    y, segment = _long([2500, 900, 70] + [6] * 16, seed=33)
+    d = np.array([0.3, 0.0, -0.2])
+    plan = filter_plan(y, segment)
+    assert plan.forward.tails and plan.n_nodes > plan.levels[-1][1]    # pieces and chains
+    got = kalman_gradient(y, segment, unique_autocorrelation=d, plan=plan, **ARGS_SM)
+    monkeypatch.setattr(kalman, "_SIDE_BY_SIDE", 1)    # every position made side by side
+    monkeypatch.setattr(kalman, "_PIECE", 10 ** 9)     # no segment cut into pieces
+    plan = filter_plan(y, segment)
+    assert not plan.forward.tails and plan.n_nodes == plan.levels[-1][1]
+    plain = kalman_gradient(y, segment, unique_autocorrelation=d, plan=plan, **ARGS_SM)
+    assert got.loglik == pytest.approx(plain.loglik, rel=1e-12)
+    for name in ("intercepts", "loadings", "unique", "unique_autocorrelation", "lagged",
+                 "innovation"):
+        a, b = getattr(got, name), getattr(plain, name)
+        assert np.allclose(a, b, rtol=1e-12, atol=1e-12 * np.abs(b).max()), name
+
+
+def test_mean_recursion_in_pieces_equals_the_plain_loop():
+    # x_t = M_t x_t-1 + g_t within each segment, forwards and backwards, against a plain loop
+    # over the occasions; segments just shorter and longer than the pieces (64 here)
+    from lagwise.models.kalman import _recursion
+    rng = np.random.default_rng(35)
+    lengths = [1000, 200, 129, 128, 65, 64, 63, 2, 1]
+    segment = np.repeat(rng.permutation(len(lengths)), lengths)
+    n = segment.size
+    plan = filter_plan(np.zeros((n, 1)), segment)
+    mats = rng.normal(size=(7, 4, 4)) * 0.3
+    node = rng.integers(0, 7, n)
+    g = rng.normal(size=(n, 4))
+    forward, backward = g.copy(), g.copy()
+    _recursion(plan.forward, mats, node, forward)
+    _recursion(plan.backward, mats.transpose(0, 2, 1), np.append(node[1:], 0), backward)
+    plain_f, plain_b = g.copy(), g.copy()
+    for t in range(1, n):
+        if segment[t] == segment[t - 1]:
+            plain_f[t] += mats[node[t]] @ plain_f[t - 1]
+    for t in range(n - 2, -1, -1):
+        if segment[t] == segment[t + 1]:
+            plain_b[t] += mats[node[t + 1]].T @ plain_b[t + 1]
+    assert plan.forward.tails and plan.forward.links
+    assert np.allclose(forward, plain_f, rtol=1e-13, atol=1e-13)
+    assert np.allclose(backward, plain_b, rtol=1e-13, atol=1e-13)
+
+
+def test_answer_patterns_match_numpys_unique_rows():
+    from lagwise.models.kalman import _unique_rows
+    observed = np.random.default_rng(36).random((500, 7)) > 0.3
+    observed[::9] = False
+    patterns, index = _unique_rows(observed)
+    ref, ref_index = np.unique(observed, axis=0, return_inverse=True)   # numpy's own
+    assert np.array_equal(patterns, ref)
+    assert np.array_equal(index, ref_index.reshape(-1))

@@ -55,9 +55,12 @@ def test_exact_speed_against_statsmodels():
     assert np.isfinite(result.ratio)
 
 
-def test_exact_evaluation_cost_by_length():
-    evaluations = measure_exact_evaluation(EXACT_SIZES, repeats=3)
-    print("\n" + format_report(BenchReport(exact_evaluations=evaluations, repeats=3)))
+@pytest.mark.parametrize("one_segment", [False, True], ids=["days", "one segment"])
+def test_exact_evaluation_cost_by_length(one_segment):
+    evaluations = measure_exact_evaluation(EXACT_SIZES, repeats=3, one_segment=one_segment)
+    report = (BenchReport(exact_segment_evaluations=evaluations, repeats=3) if one_segment
+              else BenchReport(exact_evaluations=evaluations, repeats=3))
+    print("\n" + format_report(report))
     assert [e.occasions for e in evaluations] == list(EXACT_SIZES)
     # the same model at its true parameters on ever longer diaries: the log-likelihood per
     # prompt settles (law of large numbers), so each evaluation covered its whole diary
