@@ -1,7 +1,7 @@
 """Saving what the window shows: pictures as PNG or SVG, tables as CSV.
 
 Every view that shows numbers can export them and every picture can be saved
-(DESIGN.md section 4). A "picture" is any QWidget (pyqtgraph plots are QWidgets too),
+(DEVELOPERS.md, "Look"). A "picture" is any QWidget (pyqtgraph plots are QWidgets too),
 a QGraphicsView or a QGraphicsScene. Tables are saved from their Qt item model exactly
 as the user sees them (the display text of every cell, header row first).
 """

@@ -1,4 +1,4 @@
-"""The window's look: colours, pens, palette and fonts (DESIGN.md section 4).
+"""The window's look: colours, pens, palette and fonts (DEVELOPERS.md, "Look").
 
 Positive effects are drawn solid in deep teal, negative effects dashed in burnt orange;
 the pair is colour-blind safe and the dash keeps them apart in greyscale. Everything

@@ -1,6 +1,6 @@
 """Speed and memory of the estimators, against semopy and statsmodels in the same process.
 
-Window estimators: three measurements (issue 3, item 6), each on a diary simulated here from a
+Window estimators: three measurements, each on a diary simulated here from a
 known stationary model (k states x m items, 10 prompts a day, complete answers):
 - speed: wall-clock seconds of `models.estimate.fit` with the first-copy-free estimator
   (windows, start values, optimisation, standard errors, fit indices) against semopy fitting
@@ -22,7 +22,7 @@ known stationary model (k states x m items, 10 prompts a day, complete answers):
 Targets: Lagwise at least 4x faster than semopy; stationary within 1.5x of first-copy-free;
 peak memory under 1 GB.
 
-Exact estimator (issue 7, item 5), on diaries of 3 states x 3 items with days of 8 prompts:
+Exact estimator, on diaries of 3 states x 3 items with days of 8 prompts:
 - speed: `fit(..., FitOptions(estimator="exact"))` (window start, optimisation, standard
   errors, state scores) on T = 1,000 complete prompts against statsmodels' DynamicFactor
   fitting the one-factor model (one factor, AR(1), a constant per item) to the same data at

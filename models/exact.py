@@ -1,6 +1,6 @@
 """The `exact` estimator: maximum likelihood of the whole series by the Kalman filter.
 
-The model of DESIGN.md section 2 as a linear Gaussian state-space model (models.kalman): every
+The dynamic factor model (models.spec) as a linear Gaussian state-space model (models.kalman): every
 answered prompt is used, missed prompts are handled by the filter, and each segment restarts
 from the stationary distribution (or, with `FitOptions.night_gap`, the days are joined with
 that many missed prompts in between, so the states carry over the night). Start values come

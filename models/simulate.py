@@ -1,6 +1,6 @@
 """Simulate a diary from known parameters, and the stationary state covariance.
 
-The model (DESIGN.md section 2):
+The model (models.spec):
     y_t   = nu + Lambda eta_t + eps_t,        Var(eps_t) = Theta (diagonal)
     eta_t = B_1 eta_{t-1} + ... + B_q eta_{t-q} + zeta_t,   zeta_t ~ N(0, Psi)
 With an autocorrelated unique part, eps_t = d eps_{t-1} + u_t, Var(u_t) = Theta (1 - d^2),

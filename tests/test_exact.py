@@ -16,7 +16,7 @@ from lagwise.models.estimators import FitOptions
 
 
 def test_exact_and_window_estimates_agree_on_long_complete_series():
-    # Both estimators are consistent for the same stationary model (DESIGN.md section 2):
+    # Both estimators are consistent for the same stationary model (README, "The model in one paragraph"):
     # on a long complete diary their estimates differ by much less than the true effects.
     diary = simulate_diary(SPEC, days=150, prompts_per_day=10, seed=3, **TRUE)
     window = fit(diary, SPEC)
@@ -34,7 +34,7 @@ def test_exact_and_window_estimates_agree_on_long_complete_series():
 
 
 def test_start_values_are_the_stationary_window_estimate():
-    # DESIGN.md section 2: the exact fit starts from the window estimate (its optimum only;
+    # models.exact: the exact fit starts from the window estimate (its optimum only;
     # the window fit's final Newton steps move it by less than the tolerance below).
     diary = simulate_diary(SPEC, days=40, prompts_per_day=8, p_missed=0.1, seed=5, **TRUE)
     options = FitOptions(estimator="exact")

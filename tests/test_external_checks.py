@@ -1,4 +1,4 @@
-"""The window estimators checked against the outside world (issue 3, items 5a-5d and 5f).
+"""The window estimators checked against the outside world (semopy, statsmodels, scipy and textbook values).
 
 Sources, beside each check:
 - semopy (ModelMeans, normal ML) fitting the same first-copy-free window model on the same

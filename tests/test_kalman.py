@@ -427,15 +427,15 @@ def test_gradient_on_a_long_segment_matches_numerical_differences():
 
 
 def test_chains_and_pieces_change_only_the_rounding(monkeypatch):
-    from lagwise.models import kalman
+    from lagwise.models import filterplan
 
     y, segment = _long([2500, 900, 70] + [6] * 16, seed=33)
     d = np.array([0.3, 0.0, -0.2])
     plan = filter_plan(y, segment)
     assert plan.forward.tails and plan.n_nodes > plan.levels[-1][1]    # pieces and chains
     got = kalman_gradient(y, segment, unique_autocorrelation=d, plan=plan, **ARGS_SM)
-    monkeypatch.setattr(kalman, "_SIDE_BY_SIDE", 1)    # every position made side by side
-    monkeypatch.setattr(kalman, "_PIECE", 10 ** 9)     # no segment cut into pieces
+    monkeypatch.setattr(filterplan, "_SIDE_BY_SIDE", 1)    # every position made side by side
+    monkeypatch.setattr(filterplan, "_PIECE", 10 ** 9)     # no segment cut into pieces
     plan = filter_plan(y, segment)
     assert not plan.forward.tails and plan.n_nodes == plan.levels[-1][1]
     plain = kalman_gradient(y, segment, unique_autocorrelation=d, plan=plan, **ARGS_SM)
@@ -474,7 +474,7 @@ def test_mean_recursion_in_pieces_equals_the_plain_loop():
 
 
 def test_answer_patterns_match_numpys_unique_rows():
-    from lagwise.models.kalman import _unique_rows
+    from lagwise.models.filterplan import _unique_rows
     observed = np.random.default_rng(36).random((500, 7)) > 0.3
     observed[::9] = False
     patterns, index = _unique_rows(observed)

@@ -314,7 +314,7 @@ def test_lag1_data_score_tests_are_calibrated_small_version():
 @pytest.mark.slow
 def test_lag1_data_rejection_rate_200_replications():
     # Monte Carlo with known truth: on lag-1 data (300 prompts) the likelihood-ratio test at
-    # alpha = .05 rejects between 2% and 9% of 200 replications (issue 6's band); so does
+    # alpha = .05 rejects between 2% and 9% of 200 replications (the accepted band for a test sized .05); so does
     # the score test of each single path, and Holm keeps the share of checks that indicate
     # any path at all within the same band.
     lr, p, any_path, lag2, unique = _null_study(200, days=30, seed0=1000)

@@ -1,4 +1,4 @@
-"""Simulation recovery from a known stationary model (issue 3, item 5e).
+"""Simulation recovery from a known stationary model (the stationary estimator's recovery study).
 
 Truth (chosen here): three states with three items each, inertias 0.5, 0.4, 0.3 and four
 non-zero cross-lagged effects; every lagged path is free in the fitted model. Each replication
@@ -6,7 +6,7 @@ is a diary of T = 300 prompts (30 days x 10 prompts, each day its own segment) d
 models/simulate.py; the check is the usual Monte Carlo study of bias and 95% interval
 coverage (common practice).
 - Full study (slow): 200 replications; for every inertia and cross-lagged path, mean bias under
-  0.02 and coverage of the 95% interval between 0.90 and 0.98 (the issue's targets) for the
+  0.02 and coverage of the 95% interval between 0.90 and 0.98 (the project's targets) for the
   default estimator; the first-copy-free cross-check with coverage pooled over paths.
 - Always-run study: 20 replications of the default (stationary) estimator, with bounds from
   the Monte Carlo error of 20 replications (see `test_recovery_small`).
@@ -57,7 +57,7 @@ def _replicate(estimator: str, replications: int, seed0: int = 1000
 
 @pytest.mark.slow
 def test_recovery_full():
-    # The issue's targets, path by path, for the default (stationary) estimator.
+    # The project's targets, path by path, for the default (stationary) estimator.
     est, se = _replicate("stationary", 200)
     bias = est.mean(axis=0) - B
     coverage = (np.abs(est - B) < Z95 * se).mean(axis=0)
@@ -82,7 +82,7 @@ def test_recovery_small():
     reps = 20
     est, se = _replicate("stationary", reps)
     # Bias: the mean of 20 estimates has Monte Carlo error sd / sqrt(20) (sd of the estimates
-    # across replications, about 0.07 here); allow the issue's 0.02 plus three such errors.
+    # across replications, about 0.07 here); allow the target's 0.02 plus three such errors.
     sd = est.std(axis=0, ddof=1)
     assert np.all(np.abs(est.mean(axis=0) - B) < 0.02 + 3 * sd / np.sqrt(reps))
     # Coverage pooled over the 9 paths (180 intervals): binomial error of a 95% rate over 180

@@ -1,4 +1,4 @@
-"""Colours, pens and line widths of the results pictures (DESIGN.md section 4).
+"""Colours, pens and line widths of the results pictures (DEVELOPERS.md, "Look").
 
 Colours come from desktop.style: positive effects solid deep teal, negative effects dashed
 burnt orange (colour-blind safe; the dash keeps the sign readable in greyscale). Line width

@@ -1,11 +1,11 @@
-"""The benchmark run as tests (issues 3 and 7): run with `pytest -m bench tests/benchmarks -s`.
+"""The benchmark run as tests (window and exact estimators): run with `pytest -m bench tests/benchmarks -s`.
 
-Speed is reported, never asserted (DESIGN.md section 6: ratios against a peer in the same
+Speed is reported, never asserted (DEVELOPERS.md, "Speed": ratios against a peer in the same
 process, not timed pass/fail tests). What is asserted is that the timed fits are the
 like-for-like ones the ratios claim: every fit converged, semopy fitting the same window
 model (models.reference_sem, means="states") agrees with Lagwise's lagged paths, and Lagwise's filter gives
 statsmodels' log-likelihood at statsmodels' own one-factor estimate. Peak memory is a size, not
-a time: the long-diary runs must stay under 1 GB (issue 3, item 6; issue 7, item 5).
+a time: the long-diary runs must stay under 1 GB (the memory targets of `lagwise bench`).
 Marked `bench`, which the default run (-m 'not slow and not bench') leaves out.
 """
 

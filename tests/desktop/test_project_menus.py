@@ -553,7 +553,7 @@ def test_missing_file_on_the_command_line_is_refused(lagwise_app):
 
 def test_a_project_saved_in_the_window_refits_at_the_command_line_without_its_data(
         qtbot, window, tmp_path, monkeypatch):
-    # Issue 5's acceptance: save in the window, delete the data file, refit headless from the
+    # Saved in the window, refitted headless: save in the window, delete the data file, refit headless from the
     # project alone: the same estimates as the window's engine result.
     import json
     import shutil
