@@ -12,7 +12,7 @@ from PySide6.QtGui import QColor, QFont, QPalette, QPen
 from PySide6.QtWidgets import QApplication
 
 POSITIVE = "#1b7f79"   # deep teal, solid lines
-NEGATIVE = "#c8553d"   # burnt orange, dashed lines
+NEGATIVE = "#b35900"   # amber orange (hue about 30 degrees), dashed lines
 INK = "#1f2a30"        # text and axes
 MUTED = "#6b777d"      # secondary text, missed-prompt markers
 RULE = "#c9d1d4"       # thin lines, grid
