@@ -30,6 +30,7 @@ CAUTION_PSEUDO = (
 CAUTION_SE = (
     "Standard errors are approximate: overlapping windows are treated as independent.")
 Z95 = float(norm.ppf(0.975))
+SE_METHODS = ("robust", "model")
 
 
 @dataclass(frozen=True, eq=False)
@@ -93,6 +94,7 @@ class Parameter:
     standardized: float | None
     free: bool
     lag: int = 0
+    se_model: float | None = None   # model-based (inverse information) error, beside `se`
 
     @property
     def z(self) -> float | None:
@@ -115,7 +117,8 @@ class Parameter:
 
     def to_json(self) -> dict:
         return {"kind": self.kind, "from": self.from_, "to": self.to, "estimate": self.estimate,
-                "se": self.se, "standardized": self.standardized, "free": self.free, "lag": self.lag}
+                "se": self.se, "standardized": self.standardized, "free": self.free, "lag": self.lag,
+                "se_model": self.se_model}
 
     @classmethod
     def from_json(cls, doc: object, where: str = "") -> "Parameter":
@@ -129,6 +132,7 @@ class Parameter:
             jr.field("standardized", jr.number, null=True),
             jr.field("free", jr.boolean),
             jr.field("lag", jr.integer, 0, low=0, high=2),
+            jr.field("se_model", jr.number, None, null=True),
         )))
 
 
@@ -217,6 +221,8 @@ class FitResult:
     depth: int | None = None                 # window estimators: the window depth used
     state_scores: StateScores | None = None  # exact estimator
     start_loglik_windows: float | None = None  # exact estimator: its start's window loglik
+    covariance: np.ndarray | None = None     # of the free parameters (order of free_parameters)
+    se_method: str = "model"                 # what `se` is: "robust" (sandwich) or "model"
 
     @property
     def items(self) -> tuple[str, ...]:
@@ -253,6 +259,11 @@ class FitResult:
             if self.start_loglik_windows is not None:
                 out["start_loglik_windows"] = self.start_loglik_windows
         return out
+
+    @property
+    def free_parameters(self) -> tuple[Parameter, ...]:
+        """The free parameters, in the order of `covariance`'s rows."""
+        return tuple(p for p in self.parameters if p.free)
 
     def table(self, kind: str | None = None) -> list[Parameter]:
         return [p for p in self.parameters if kind is None or p.kind == kind]
@@ -295,6 +306,8 @@ class FitResult:
             "flag_codes": [str(f.code) for f in self.flags],
             "cautions": list(self.cautions),
             "parameters": [p.to_json() for p in self.parameters],
+            "se_method": self.se_method,
+            "covariance": None if self.covariance is None else self.covariance.tolist(),
             "fit": fit,
             "r_squared": {it: float(r) for it, r in zip(self.items, self.r_squared)},
             "latent_cov": self.latent_cov.tolist(),
@@ -326,6 +339,8 @@ class FitResult:
             jr.field("flag_codes", _flag_codes, None),
             jr.field("cautions", jr.tuple_of, [], item=_long_text),
             jr.field("parameters", jr.tuple_of, item=Parameter.from_json),
+            jr.field("se_method", jr.choice, "model", choices=SE_METHODS),
+            jr.field("covariance", jr.array, None, null=True),   # read below: one row per free parameter
             jr.field("fit", FitIndices.from_json),
             jr.field("matrices", jr.obj, closed=False),  # read below: shapes follow the spec
             jr.field("extras", jr.obj, {}, closed=False),
@@ -339,6 +354,10 @@ class FitResult:
             jr.field("state_scores", _state_scores, None),
             jr.field("start_loglik_windows", jr.number, None, null=True),
         )))
+        n_free = sum(q.free for q in fields["parameters"])
+        if fields["covariance"] is not None:
+            fields["covariance"] = jr.matrix(fields["covariance"], jr.at(where, "covariance"),
+                                             (n_free, n_free))
         p, k = len(fields["spec"].items), fields["spec"].k
         square = partial(jr.matrix, shape=(k, k))
         fields.update(jr.read_fields(fields.pop("matrices"), jr.at(where, "matrices"), (

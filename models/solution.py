@@ -141,7 +141,7 @@ def solve(objective: Objective, notes: list[str], monitor: Monitor | None = None
     fit, figure_flags = objective.figures(theta, ll, sigma0)
     flags += figure_flags + warn.stationarity(radius) + boundary_flags(layout, theta, sigma0,
                                                                         objective.item_var)
-    parameters = parameter_table(layout, theta, cov, latent, sigma0, mats)
+    parameters = parameter_table(layout, theta, cov, cov, latent, sigma0, mats)
     fields = objective.result_fields(theta, mats)
     checkpoint(monitor, 1.0, "Done")
     return FitResult(
@@ -152,7 +152,8 @@ def solve(objective: Objective, notes: list[str], monitor: Monitor | None = None
         loadings=mats.lam.copy(), intercepts=mats.nu.copy(), unique=mats.theta.copy(),
         lagged=tuple(mats.lagged[l].copy() for l in range(layout.q)), innovation=mats.psi.copy(),
         latent_cov=latent, r_squared=1.0 - mats.theta / np.diag(sigma0), spectral_radius=radius,
-        flags=tuple(flags), notes=tuple(notes), newton_steps=steps, **fields)
+        flags=tuple(flags), notes=tuple(notes), newton_steps=steps,
+        covariance=cov if standard_errors else None, se_method="model", **fields)
 
 
 def boundary_flags(layout: ParameterLayout, theta: np.ndarray, sigma0: np.ndarray,
@@ -171,22 +172,30 @@ def boundary_flags(layout: ParameterLayout, theta: np.ndarray, sigma0: np.ndarra
 
 
 def parameter_table(layout: ParameterLayout, theta: np.ndarray, cov: np.ndarray,
-                    latent: np.ndarray, sigma0: np.ndarray, mats: Matrices) -> list[Parameter]:
-    """Every parameter with its standard error (free ones off the boundary) and its value
-    standardized by the stationary standard deviations of states and items."""
+                    cov_model: np.ndarray, latent: np.ndarray, sigma0: np.ndarray,
+                    mats: Matrices) -> list[Parameter]:
+    """Every parameter with its standard errors (from `cov`, and model-based from
+    `cov_model`; free parameters off the boundary only) and its value standardized by the
+    stationary standard deviations of states and items."""
     values = layout.values(theta)
     scales = Scales(sd_item=np.sqrt(np.clip(np.diag(sigma0), 1e-300, None)),
                     sd_state=np.sqrt(np.clip(np.diag(latent), 1e-300, None)),
                     item_var=np.diag(sigma0), first_copy=mats.phif)
     standardized = layout.standardized(values, scales)
-    variances = np.diag(cov)
-    se_free = np.where(np.isfinite(variances) & (variances > 0), np.sqrt(np.abs(variances)), np.nan)
+    se, se_model = _errors(cov), _errors(cov_model)
     out, n = [], 0
     for e, value, std in zip(layout.entries, values, standardized):
-        se = None
+        errors = (None, None)
         if e.free:
-            se = None if np.isnan(se_free[n]) else float(se_free[n])
+            errors = (se[n], se_model[n])
             n += 1
-        out.append(Parameter(kind=e.kind, from_=e.from_, to=e.to, estimate=float(value), se=se,
-                             standardized=float(std), free=e.free, lag=e.lag))
+        out.append(Parameter(kind=e.kind, from_=e.from_, to=e.to, estimate=float(value),
+                             se=errors[0], standardized=float(std), free=e.free, lag=e.lag,
+                             se_model=errors[1]))
     return out
+
+
+def _errors(cov: np.ndarray) -> list[float | None]:
+    """Square roots of the diagonal; None where it is not a positive number."""
+    variances = np.diag(cov)
+    return [float(np.sqrt(v)) if np.isfinite(v) and v > 0 else None for v in variances]
