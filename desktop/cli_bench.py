@@ -1,6 +1,6 @@
 """`lagwise bench [--quick] [--repeats N] [--all-peers] [--semopy-threads 1|default]
 [--no-memory] [--exact-only | --no-exact]`: speed and memory of the window estimators against
-semopy and of the exact estimator against statsmodels on simulated diaries (models.benchmark),
+semopy and of the exact estimator against statsmodels on simulated diaries (models.bench),
 printed as tables with PASS/MISS lines for the targets. Always exits 0: a benchmark reports,
 it does not fail.
 """
@@ -10,7 +10,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from lagwise.models.benchmark import format_report, run_benchmark
+from lagwise.models.bench import format_report, run_benchmark
 
 
 class _Progress:
