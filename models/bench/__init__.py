@@ -6,6 +6,8 @@ Sections (each module's docstring says what it times and why that peer):
   same window model (fit + inspect), interleaved, BLAS on one thread for both; semopy's
   ModelMeans (the same mean structure too) as a reference row; stationary against
   first-copy-free;
+- refit.py: a full fit against a refit (no standard errors, started from a first fit) on
+  parametric-bootstrap diaries, with the default estimator;
 - exact.py: the exact estimator against statsmodels' DynamicFactor, and its evaluation cost
   per prompt as diaries grow, with days and as one segment;
 - memory.py: peak memory of one fit of a long diary, in a fresh process.
@@ -13,7 +15,7 @@ Targets (cases.py), reported as PASS/MISS lines (report.py), never as timed test
 covariance-only fit + inspect takes at least 2x the Lagwise first-copy-free time on both speed
 diaries; stationary within 1.5x of first-copy-free; statsmodels takes at least 5x the Lagwise
 exact time; exact gradient time growing at most as T^1.1 on both layouts; peak memory under
-1 GiB.
+1 GiB. The refit has no target: its speed-up is reported as a fact.
 """
 
 from __future__ import annotations
@@ -24,12 +26,14 @@ from typing import TYPE_CHECKING
 from lagwise.models.bench.cases import (
     EXACT_CASE, EXACT_MEMORY_CASE, EXACT_SIZES, MEMORY_CASE, MEMORY_TARGET_BYTES,
     QUICK_EXACT_CASE, QUICK_EXACT_MEMORY_CASE, QUICK_EXACT_SIZES, QUICK_MEMORY_CASE,
-    QUICK_SPEED_CASES, SPEED_CASES, SPEED_TARGET, Case, bench_diary, bench_model,
+    QUICK_REFIT_REPLICATES, QUICK_SPEED_CASES, REFIT_REPLICATES, SPEED_CASES, SPEED_TARGET, Case,
+    bench_diary, bench_model,
 )
 from lagwise.models.bench.exact import (
     ExactEvaluation, ExactSpeedResult, growth_exponent, measure_exact_evaluation,
     measure_exact_speed,
 )
+from lagwise.models.bench.refit import RefitResult, measure_refit
 from lagwise.models.bench.report import format_report
 from lagwise.models.bench.windows import PeerTime, SpeedResult, measure_speed
 from lagwise.models.progress import Monitor, checkpoint
@@ -53,6 +57,7 @@ def __getattr__(name: str):
 @dataclass
 class BenchReport:
     speed: list[SpeedResult] = field(default_factory=list)
+    refit: list[RefitResult] = field(default_factory=list)
     memory: MemoryResult | None = None
     repeats: int = 1
     semopy_threads: str = "1"
@@ -64,21 +69,30 @@ class BenchReport:
 
 def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bool = False,
                   memory: bool = True, semopy_threads: str = "1", windows: bool = True,
-                  exact: bool = True, monitor: Monitor | None = None) -> BenchReport:
-    """All measurements; `quick` uses the small cases only and 10,000-prompt memory runs;
-    `windows` / `exact` choose the sections (window estimators against semopy; the exact
-    estimator against statsmodels)."""
+                  exact: bool = True, refit: bool = True, monitor: Monitor | None = None
+                  ) -> BenchReport:
+    """All measurements; `quick` uses the small cases only, fewer refit replicates and
+    10,000-prompt memory runs; `windows` / `exact` choose the sections (window estimators
+    against semopy, with the refit unless `refit` is False; the exact estimator against
+    statsmodels)."""
     from lagwise.models.bench.memory import measure_memory
 
     repeats = (1 if quick else 3) if repeats is None else repeats
     report = BenchReport(repeats=repeats, semopy_threads=semopy_threads)
     cases = (QUICK_SPEED_CASES if quick else SPEED_CASES) if windows else ()
-    parts = len(cases) + int(windows and memory) + (3 + int(memory) if exact else 0)
+    refit_cases = cases if refit else ()
+    parts = (len(cases) + len(refit_cases) + int(windows and memory)
+             + (3 + int(memory) if exact else 0))
     done = 0
     for case in cases:
         checkpoint(monitor, done / parts, f"Timing {case.label}")
         report.speed.append(measure_speed(case, repeats, True if all_peers else None,
                                           semopy_threads))
+        done += 1
+    for case in refit_cases:
+        checkpoint(monitor, done / parts, f"Refit, {case.label}")
+        report.refit.append(measure_refit(
+            case, QUICK_REFIT_REPLICATES if quick else REFIT_REPLICATES))
         done += 1
     if windows and memory:
         checkpoint(monitor, done / parts, "Peak memory of a long diary")
@@ -105,7 +119,7 @@ def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bo
 __all__ = [
     "BenchReport", "Case", "EXACT_CASE", "EXACT_MEMORY_CASE", "EXACT_SIZES", "ExactEvaluation",
     "ExactSpeedResult", "MEMORY_CASE", "MEMORY_TARGET_BYTES", "MemoryResult", "PeerTime",
-    "SPEED_CASES", "SPEED_TARGET", "SpeedResult",
+    "REFIT_REPLICATES", "RefitResult", "SPEED_CASES", "SPEED_TARGET", "SpeedResult",
     "bench_diary", "bench_model", "format_report", "growth_exponent", "measure_exact_evaluation",
-    "measure_exact_speed", "measure_memory", "measure_speed", "run_benchmark",
+    "measure_exact_speed", "measure_memory", "measure_refit", "measure_speed", "run_benchmark",
 ]

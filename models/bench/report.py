@@ -14,6 +14,7 @@ from lagwise.models.bench.exact import ExactEvaluation, growth_exponent
 if TYPE_CHECKING:
     from lagwise.models.bench import BenchReport
     from lagwise.models.bench.memory import MemoryResult
+    from lagwise.models.bench.refit import RefitResult
     from lagwise.models.bench.windows import SpeedResult
 
 
@@ -27,6 +28,9 @@ def format_report(report: BenchReport) -> str:
     verdicts: list[str] = []
     if report.speed:
         _speed_lines(report, lines, verdicts)
+    if report.refit:
+        lines.append("")
+        _refit_lines(report.refit, lines)
     if report.memory is not None:
         lines.append("")
         _memory_lines(report.memory, lines, verdicts)
@@ -76,6 +80,24 @@ def _speed_rows(r: SpeedResult, lines: list[str], verdicts: list[str]) -> None:
     verdicts.append(f"{_verdict(r.stationary_ratio <= STATIONARY_TARGET)}  {r.case.label}: "
                     f"stationary takes {r.stationary_ratio:.2f}x the first-copy-free time "
                     f"(target at most {STATIONARY_TARGET:g}x)")
+
+
+def _refit_lines(results: list[RefitResult], lines: list[str]) -> None:
+    replicates = sorted({r.replicates for r in results})
+    count = "/".join(str(n) for n in replicates)
+    head = f"{'diary':<34}{'full s':>10}{'refit s':>10}{'speed-up':>10}{'max |d|/se':>13}"
+    lines += ["Refit, default (stationary) estimator: a first full fit of the diary, then "
+              f"{count} parametric-bootstrap diaries",
+              "simulated from its estimates (seeds 1, 2, ...), each fitted in full (with "
+              "standard errors) and refitted",
+              "(standard_errors=False, start = the first fit); median seconds; max |d|/se = "
+              "largest |refit - full| estimate",
+              "difference in units of the full fit's standard errors.",
+              "", head, "-" * len(head)]
+    for r in results:
+        mark = "" if r.converged else "  (a fit did not converge)"
+        lines.append(f"{r.case.label:<34}{r.full_seconds:>10.3f}{r.refit_seconds:>10.3f}"
+                     f"{r.speedup:>9.1f}x{r.max_difference_se:>13.1e}{mark}")
 
 
 def _memory_lines(m: MemoryResult, lines: list[str], verdicts: list[str]) -> None:
