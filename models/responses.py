@@ -267,7 +267,7 @@ def impulse_responses(result: FitResult, horizon: int = 10, order: Sequence[str]
     otherwise delta-method bands from `result.covariance` (none without it)."""
     states = tuple(result.states)
     k = len(states)
-    horizon = _horizon(horizon)
+    horizon = check_horizon(horizon)
     if not 0.0 < level < 1.0:
         raise SpecError(f"The band level must lie between 0 and 1, not {level}.")
     order = states if order is None else tuple(order)
@@ -312,7 +312,8 @@ def impulse_responses(result: FitResult, horizon: int = 10, order: Sequence[str]
                      tuple(notes))
 
 
-def _horizon(horizon: int) -> int:
+def check_horizon(horizon: int) -> int:
+    """`horizon` as a whole number of prompts in 1..MAX_HORIZON (SpecError otherwise)."""
     if isinstance(horizon, bool) or not isinstance(horizon, (int, np.integer)):
         raise SpecError(f"The horizon should be a whole number of prompts, not {horizon!r}.")
     if not 1 <= horizon <= MAX_HORIZON:

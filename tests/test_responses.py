@@ -17,6 +17,7 @@ from __future__ import annotations
 import json
 from dataclasses import replace
 from functools import cache
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -25,12 +26,14 @@ from statsmodels.tools.numdiff import approx_fprime
 from statsmodels.tsa.api import VAR
 from statsmodels.tsa.vector_ar.var_model import ma_rep
 
+from lagwise.desktop.cli import main
 from lagwise.models import jsonread
 from lagwise.models.errors import FieldError, SpecError
 from lagwise.models.estimate import fit
 from lagwise.models.estimators import FitOptions
 from lagwise.models.kinds import Kind
 from lagwise.models.parameters import ParameterLayout
+from lagwise.models.report import format_responses
 from lagwise.models.responses import VARIANTS, Responses, impulse_responses
 from lagwise.models.results import FitResult, Parameter
 from lagwise.models.simulate import simulate_diary
@@ -373,3 +376,30 @@ def test_json_round_trip_is_strict_and_keeps_the_convention():
         with pytest.raises(FieldError) as error:
             Responses.from_json(broken, "responses")
         assert error.value.where.startswith(where)
+
+
+# ----- the command line ------------------------------------------------------------------------
+DEMO = Path(__file__).resolve().parents[1] / "resources" / "demo" / "demo_diary.csv"
+DEMO_ARGS = ["--day", "day", "--prompt", "prompt", "--state", "tension=tense,restless,worried",
+             "--state", "low mood=sad,flat,hopeless"]
+
+
+def test_lagwise_fit_writes_and_prints_the_responses(tmp_path, capsys):
+    out = tmp_path / "fit.json"
+    assert main(["fit", str(DEMO), *DEMO_ARGS, "--horizon", "4", "--json", str(out)]) == 0
+    text = capsys.readouterr().out
+    doc = jsonread.parse(out.read_text())
+    result = FitResult.from_json(doc)
+    expected = impulse_responses(result, horizon=4)
+    assert doc["responses"] == json.loads(json.dumps(expected.to_json()))
+    assert format_responses(expected) in text
+    for sentence in expected.sentences():
+        assert sentence in text
+    shown = Responses.from_json(doc["responses"], "responses")
+    assert shown.horizon == 4 and shown.interval == "delta"
+
+
+def test_lagwise_fit_refuses_a_bad_horizon_in_one_line(tmp_path, capsys):
+    assert main(["fit", str(DEMO), *DEMO_ARGS, "--horizon", "0"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.startswith("lagwise:") and "horizon" in err and "\n" not in err
