@@ -24,7 +24,7 @@ section 2.3.2):
   impact Phi_0[i, i] = 1 (for an AR(1) with inertia r in (0, 1): the smallest h with
   r^h < 1/2; common practice); None when not within the horizon.
 - bands, pointwise at `level`: the delta method (Lutkepohl 2005, section 3.7.1),
-  estimate -+ z SE with SE^2 the diagonal of G Cov(theta) G', Cov(theta) = result.covariance
+  estimate ± z SE with SE^2 the diagonal of G Cov(theta) G', Cov(theta) = result.covariance
   and G the Jacobian of the responses with respect to the free parameters by central
   differences through ParameterLayout.unpack (so every lag order and innovation form is
   covered, and standardized responses carry the uncertainty of the SDs); or, with bootstrap
@@ -48,7 +48,6 @@ from scipy.stats import norm
 
 from lagwise.models import jsonread as jr
 from lagwise.models.errors import FieldError, SpecError
-from lagwise.models.lyapunov import companion
 from lagwise.models.numbers import fmt
 from lagwise.models.parameters import ParameterLayout
 from lagwise.models.results import FitResult, _finite
@@ -296,7 +295,7 @@ def impulse_responses(result: FitResult, horizon: int = 10, order: Sequence[str]
         if interval == "none":
             z = float(norm.ppf(0.5 + level / 2))
             lower, upper, interval = point - z * se, point + z * se, "delta"
-            notes.append(f"{_percent(level).capitalize()} bands: estimate -+ {z:.2f} standard errors "
+            notes.append(f"{_percent(level).capitalize()} bands: estimate ± {z:.2f} standard errors "
                          "(delta method, from the covariance of the free parameters), prompt by "
                          "prompt; they are approximate.")
     elif interval == "none" and link is not None:

@@ -35,7 +35,7 @@ from lagwise.models.kinds import Kind
 from lagwise.models.parameters import ParameterLayout
 from lagwise.models.report import format_responses
 from lagwise.models.responses import VARIANTS, Responses, impulse_responses
-from lagwise.models.results import FitResult, Parameter
+from lagwise.models.results import FitResult
 from lagwise.models.simulate import simulate_diary
 from lagwise.models.spec import make_spec
 
