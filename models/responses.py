@@ -37,13 +37,13 @@ Arrays are (H+1, k, k): [h, i, j] = response of state i, h prompts after a shock
 from __future__ import annotations
 
 import warnings
+import weakref
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from functools import partial
 from typing import Protocol
 
 import numpy as np
-from scipy.linalg import solve_discrete_lyapunov
 from scipy.stats import norm
 
 from lagwise.models import jsonread as jr
@@ -289,9 +289,9 @@ def impulse_responses(result: FitResult, horizon: int = 10, order: Sequence[str]
         notes.append(f"{_percent(level).capitalize()} bands: percentiles of {replicates} bootstrap "
                      "replicates, prompt by prompt.")
     if link is not None and result.covariance is not None:
-        jac = link.jacobian(horizon, perm)
+        jac = _delta_jacobian(result, link, horizon, perm)
         cov = np.asarray(result.covariance, dtype=float)[np.ix_(link.columns, link.columns)]
-        se = np.sqrt(np.clip(np.einsum("ij,jk,ik->i", jac, cov, jac), 0.0, None)).reshape(point.shape)
+        se = np.sqrt(np.clip(np.sum((jac @ cov) * jac, axis=1), 0.0, None)).reshape(point.shape)
         if interval == "none":
             z = float(norm.ppf(0.5 + level / 2))
             lower, upper, interval = point - z * se, point + z * se, "delta"
@@ -353,12 +353,13 @@ def ordered_cholesky(psi: np.ndarray, perm: Sequence[int]) -> np.ndarray:
 
 
 _CHUNK = 2_000_000     # numbers per stacked evaluation (bounds the memory of big models)
-_KRONECKER_SIZE = 8   # companion sizes up to this: Lyapunov by the Kronecker form, batched
+_DOUBLINGS = 64        # doubling steps at most (sums 2^64 terms: any stationary model converges)
 
 
 def stationary_sd(lagged: np.ndarray, psi: np.ndarray) -> np.ndarray:
     """sqrt(diag Phi(0)) for stacks lagged (n, q, k, k), psi (n, k, k): Phi(0) is the top-left
-    block of P = F P F' + blockdiag(Psi, 0) (models.lyapunov); NaN where not stationary."""
+    block of P = F P F' + blockdiag(Psi, 0) (as models.lyapunov, here for a whole stack by
+    doubling); NaN where not stationary."""
     n, q, k = lagged.shape[0], lagged.shape[1], psi.shape[-1]
     variances = np.clip(np.diagonal(psi, axis1=1, axis2=2), 0.0, None)
     if q == 0:
@@ -373,14 +374,14 @@ def stationary_sd(lagged: np.ndarray, psi: np.ndarray) -> np.ndarray:
     ok[finite] = np.max(np.abs(np.linalg.eigvals(f[finite])), axis=-1) < 1.0
     if not ok.any():
         return out
-    noise = np.zeros((int(ok.sum()), size, size))
-    noise[:, :k, :k] = psi[ok]
-    if size <= _KRONECKER_SIZE:
-        a = f[ok]
-        system = np.eye(size * size) - np.einsum("nij,nkl->nikjl", a, a).reshape(-1, size * size, size * size)
-        p = np.linalg.solve(system, noise.reshape(-1, size * size, 1)).reshape(-1, size, size)
-    else:
-        p = np.stack([solve_discrete_lyapunov(a, b) for a, b in zip(f[ok], noise)])
+    a = f[ok]
+    p = np.zeros((len(a), size, size))
+    p[:, :k, :k] = psi[ok]
+    for _ in range(_DOUBLINGS):   # Smith's doubling: P += A P A', A = A A (common practice)
+        p = p + a @ p @ np.swapaxes(a, 1, 2)
+        a = a @ a
+        if np.max(np.abs(a)) < 1e-12:
+            break
     with np.errstate(invalid="ignore"):
         out[ok] = np.sqrt(np.diagonal(p, axis1=1, axis2=2)[:, :k])
     return out
@@ -440,6 +441,23 @@ def _notes(states, order, sd, half_life, oscillates, horizon, point) -> list[str
     return notes
 
 
+_JACOBIANS: "weakref.WeakKeyDictionary[FitResult, dict]" = weakref.WeakKeyDictionary()
+
+
+def _delta_jacobian(result: FitResult, link: "_Link", horizon: int, perm: Sequence[int]) -> np.ndarray:
+    """The delta method's Jacobian, computed once per result and order (kept while the result
+    lives): a shorter horizon is a slice of a longer one, since every variant at h depends on
+    the responses up to h only."""
+    memo = _JACOBIANS.setdefault(result, {})
+    longest, jac = memo.get(tuple(perm), (-1, None))
+    if longest < horizon:
+        jac = link.jacobian(horizon, perm)
+        memo[tuple(perm)] = (horizon, jac)
+        return jac
+    columns = jac.shape[1]
+    return jac.reshape(len(VARIANTS), longest + 1, -1, columns)[:, :horizon + 1].reshape(-1, columns)
+
+
 def _percentiles(draws: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray]:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)  # a cell no replicate could compute
@@ -464,12 +482,13 @@ class _Link:
     def of(cls, result: FitResult) -> "_Link | None":
         """None when the result's free parameters are not those of its model's layout."""
         layout = ParameterLayout(result.spec, free_first_copies=result.options.method.free_first_copies)
-        keys = [p.key for p in result.free_parameters]
+        free = result.free_parameters
+        keys = [p.key for p in free]
         position = {key: n for n, key in enumerate(keys)}
         if len(position) != len(keys) or set(position) != {e.key for e in layout.free_entries}:
             return None
         order = np.array([position[e.key] for e in layout.free_entries], dtype=np.int64)
-        theta = np.array([result.free_parameters[n].estimate for n in order], dtype=float)
+        theta = np.array([free[n].estimate for n in order], dtype=float)
         return cls(layout, theta, order)
 
     def _evaluate(self, thetas: np.ndarray, horizon: int, perm: Sequence[int]) -> np.ndarray:

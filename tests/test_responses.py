@@ -403,3 +403,13 @@ def test_lagwise_fit_refuses_a_bad_horizon_in_one_line(tmp_path, capsys):
     assert main(["fit", str(DEMO), *DEMO_ARGS, "--horizon", "0"]) == 2
     err = capsys.readouterr().err.strip()
     assert err.startswith("lagwise:") and "horizon" in err and "\n" not in err
+
+
+def test_a_shorter_horizon_reuses_the_longer_one_exactly():
+    result, _ = from_statsmodels(2)
+    long = impulse_responses(result, horizon=12)
+    short = impulse_responses(result, horizon=5)
+    fresh = impulse_responses(replace(result), horizon=5)   # another result: computed anew
+    for name in VARIANTS:
+        np.testing.assert_array_equal(short.curves[name].se, long.curves[name].se[:6])
+        np.testing.assert_allclose(fresh.curves[name].se, short.curves[name].se, rtol=1e-9, atol=1e-12)
