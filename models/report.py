@@ -92,7 +92,7 @@ def format_responses(responses: Responses) -> str:
                     text += f" [{fmt(curve.lower[h, i, j])}, {fmt(curve.upper[h, i, j])}]"
                 cells.append(f"{text:<{width}}")
             lines.append(f"    {h:>7}  {''.join(cells)}".rstrip())
-    halves = [f"{s} {'beyond ' + str(responses.horizon) if h is None else h}"
+    halves = [f"{s} {'more than ' + str(responses.horizon) if h is None else h}"
               for s, h in zip(responses.states, responses.half_life)]
     lines.append("  half-life (prompts until a state's own response falls below half): " + ", ".join(halves))
     lines += [f"  - {sentence}" for sentence in responses.sentences()]

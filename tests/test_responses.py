@@ -399,6 +399,15 @@ def test_lagwise_fit_writes_and_prints_the_responses(tmp_path, capsys):
     assert shown.horizon == 4 and shown.interval == "delta"
 
 
+def test_a_saved_project_is_refitted_with_a_horizon(tmp_path):
+    project = tmp_path / "p.lagwise"
+    assert main(["fit", str(DEMO), *DEMO_ARGS, "--save", str(project)]) == 0
+    out = tmp_path / "refit.json"
+    assert main(["fit", str(project), "--horizon", "3", "--json", str(out)]) == 0
+    doc = jsonread.parse(out.read_text())
+    assert doc["responses"]["horizon"] == 3 and len(doc["responses"]["unit"]) == 4
+
+
 def test_lagwise_fit_refuses_a_bad_horizon_in_one_line(tmp_path, capsys):
     assert main(["fit", str(DEMO), *DEMO_ARGS, "--horizon", "0"]) == 2
     err = capsys.readouterr().err.strip()
