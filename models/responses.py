@@ -139,7 +139,7 @@ class Responses:
         others = [i for i in range(len(self.states)) if i != j] or [j]
         moves, still, moved = [], [], []
         for i in others:
-            target = "itself" if i == j else self.states[i]
+            target = f"{name} itself" if i == j else self.states[i]
             size = fmt(abs(curve.estimate[1, i, j]))
             if size == "0.000":
                 still.append(target)
@@ -407,8 +407,12 @@ def _variants(lagged: np.ndarray, psi: np.ndarray, horizon: int, perm: Sequence[
 
 def _stack(models: Sequence[tuple[np.ndarray, np.ndarray]], q: int, k: int) -> tuple[np.ndarray, np.ndarray]:
     """(lagged (n, q, k, k), psi (n, k, k)) from (lagged, psi) pairs."""
-    lagged = np.array([np.reshape(b, (q, k, k)) for b, _ in models], dtype=float).reshape(-1, q, k, k)
-    return lagged, np.array([p for _, p in models], dtype=float).reshape(-1, k, k)
+    lagged = np.empty((len(models), q, k, k))
+    psi = np.empty((len(models), k, k))
+    for n, (b, p) in enumerate(models):
+        lagged[n] = np.reshape(b, (q, k, k))
+        psi[n] = p
+    return lagged, psi
 
 
 def _half_lives(unit: np.ndarray) -> tuple[tuple[int | None, ...], tuple[bool, ...]]:
