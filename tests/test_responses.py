@@ -422,3 +422,12 @@ def test_a_shorter_horizon_reuses_the_longer_one_exactly():
     for name in VARIANTS:
         np.testing.assert_array_equal(short.curves[name].se, long.curves[name].se[:6])
         np.testing.assert_allclose(fresh.curves[name].se, short.curves[name].se, rtol=1e-9, atol=1e-12)
+
+
+def test_a_model_without_lags_responds_only_at_once():
+    result = fit(var_data(1), var_spec(0))
+    ours = impulse_responses(result, horizon=3)
+    np.testing.assert_array_equal(ours.unit[1:], 0.0)
+    np.testing.assert_allclose(ours.orthogonal[0], np.linalg.cholesky(result.innovation), atol=1e-12)
+    assert ours.half_life == (1, 1, 1)
+    np.testing.assert_allclose(ours.state_sd, np.sqrt(np.diag(result.innovation)), rtol=1e-12)
