@@ -23,7 +23,8 @@ from lagwise.models.lag2check import lag2_check
 from lagwise.models.project import (
     Project, embed_file, is_project_file, open_project, project_diary, save_project,
 )
-from lagwise.models.report import format_lag2, format_result
+from lagwise.models.report import format_lag2, format_responses, format_result
+from lagwise.models.responses import MAX_HORIZON, check_horizon, impulse_responses
 from lagwise.models.results import _finite
 from lagwise.models.estimators import ESTIMATORS, MISSING, FitOptions
 from lagwise.models.spec import ModelSpec, State, full_mask, inertia_mask
@@ -52,15 +53,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                      help=f"optimiser iterations at most (default {FitOptions.max_iter})")
     parser.add_argument("--lag2-check", action="store_true",
                         help="test whether lag 1 is enough (lag-2 paths and autocorrelated unique parts)")
+    parser.add_argument("--horizon", type=int, default=10, metavar="H",
+                        help=f"impulse responses over H prompts (1 to {MAX_HORIZON}, default 10): "
+                             "printed, and written to the JSON as \"responses\"")
     parser.add_argument("--json", metavar="OUT", help="write the result as JSON to OUT")
     parser.add_argument("--save", metavar="PROJECT.lagwise",
                         help="also save the data, model, settings and result as a project file")
     parser.epilog = ("DATA may be a saved project (PROJECT.lagwise): it is refitted with its "
-                     "own data, model and estimator settings; only --json, --save and "
-                     "--lag2-check may be added.")
+                     "own data, model and estimator settings; only --json, --save, "
+                     "--lag2-check and --horizon may be added.")
 
 
-PROJECT_RUN_OPTIONS = ("data", "json", "save", "lag2_check")
+PROJECT_RUN_OPTIONS = ("data", "json", "save", "lag2_check", "horizon")
 
 
 def parse_states(texts: list[str] | None) -> tuple[State, ...]:
@@ -91,6 +95,7 @@ def spec_from_args(args: argparse.Namespace) -> ModelSpec:
 def run(args: argparse.Namespace) -> int:
     if args.save is not None and not is_project_file(args.save):
         raise ProjectError(f"--save {args.save}: a project file name ends in .lagwise")
+    check_horizon(args.horizon)
     project: Project | None = None
     if is_project_file(args.data):
         project = project_to_refit(args)
@@ -104,7 +109,11 @@ def run(args: argparse.Namespace) -> int:
                              night_gap=args.night_gap, max_iter=args.max_iter)
     result = fit(diary, spec, options)
     print(format_result(result))
+    responses = impulse_responses(result, args.horizon)
+    print()
+    print(format_responses(responses))
     doc = result.to_json()
+    doc["responses"] = responses.to_json()
     if args.lag2_check:
         check = lag2_check(diary, spec, options)
         print()

@@ -5,6 +5,7 @@ from __future__ import annotations
 from lagwise.models.kinds import Kind
 from lagwise.models.lag2check import Lag2Check
 from lagwise.models.numbers import fmt
+from lagwise.models.responses import Responses
 from lagwise.models.results import FitResult
 
 def format_result(result: FitResult) -> str:
@@ -67,4 +68,32 @@ def format_lag2(check: Lag2Check) -> str:
         lines.append(f"  {label:<26}{t.from_:<14.14}{t.to:<14.14}{fmt(t.score, digits=2):>8}{fmt(t.p, 'p'):>8}"
                      f"{fmt(t.p_holm, 'p'):>8}{fmt(t.epc):>9}{fmt(t.std_epc):>9}")
     lines += [f"  * {c}" for c in check.cautions]
+    return "\n".join(lines)
+
+
+def format_responses(responses: Responses) -> str:
+    """Unit responses in the states' own units, one block per shocked state (h = 1..H, with
+    the band when there is one), then the half-lives and one sentence per state."""
+    curve = responses.curve("unit")
+    bands = {"delta": "delta method", "percentile": f"bootstrap percentiles, {responses.replicates} replicates"}
+    band = bands.get(responses.interval)
+    head = f"; {100 * responses.level:g}% bands: {band}" if band else "; no bands"
+    lines = [f"Responses to a rise of 1 in each state (unit innovations, the states' own units{head})"]
+    width = 24 if band else 11
+    for j, shock in enumerate(responses.states):
+        lines.append(f"  after a rise of 1 in {shock}")
+        names = "".join(f"{s[:width - 2]:<{width}}" for s in responses.states)
+        lines.append(f"    {'prompts':>7}  {names}".rstrip())
+        for h in range(1, responses.horizon + 1):
+            cells = []
+            for i in range(len(responses.states)):
+                text = fmt(curve.estimate[h, i, j])
+                if band:
+                    text += f" [{fmt(curve.lower[h, i, j])}, {fmt(curve.upper[h, i, j])}]"
+                cells.append(f"{text:<{width}}")
+            lines.append(f"    {h:>7}  {''.join(cells)}".rstrip())
+    halves = [f"{s} {'more than ' + str(responses.horizon) if h is None else h}"
+              for s, h in zip(responses.states, responses.half_life)]
+    lines.append("  half-life (prompts until a state's own response falls below half): " + ", ".join(halves))
+    lines += [f"  - {sentence}" for sentence in responses.sentences()]
     return "\n".join(lines)

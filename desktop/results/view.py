@@ -1,7 +1,8 @@
 """ResultsView: the tabs that show one FitResult (or a plain message when there is none).
 
-Besides the five tabs over the estimate, "State scores" (exact estimator only) and
-"Lag-2 check" (a Lag2View, exposed as `lag2`, whose signals the window wires).
+Besides the five tabs over the estimate, "Responses" (what follows a rise in one state, beside
+"Dynamics"), "State scores" (exact estimator only) and "Lag-2 check" (a Lag2View, exposed as
+`lag2`, whose signals the window wires).
 """
 
 from __future__ import annotations
@@ -15,6 +16,7 @@ from lagwise.desktop.results.innovations import InnovationsPanel
 from lagwise.desktop.results.measurement import MeasurementPanel
 from lagwise.desktop.results.lag2_view import Lag2View
 from lagwise.desktop.results.parameters import ParametersPanel
+from lagwise.desktop.results.responses_view import ResponsesPanel
 from lagwise.desktop.results.state_scores import StateScoresPanel
 from lagwise.desktop.results.widgets import ResultsPanel
 from lagwise.models.diary import Diary
@@ -26,7 +28,8 @@ EMPTY_MESSAGE = ("No results yet.\n\nAssign items to states, choose the lagged p
 
 
 class ResultsView(QWidget):
-    """Tabs Measurement, Dynamics, Innovations, Fit, Parameters, State scores, Lag-2 check.
+    """Tabs Measurement, Dynamics, Responses, Innovations, Fit, Parameters, State scores,
+    Lag-2 check.
 
     `show_result(None)` shows the empty state. Each tab is a ResultsPanel with
     `pictures()` and `tables()` (what its Export button saves). `panels()` are the five tabs
@@ -39,6 +42,7 @@ class ResultsView(QWidget):
         self._result: FitResult | None = None
         self.measurement = MeasurementPanel()
         self.dynamics = DynamicsPanel()
+        self.responses = ResponsesPanel()
         self.innovations = InnovationsPanel()
         self.fit = FitPanel()
         self.parameters = ParametersPanel()
@@ -46,8 +50,9 @@ class ResultsView(QWidget):
         self.lag2 = Lag2View()
         self.tabs = QTabWidget()
         self.tabs.setDocumentMode(True)
-        for panel, title in zip(self.all_panels(), ("Measurement", "Dynamics", "Innovations", "Fit",
-                                                    "Parameters", "State scores", "Lag-2 check")):
+        for panel, title in zip(self.all_panels(), ("Measurement", "Dynamics", "Responses",
+                                                    "Innovations", "Fit", "Parameters",
+                                                    "State scores", "Lag-2 check")):
             self.tabs.addTab(panel, title)
         self.empty = QLabel(EMPTY_MESSAGE)
         self.empty.setAlignment(Qt.AlignmentFlag.AlignCenter)
@@ -73,8 +78,10 @@ class ResultsView(QWidget):
         return (self.measurement, self.dynamics, self.innovations, self.fit, self.parameters)
 
     def all_panels(self) -> tuple[ResultsPanel, ...]:
-        """Every tab, in order: the estimate's panels, the state scores, the lag-2 check."""
-        return (*self.panels(), self.state_scores, self.lag2)
+        """Every tab, in order: the estimate's panels (the responses beside the dynamics), the
+        state scores, the lag-2 check."""
+        measurement, dynamics, *others = self.panels()
+        return (measurement, dynamics, self.responses, *others, self.state_scores, self.lag2)
 
     def set_diary(self, diary: Diary | None) -> None:
         """The session's diary, whose days and missed prompts the state scores are drawn on."""
