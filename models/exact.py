@@ -93,7 +93,7 @@ class ExactObjective:
         theta0, self.start_loglik = _window_start(self.diary, self.spec, self.options, self, monitor)
         return theta0
 
-    cheap_steps = False  # the information costs a gradient per parameter: refits stay with L-BFGS-B
+    cheap_steps = False  # its information costs a gradient per parameter: the precise L-BFGS-B
 
     def step_information(self, theta: np.ndarray) -> None:
         return None

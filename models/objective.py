@@ -24,8 +24,9 @@ from lagwise.models.optimise import observed_information
 from lagwise.models.parameters import Matrices, ParameterLayout
 from lagwise.models.patterns import pattern_data
 from lagwise.models.progress import Monitor, checkpoint
-from lagwise.models.robust import (Projection, WindowScores, baseline_projection,
-                                   fit_test_traces, score_covariance)
+from lagwise.models.robust import (Projection, WindowScores, baseline_information,
+                                   baseline_projection, fit_test_traces, kernel_covariance,
+                                   project)
 from lagwise.models.results import FitIndices
 from lagwise.models.spec import ModelSpec
 from lagwise.models.start import start_matrices
@@ -61,6 +62,7 @@ class WindowObjective:
         self.item_var = np.nanvar(rows[:, :p], axis=0) if rows.size else np.ones(p)
         self.layout = ParameterLayout(spec, self.item_var, self.free_first_copies)
         self._jacobian: tuple[bytes, Implied, Projection] | None = None
+        self._scores: tuple[bytes, WindowScores, np.ndarray | None] | None = None
 
     @classmethod
     def build(cls, diary: "Diary", spec: ModelSpec, options: "FitOptions",
@@ -110,10 +112,10 @@ class WindowObjective:
             info += count * (0.5 * y @ flat.T + d_mu @ inv @ d_mu.T)
         return 0.5 * (info + info.T)
 
-    cheap_steps = True   # the expected information is analytic: refits take Newton steps too
+    cheap_steps = True   # the expected information is analytic: Newton steps finish the optimum
 
     def step_information(self, theta: np.ndarray) -> np.ndarray:
-        """An information for Newton steps in refits: the expected information."""
+        """The information for Newton steps: the expected information (any missingness)."""
         return self.expected_information(theta)
 
     def information(self, theta: np.ndarray, sizes: np.ndarray,
@@ -158,12 +160,24 @@ class WindowObjective:
             self._jacobian = (key, imp, Projection(d_mu, d_sigma))
         return self._jacobian[1], self._jacobian[2]
 
+    def scores(self, theta: np.ndarray) -> tuple[WindowScores, np.ndarray | None]:
+        """The window scores at the implied moments of `theta`, and (segments as clusters)
+        their sums by segment mapped to the parameters (the last ones are kept)."""
+        key = theta.tobytes()
+        if self._scores is None or self._scores[0] != key:
+            imp, model = self.jacobian(theta)
+            scores = WindowScores.at(self.data, imp.mu, imp.sigma)
+            summed = None if self.joined else project(*scores.cluster_sums(self.segment), model)
+            self._scores = (key, scores, summed)
+        return self._scores[1], self._scores[2]
+
     def score_covariance(self, theta: np.ndarray) -> np.ndarray:
         """J of models.robust: the covariance of the total window score, windows dependent
         within a segment."""
-        imp, model = self.jacobian(theta)
-        scores = WindowScores.at(self.data, imp.mu, imp.sigma)
-        return score_covariance(scores, model, self.segment, self.joined, self.order)
+        scores, summed = self.scores(theta)
+        if summed is not None:
+            return summed.T @ summed
+        return kernel_covariance(scores.rows(self.jacobian(theta)[1]), self.segment, self.order)
 
     def figures(self, theta: np.ndarray, loglik: float, sigma0: np.ndarray,
                 information: np.ndarray | None) -> tuple[FitIndices, list[Flag]]:
@@ -180,9 +194,12 @@ class WindowObjective:
                           self.n_rows, sigma_sat, imp.sigma)
         if fit.df > 0:
             w = self.data.width
-            scores = WindowScores.at(self.data, imp.mu, imp.sigma)
-            traces = fit_test_traces(scores, imp.sigma, self.segment, self.joined, self.order,
-                                     [model, baseline_projection(w)])
+            scores, summed = self.scores(theta)
+            own = information if self.data.complete else None   # K = D' H_s D
+            traces = fit_test_traces(
+                scores, imp.sigma, self.segment, self.joined, self.order,
+                [(model, own, summed),
+                 (baseline_projection(w), baseline_information(self.data, imp.sigma), None)])
             fit = replace(fit, scaled=scaled_fit(fit, w, 2.0 * (ll_sat - ll_base), traces))
         return fit, ([] if sat_ok else [warn.saturated_not_converged()])
 

@@ -33,7 +33,7 @@ for complete windows H_s^-1 acts in closed form: g1' H_s^-1 g2 = (g1_mu' Sigma g
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from arch.covariance.kernel import Bartlett as Bartlett
@@ -74,6 +74,7 @@ class WindowScores:
     data: PatternData
     a: np.ndarray          # (n, w): S_o^-1 (y_o - mu_o), zero on missing entries
     inverse: np.ndarray    # (G, w, w): S_o^-1 per pattern, zero on missing rows and columns
+    _sums: dict = field(default_factory=dict, repr=False)
 
     @classmethod
     def at(cls, data: PatternData, mu: np.ndarray, sigma: np.ndarray) -> "WindowScores":
@@ -96,8 +97,15 @@ class WindowScores:
             out[lo:lo + 512] += 0.5 * np.einsum("rqb,rb->rq", (a @ flat).reshape(len(a), -1, w), a)
         return out
 
-    def sums(self, clusters: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Element-wise scores summed within each cluster: (C, w) and (C, w, w)."""
+    def cluster_sums(self, clusters: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Element-wise scores summed within each cluster: (C, w) and (C, w, w), computed
+        once per cluster labelling."""
+        key = clusters.tobytes()
+        if key not in self._sums:
+            self._sums[key] = self._sums_of(clusters)
+        return self._sums[key]
+
+    def _sums_of(self, clusters: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         labels, index = np.unique(clusters, return_inverse=True)
         c, w = labels.size, self.a.shape[1]
         mu = np.zeros((c, w))
@@ -116,16 +124,6 @@ class WindowScores:
 def project(mu: np.ndarray, sigma: np.ndarray, p: Projection) -> np.ndarray:
     """(C, q): element-wise score sums mapped by `p`."""
     return mu @ p.mu.T + sigma.reshape(len(sigma), -1) @ p.sigma.reshape(len(p.sigma), -1).T
-
-
-def score_covariance(scores: WindowScores, p: Projection, segment: np.ndarray,
-                     joined: bool, order: np.ndarray) -> np.ndarray:
-    """J of the module docstring for the scores mapped by `p` (rows in window order `order`
-    within segments)."""
-    if not joined:
-        summed = project(*scores.sums(segment), p)
-        return summed.T @ summed
-    return kernel_covariance(scores.rows(p), segment, order)
 
 
 def kernel_covariance(rows: np.ndarray, segment: np.ndarray, order: np.ndarray) -> np.ndarray:
@@ -203,44 +201,58 @@ def baseline_projection(width: int) -> Projection:
     return Projection(mu, sigma)
 
 
-def fit_test_traces(scores: WindowScores, sigma_sat: np.ndarray, segment: np.ndarray,
-                    joined: bool, order: np.ndarray, models: list[Projection]) -> list[Traces]:
-    """tr(U Gamma), tr((U Gamma)^2) for each model's projection D in `models`, with the
-    saturated scores `scores` (at the saturated estimate Sigma_sat) and K = D' H_s D."""
+def baseline_information(data: PatternData, sigma: np.ndarray) -> np.ndarray:
+    """D_b' H_s D_b of the independence baseline (free means and variances): mean block
+    n_g S_o^-1, variance block n_g K_ab^2 / 2 (K = S_o^-1 padded)."""
+    w = data.width
+    inverse = np.where(data.obs_outer, np.linalg.inv(data.padded(sigma)), 0.0)
+    out = np.zeros((2 * w, 2 * w))
+    for n, k in zip(data.counts, inverse):
+        out[:w, :w] += n * k
+        out[w:, w:] += 0.5 * n * k * k
+    return out
+
+
+def fit_test_traces(scores: WindowScores, sigma: np.ndarray, segment: np.ndarray,
+                    joined: bool, order: np.ndarray,
+                    models: list[tuple[Projection, np.ndarray | None, np.ndarray | None]]
+                    ) -> list[Traces]:
+    """tr(U Gamma), tr((U Gamma)^2) of each model against the saturated model, with the
+    window scores `scores` taken at the moments whose covariance is `sigma`. Each model is
+    (D, K, summed): its projection, its information D' H_s D (None: computed here) and its
+    cluster sums of scores (None: computed here); with clusters, the scores' sums
+    `scores.sums(segment)` may be passed in through `sums` of the first call."""
     data = scores.data
     if joined:
         j_s = kernel_covariance(scores.rows(saturated_projection(data.width)), segment, order)
-        h_s = saturated_information(data, sigma_sat)
+        h_s = saturated_information(data, sigma)
         gamma = np.linalg.solve(h_s, j_s).T                      # J_s H_s^-1
         out = []
-        for model in models:
+        for model, information, _ in models:
             d = _in_saturated_terms(model, data.width)
             h_d = h_s @ d
-            u_gamma = gamma - h_d @ np.linalg.pinv(d.T @ h_d, hermitian=True) @ (d.T @ gamma)
+            k = d.T @ h_d if information is None else information
+            u_gamma = gamma - h_d @ np.linalg.pinv(k, hermitian=True) @ (d.T @ gamma)
             out.append(Traces(float(np.trace(u_gamma)), float(np.sum(u_gamma * u_gamma.T))))
         return out
-    mu_sums, sigma_sums = scores.sums(segment)
-    if data.complete:           # H_s^-1 and D' H_s D in closed form
-        chol = np.linalg.cholesky(sigma_sat)
-        n = data.n_rows
+    mu_sums, sigma_sums = scores.cluster_sums(segment)
+    h_s = None
+    if data.complete:           # H_s^-1 in closed form
+        chol = np.linalg.cholesky(sigma)
         z_mu = mu_sums @ chol
         z_sigma = (chol.T @ sigma_sums @ chol).reshape(len(mu_sums), -1)
-        inner = (z_mu @ z_mu.T + 2.0 * z_sigma @ z_sigma.T) / n
-        half = np.linalg.inv(chol)
-        informations = []
-        for model in models:
-            u = model.mu @ half.T
-            v = (half @ model.sigma @ half.T).reshape(len(model.mu), -1)
-            informations.append(n * (u @ u.T + 0.5 * v @ v.T))
+        inner = (z_mu @ z_mu.T + 2.0 * z_sigma @ z_sigma.T) / data.n_rows
     else:
-        h_s = saturated_information(data, sigma_sat)
+        h_s = saturated_information(data, sigma)
         sat = project(mu_sums, sigma_sums, saturated_projection(data.width))
         inner = sat @ np.linalg.solve(h_s, sat.T)
-        informations = [d.T @ h_s @ d for d in
-                        (_in_saturated_terms(model, data.width) for model in models)]
     out = []
-    for model, information in zip(models, informations):
-        summed = project(mu_sums, sigma_sums, model)
+    for model, information, summed in models:
+        if information is None:
+            h_s = saturated_information(data, sigma) if h_s is None else h_s
+            d = _in_saturated_terms(model, data.width)
+            information = d.T @ h_s @ d
+        summed = project(mu_sums, sigma_sums, model) if summed is None else summed
         c = inner - summed @ np.linalg.pinv(information, hermitian=True) @ summed.T
         small = len(c) / (len(c) - 1.0) if len(c) > 1 else 1.0    # G / (G - 1) for J_s
         out.append(Traces(small * float(np.trace(c)), small ** 2 * _square_trace(c)))

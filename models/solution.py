@@ -54,7 +54,7 @@ class Objective(Protocol):
     def information(self, theta: np.ndarray, sizes: np.ndarray,
                     monitor: Monitor | None) -> np.ndarray: ...
 
-    cheap_steps: bool   # step_information is cheap: refits take Newton steps too
+    cheap_steps: bool   # step_information is cheap: Newton steps finish every optimum
 
     def step_information(self, theta: np.ndarray) -> np.ndarray | None: ...
 
@@ -116,35 +116,30 @@ def solve(objective: Objective, notes: list[str], monitor: Monitor | None = None
     checkpoint(monitor, 0.02, "Start values")
     theta0 = start_vector(objective, start, scaled(monitor, 0.02, 0.3))
     sizes = layout.sizes(theta0, objective.item_var)
-    # When an information for Newton steps is at hand (it is computed anyway for standard
-    # errors, and cheap for the window likelihood), a rough optimum, then Newton steps; if they
-    # do not settle, the precise optimiser finishes and the steps are tried again.
-    def step_information(at: np.ndarray, fraction: float) -> np.ndarray | None:
-        if standard_errors:
-            return objective.information(at, sizes, scaled(monitor, fraction, fraction + 0.05))
-        return objective.step_information(at)
-
-    rough = standard_errors or objective.cheap_steps
+    # Objectives with a cheap information for Newton steps (the window likelihood's expected
+    # information): a rough optimum, then Newton steps until they settle (else the precise
+    # optimiser finishes and the steps are tried again). Others: the precise optimiser.
+    cheap = objective.cheap_steps
     theta, ok, message, iterations = maximise(objective, theta0, sizes, options.max_iter,
-                                              scaled(monitor, 0.3, 0.8), precise=not rough)
+                                              scaled(monitor, 0.3, 0.75), precise=not cheap)
     steps = 0
-    cov = cov_model = np.full((layout.n_free, layout.n_free), np.nan)
-    information = None
-    if rough:
-        checkpoint(monitor, 0.8, "Standard errors" if standard_errors else "Newton steps")
-        information = step_information(theta, 0.8)
-        theta, steps, settled = newton_polish(objective, theta, information)
+    if cheap:
+        checkpoint(monitor, 0.75, "Newton steps")
+        theta, steps, settled = newton_polish(objective, theta, objective.step_information(theta))
         if not settled and iterations < options.max_iter:
             theta, ok, message, more = maximise(objective, theta, sizes, options.max_iter - iterations,
-                                                scaled(monitor, 0.8, 0.85))
+                                                scaled(monitor, 0.75, 0.8))
             iterations += more
-            information = step_information(theta, 0.85)
+            theta, more_steps, _ = newton_polish(objective, theta, objective.step_information(theta))
+            steps += more_steps
+    cov = cov_model = np.full((layout.n_free, layout.n_free), np.nan)
+    information = None
+    if standard_errors:     # the errors belong to the estimate reported
+        checkpoint(monitor, 0.8, "Standard errors")
+        information = objective.information(theta, sizes, scaled(monitor, 0.8, 0.88))
+        if not cheap:
             theta, more_steps, _ = newton_polish(objective, theta, information)
             steps += more_steps
-        if steps and standard_errors:   # the errors belong to the estimate reported
-            information = step_information(theta, 0.85)
-    if not standard_errors:
-        information = None
     ll, grad = objective.loglik_and_gradient(theta)
     inside = interior(objective, theta)
     verdict = judge(ok, message, grad, sizes, inside, objective.n_rows)
