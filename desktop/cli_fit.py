@@ -26,7 +26,7 @@ from lagwise.models.project import (
 from lagwise.models.report import format_lag2, format_responses, format_result
 from lagwise.models.responses import MAX_HORIZON, check_horizon, impulse_responses
 from lagwise.models.results import _finite
-from lagwise.models.estimators import ESTIMATORS, MISSING, FitOptions
+from lagwise.models.estimators import ERRORS, ESTIMATORS, MISSING, FitOptions
 from lagwise.models.spec import ModelSpec, State, full_mask, inertia_mask
 
 
@@ -45,6 +45,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     est = parser.add_argument_group("estimation")
     est.add_argument("--estimator", choices=ESTIMATORS, default="stationary")
     est.add_argument("--missing", choices=MISSING, default="fiml")
+    est.add_argument("--se", choices=tuple(ERRORS),
+                     help="standard errors: robust (sandwich; the default for lag windows) or "
+                          "model (inverse information; the exact estimator's)")
     est.add_argument("--depth", type=int, help="window depth (default: the lag order)")
     est.add_argument("--night-gap", type=int, metavar="N",
                      help="exact estimator: join the days with N missed prompts between them "
@@ -106,7 +109,7 @@ def run(args: argparse.Namespace) -> int:
             args.items = ",".join(spec.items)
         diary = diary_from_args(args)
         options = FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth,
-                             night_gap=args.night_gap, max_iter=args.max_iter)
+                             night_gap=args.night_gap, max_iter=args.max_iter, se=args.se)
     result = fit(diary, spec, options)
     print(format_result(result))
     responses = impulse_responses(result, args.horizon)

@@ -27,7 +27,8 @@ from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.robust import (Projection, WindowScores, baseline_information,
                                    baseline_projection, fit_test_traces, kernel_covariance,
                                    project)
-from lagwise.models.results import FitIndices
+from lagwise.models.results import (CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO, CAUTION_ROBUST_SE,
+                                     CAUTION_SE, FitIndices)
 from lagwise.models.spec import ModelSpec
 from lagwise.models.start import start_matrices
 from lagwise.models.windows import LagWindows, lag_windows
@@ -204,4 +205,7 @@ class WindowObjective:
         return fit, ([] if sat_ok else [warn.saturated_not_converged()])
 
     def result_fields(self, theta: np.ndarray, mats: Matrices) -> dict[str, Any]:
-        return {"depth": self.depth}
+        robust = self.options.standard_errors == "robust"
+        return {"depth": self.depth,
+                "cautions": (CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO,
+                             CAUTION_ROBUST_SE if robust else CAUTION_SE)}

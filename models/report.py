@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from lagwise.models.estimators import ERRORS
 from lagwise.models.kinds import Kind
 from lagwise.models.lag2check import Lag2Check
 from lagwise.models.numbers import fmt
@@ -17,6 +18,7 @@ def format_result(result: FitResult) -> str:
         lines.append(f"  optimiser: {result.message}")
     lines.append(f"  {result.n_occasions} occasions, {result.data_used} used, "
                  f"{result.fit.n_free} free parameters, spectral radius {result.spectral_radius:.3f}")
+    lines.append(f"  standard errors: {ERRORS[result.se_method]}")
     for kind in Kind:
         rows = result.table(kind)
         if not rows:
@@ -33,6 +35,12 @@ def format_result(result: FitResult) -> str:
     lines.append("")
     label = "exact likelihood of the series" if f.exact else "window pseudo-likelihood"
     lines.append(f"Fit ({label})")
+    s = f.scaled
+    if s is not None:
+        lines.append(f"  calibrated test (mean-and-variance adjusted for overlapping windows): "
+                     f"chi-square {fmt(s.chi2, digits=2)} on {fmt(s.df, digits=1)} df, p {fmt(s.p, 'p')}")
+        lines.append(f"  calibrated RMSEA {fmt(s.rmsea)}   CFI {fmt(s.cfi)}   TLI {fmt(s.tli)}")
+        lines.append("  unadjusted (windows as independent rows; for reference):")
     if f.chi2 is not None:
         lines.append(f"  chi-square {fmt(f.chi2, digits=2)} on {f.df} df, p {fmt(f.p, 'p')}")
     if f.rmsea is not None:

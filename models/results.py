@@ -29,6 +29,10 @@ CAUTION_PSEUDO = (
     "approximate; they are not the likelihood of the series.")
 CAUTION_SE = (
     "Standard errors are approximate: overlapping windows are treated as independent.")
+CAUTION_ROBUST_SE = (
+    "Standard errors are robust (sandwich): they allow for overlapping lag windows and for "
+    "dependence within a day (or, with days joined, between neighbouring prompts); with a few "
+    "hundred prompts they are still approximate. The calibrated fit test allows for the same.")
 Z95 = float(norm.ppf(0.975))
 SE_METHODS = ("robust", "model")
 

@@ -12,7 +12,8 @@ from PySide6.QtWidgets import QComboBox, QLabel, QLineEdit
 from lagwise.desktop.results.tables import SORT_ROLE, parameters_model
 from lagwise.models.kinds import Kind
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, table_view
-from lagwise.models.results import CAUTION_SE, FitResult
+from lagwise.models.estimators import ERRORS
+from lagwise.models.results import FitResult
 
 
 class ParameterFilter(QSortFilterProxyModel):
@@ -69,9 +70,8 @@ class ParametersPanel(ResultsPanel):
         self.table.setSortingEnabled(True)
         self.table.sortByColumn(-1, Qt.SortOrder.AscendingOrder)
         self.body.addWidget(self.table, 1)
-        self.body.addWidget(note_label(
-            "Click a column title to sort. " + CAUTION_SE + " The 95% interval is estimate ± 1.96 SE; "
-            "z = estimate / SE. Fixed parameters are set by the model, not estimated."))
+        self.note = note_label("")
+        self.body.addWidget(self.note)
 
     def _set_text(self, text: str) -> None:
         self.proxy.setFilterRegularExpression(
@@ -80,6 +80,11 @@ class ParametersPanel(ResultsPanel):
 
     def show_result(self, result: FitResult) -> None:
         self.model.set_rows(result.parameters)
+        self.note.setText(
+            f"Click a column title to sort. Standard errors (SE): {ERRORS[result.se_method]}; "
+            "SE (model) beside them for comparison. The 95% interval is estimate ± 1.96 SE; "
+            "z = estimate / SE. Fixed parameters are set by the model, not estimated. "
+            + result.cautions[-1])
         present = [k for k in Kind if any(p.kind == k for p in result.parameters)]
         current = self.kind_box.currentData()
         self.kind_box.blockSignals(True)
