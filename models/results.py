@@ -26,7 +26,8 @@ CAUTION_IDIOGRAPHIC = (
 CAUTION_PSEUDO = (
     "Window fit figures (chi-square, RMSEA, CFI, TLI, SRMR, log-likelihood, AIC, BIC) treat "
     "overlapping lag windows as independent rows: they are pseudo-likelihood figures and only "
-    "approximate; they are not the likelihood of the series.")
+    "approximate; they are not the likelihood of the series. The calibrated test and the "
+    "calibrated RMSEA, CFI and TLI allow for the overlap; the others lean towards good fit.")
 CAUTION_SE = (
     "Standard errors are approximate: overlapping windows are treated as independent.")
 CAUTION_ROBUST_SE = (
