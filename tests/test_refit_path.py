@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from lagwise.models.estimate import fit
 from lagwise.models.estimators import FitOptions
 from lagwise.models.objective import WindowObjective
 from lagwise.models.patterns import PatternData
@@ -53,3 +54,21 @@ def test_accelerated_em_reaches_the_plain_em_fixed_point():
     np.testing.assert_allclose(sigma_fast, sigma, atol=1e-7)
     assert abs(ll_fast - data.loglik(mu, sigma, gradient=False)[0]) < 1e-8
     assert counted[0] < plain_steps
+
+
+def test_refit_from_a_result_scales_by_its_errors_and_finds_the_same_optimum():
+    # Started from a previous result the optimiser works in that result's standard errors;
+    # the optimum is the one the precise optimiser finds at the typical sizes (started from
+    # the same values given as a plain vector), within a thousandth of a standard error.
+    first = fit(_diary(11), SPEC)
+    se = np.array([p.se for p in first.free_parameters])
+    values = np.array([p.estimate for p in first.free_parameters])
+    for seed in (12, 13):
+        other = _diary(seed)
+        scaled = fit(other, SPEC, standard_errors=False, start=first)
+        plain = fit(other, SPEC, standard_errors=False, start=values)
+        assert scaled.converged and plain.converged
+        a = np.array([p.estimate for p in scaled.free_parameters])
+        b = np.array([p.estimate for p in plain.free_parameters])
+        assert np.max(np.abs(a - b) / se) < 1e-3
+        assert scaled.iterations < plain.iterations
