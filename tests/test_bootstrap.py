@@ -92,6 +92,18 @@ def test_joined_days_use_stationary_blocks_with_the_optimal_block_length():
     assert all(tuple(np.nan_to_num(row, nan=-999.0)) in originals for row in again.values)
 
 
+def test_a_diary_with_joined_days_is_bootstrapped_in_stationary_blocks():
+    # Politis & Romano (1994) when windows span nights: the plan, its block length and the
+    # JSON carry the method; every replicate refits the same model (definition).
+    diary = _joined(_diary(4, days=10))
+    result = fit(diary, SPEC)
+    made = bootstrap(diary, SPEC, result.options, result, replicates=6, jobs=1)
+    assert made.method == BLOCKS
+    assert made.block_length == resampler(diary.select(SPEC.items)).block_length
+    assert made.used + made.failed == 6 and made.used > 0
+    assert Bootstrap.from_json(jr.parse(json.dumps(made.to_json()))).block_length == made.block_length
+
+
 # ----- running -------------------------------------------------------------------------------
 @pytest.fixture(scope="module")
 def small():
