@@ -122,8 +122,9 @@ def solve(objective: Objective, notes: list[str], monitor: Monitor | None = None
     sizes = layout.sizes(theta0, objective.item_var)
     # with standard errors the information is computed anyway: a rough optimum, then Newton
     # steps; if those do not settle, the precise optimiser finishes and the steps are retried
-    theta, ok, message, iterations = maximise(objective, theta0, start_scale(start, layout, sizes), options.max_iter,
-                                              scaled(monitor, 0.3, 0.8), precise=not standard_errors)
+    theta, ok, message, iterations = maximise(objective, theta0, start_scale(start, layout, sizes),
+                                              options.max_iter, scaled(monitor, 0.3, 0.8),
+                                              precise=not standard_errors)
     steps = 0
     cov = np.full((layout.n_free, layout.n_free), np.nan)
     if standard_errors:
