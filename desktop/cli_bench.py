@@ -1,8 +1,8 @@
 """`lagwise bench [--quick] [--repeats N] [--all-peers] [--semopy-threads 1|default]
 [--no-memory] [--exact-only | --no-exact]`: speed and memory of the window estimators against
-semopy and of the exact estimator against statsmodels on simulated diaries (models.benchmark),
-printed as tables with PASS/MISS lines for the targets. Always exits 0: a benchmark reports,
-it does not fail.
+semopy, the refit against a full fit, and the exact estimator against statsmodels on simulated
+diaries (models.bench), printed as tables with PASS/MISS lines for the targets. Always exits
+0: a benchmark reports, it does not fail.
 """
 
 from __future__ import annotations
@@ -10,7 +10,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from lagwise.models.benchmark import format_report, run_benchmark
+from lagwise.models.bench import format_report, run_benchmark
 
 
 class _Progress:
@@ -35,7 +35,8 @@ def _positive(text: str) -> int:
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--quick", action="store_true",
-                        help="only the small diaries, one run each, and 10,000-prompt memory runs")
+                        help="only the small diaries, one run each, 3 refit replicates and "
+                             "10,000-prompt memory runs")
     parser.add_argument("--repeats", type=_positive, metavar="N",
                         help="runs per timing, the best kept (default 3, or 1 with --quick)")
     parser.add_argument("--all-peers", action="store_true",
@@ -48,7 +49,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     sections.add_argument("--exact-only", action="store_true",
                           help="only the exact estimator against statsmodels")
     sections.add_argument("--no-exact", action="store_true",
-                          help="only the window estimators against semopy")
+                          help="only the window estimators against semopy, and the refit")
 
 
 def run(args: argparse.Namespace) -> int:

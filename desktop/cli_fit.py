@@ -24,9 +24,10 @@ from lagwise.models.project import (
     Project, embed_file, is_project_file, open_project, project_diary, save_project,
 )
 from lagwise.models.bootstrap import Bootstrap, bootstrap
-from lagwise.models.report import format_bootstrap, format_lag2, format_result
+from lagwise.models.report import format_bootstrap, format_lag2, format_responses, format_result
+from lagwise.models.responses import MAX_HORIZON, check_horizon, impulse_responses
 from lagwise.models.results import _finite
-from lagwise.models.estimators import ESTIMATORS, MISSING, FitOptions
+from lagwise.models.estimators import ERRORS, ESTIMATORS, MISSING, FitOptions
 from lagwise.models.spec import ModelSpec, State, full_mask, inertia_mask
 
 
@@ -45,6 +46,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     est = parser.add_argument_group("estimation")
     est.add_argument("--estimator", choices=ESTIMATORS, default="stationary")
     est.add_argument("--missing", choices=MISSING, default="fiml")
+    est.add_argument("--se", choices=tuple(ERRORS),
+                     help="standard errors: robust (sandwich; the default for lag windows) or "
+                          "model (inverse information; the exact estimator's)")
     est.add_argument("--depth", type=int, help="window depth (default: the lag order)")
     est.add_argument("--night-gap", type=int, metavar="N",
                      help="exact estimator: join the days with N missed prompts between them "
@@ -53,6 +57,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                      help=f"optimiser iterations at most (default {FitOptions.max_iter})")
     parser.add_argument("--lag2-check", action="store_true",
                         help="test whether lag 1 is enough (lag-2 paths and autocorrelated unique parts)")
+    parser.add_argument("--horizon", type=int, default=10, metavar="H",
+                        help=f"impulse responses over H prompts (1 to {MAX_HORIZON}, default 10): "
+                             "printed, and written to the JSON as \"responses\"")
     boot = parser.add_argument_group("bootstrap")
     boot.add_argument("--bootstrap", type=int, metavar="N",
                       help="check the stability of the estimates with N bootstrap replicates "
@@ -66,10 +73,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="also save the data, model, settings and result as a project file")
     parser.epilog = ("DATA may be a saved project (PROJECT.lagwise): it is refitted with its "
                      "own data, model and estimator settings; only --json, --save, "
-                     "--lag2-check and the bootstrap options may be added.")
+                     "--lag2-check, --horizon and the bootstrap options may be added.")
 
 
-PROJECT_RUN_OPTIONS = ("data", "json", "save", "lag2_check", "bootstrap", "seed", "jobs")
+PROJECT_RUN_OPTIONS = ("data", "json", "save", "lag2_check", "horizon", "bootstrap", "seed", "jobs")
 
 
 def parse_states(texts: list[str] | None) -> tuple[State, ...]:
@@ -101,6 +108,7 @@ def run(args: argparse.Namespace) -> int:
     check_bootstrap_arguments(args)
     if args.save is not None and not is_project_file(args.save):
         raise ProjectError(f"--save {args.save}: a project file name ends in .lagwise")
+    check_horizon(args.horizon)
     project: Project | None = None
     if is_project_file(args.data):
         project = project_to_refit(args)
@@ -111,10 +119,14 @@ def run(args: argparse.Namespace) -> int:
             args.items = ",".join(spec.items)
         diary = diary_from_args(args)
         options = FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth,
-                             night_gap=args.night_gap, max_iter=args.max_iter)
+                             night_gap=args.night_gap, max_iter=args.max_iter, se=args.se)
     result = fit(diary, spec, options)
     print(format_result(result))
+    responses = impulse_responses(result, args.horizon)
+    print()
+    print(format_responses(responses))
     doc = result.to_json()
+    doc["responses"] = responses.to_json()
     if args.lag2_check:
         check = lag2_check(diary, spec, options)
         print()

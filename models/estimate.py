@@ -26,8 +26,9 @@ def fit(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions(),
     EstimationError when no estimate can be produced, Cancelled.
 
     A refit (bootstrap, study planning, many people) can skip the standard errors
-    (standard_errors=False: no observed information, no Newton polish) and start from a
-    previous result or named estimates (`start`; models.solution.start_vector).
+    (standard_errors=False: no information for errors, no fit test: log-likelihood, AIC and
+    BIC only) and start from a previous result or named estimates (`start`;
+    models.solution.start_vector).
     """
     notes = spec.validate(diary.items)
     with one_blas_thread():

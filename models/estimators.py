@@ -50,6 +50,7 @@ class Estimator:
     uses_windows: bool
     free_first_copies: bool
     missing: tuple[str, ...]        # offered handling of missed prompts; the first is the default
+    errors: tuple[str, ...]         # standard errors it offers; the first is the default
     settings: tuple[str, ...]       # optional FitOptions fields it takes
     objective: str                  # "module:Class"
 
@@ -64,6 +65,10 @@ SETTINGS = {s.field: s for s in (
     Setting("depth", "a window depth", "--depth"),
     Setting("night_gap", "a night gap", "--night-gap"),
 )}
+ERRORS = {
+    "robust": "robust (sandwich): overlapping windows and dependence within a day allowed for",
+    "model": "model-based (inverse information)",
+}
 MISSING = {m.name: m for m in (
     MissingHandling("fiml", "Use every answer (full information)",
                     "full information (every answered item used)"),
@@ -77,7 +82,7 @@ ESTIMATORS = {e.name: e for e in (
         "assuming the person's dynamics stay the same throughout. Fast and reliable. The windows "
         "overlap, so its fit figures (chi-square, AIC, BIC) are approximate.",
         uses_windows=True, free_first_copies=False, missing=("fiml", "listwise"),
-        settings=("depth",), objective=_WINDOWS),
+        errors=("robust", "model"), settings=("depth",), objective=_WINDOWS),
     Estimator(
         "first-copy-free", "Lag windows, first copy free (no stationarity assumed)",
         "lag windows, first copy free",
@@ -85,14 +90,14 @@ ESTIMATORS = {e.name: e for e in (
         "window is left free. A useful cross-check of the stationary estimate; it needs more "
         "windows.",
         uses_windows=True, free_first_copies=True, missing=("fiml", "listwise"),
-        settings=("depth",), objective=_WINDOWS),
+        errors=("robust", "model"), settings=("depth",), objective=_WINDOWS),
     Estimator(
         "exact", "Exact (Kalman filter, whole series)", "exact likelihood (Kalman filter)",
         "Follows the whole series prompt by prompt with the Kalman filter: every answered prompt "
         "counts, missed prompts are bridged, and the log-likelihood, AIC and BIC are exact, so "
         "they compare models properly. Also gives each state's score at every prompt. Slower; "
         "starts from the stationary estimate.",
-        uses_windows=False, free_first_copies=False, missing=("fiml",),
+        uses_windows=False, free_first_copies=False, missing=("fiml",), errors=("model",),
         settings=("night_gap",), objective="lagwise.models.exact:ExactObjective"),
 )}
 DEFAULT_ESTIMATOR = "stationary"
@@ -106,6 +111,10 @@ def estimator(name: str) -> Estimator:
         raise SpecError(f"Unknown estimator '{name}' (choose {', '.join(ESTIMATORS)}).") from None
 
 
+def _error_choice(value: object, where: str) -> str | None:
+    return None if value is None else jr.choice(value, where, tuple(ERRORS))
+
+
 @dataclass(frozen=True)
 class FitOptions:
     """Estimator settings, checked against the registry when made.
@@ -115,7 +124,8 @@ class FitOptions:
     depth: window depth (window estimators; default the lag order). night_gap (exact only):
     join the days with this many missed prompts between them (the states carry over the
     night) instead of restarting each day. max_iter: optimiser iterations at most.
-    A setting the estimator does not take is refused with a plain message; `for_estimator`
+    se: the standard errors shown, "robust" or "model" (None: the estimator's default, see
+    `standard_errors`). A setting the estimator does not take is refused with a plain message; `for_estimator`
     switches estimator and drops what the new one does not take.
     """
 
@@ -124,6 +134,7 @@ class FitOptions:
     depth: int | None = None
     max_iter: int = 2000
     night_gap: int | None = None
+    se: str | None = None
 
     def __post_init__(self) -> None:
         method = estimator(self.estimator)
@@ -133,6 +144,10 @@ class FitOptions:
         if self.missing not in method.missing:
             raise SpecError(f"The {method.short} estimator handles missed prompts itself; "
                             f"--missing {self.missing} needs a lag-window estimator.")
+        if self.se is not None and self.se not in method.errors:
+            raise SpecError(f"The {method.short} estimator offers {' or '.join(method.errors)} "
+                            f"standard errors, not '{self.se}' (--se {self.se} needs a "
+                            f"lag-window estimator).")
         for setting in SETTINGS.values():
             if getattr(self, setting.field) is not None and setting.field not in method.settings:
                 takers = [e.name for e in ESTIMATORS.values() if setting.field in e.settings]
@@ -149,12 +164,18 @@ class FitOptions:
     def method(self) -> Estimator:
         return ESTIMATORS[self.estimator]
 
+    @property
+    def standard_errors(self) -> str:
+        """The standard errors to show: `se`, or the estimator's default."""
+        return self.se or self.method.errors[0]
+
     def for_estimator(self, name: str) -> "FitOptions":
         """The same settings for estimator `name`, without those it does not take."""
         method = estimator(name)
         drop = {s: None for s in SETTINGS if s not in method.settings}
         missing = self.missing if self.missing in method.missing else method.missing[0]
-        return replace(self, estimator=name, missing=missing, **drop)
+        se = self.se if self.se in method.errors else None
+        return replace(self, estimator=name, missing=missing, se=se, **drop)
 
     def window_depth(self, spec: "ModelSpec") -> int:
         d = spec.lags if self.depth is None else int(self.depth)
@@ -175,6 +196,7 @@ class FitOptions:
             jr.field("depth", jr.integer, None, low=0, high=50, null=True),
             jr.field("max_iter", jr.integer, 2000, low=1, high=10_000_000),
             jr.field("night_gap", jr.integer, None, low=0, high=1000, null=True),
+            jr.field("se", _error_choice, None),
         ))
         try:
             return cls(**fields)

@@ -93,6 +93,11 @@ class ExactObjective:
         theta0, self.start_loglik = _window_start(self.diary, self.spec, self.options, self, monitor)
         return theta0
 
+    cheap_steps = False  # its information costs a gradient per parameter: the precise L-BFGS-B
+
+    def step_information(self, theta: np.ndarray) -> None:
+        return None
+
     def information(self, theta: np.ndarray, sizes: np.ndarray,
                     monitor: Monitor | None = None) -> np.ndarray:
         """The observed information (forward differences of the analytic gradient)."""
@@ -101,11 +106,14 @@ class ExactObjective:
     def preflight(self) -> list[Flag]:
         return []
 
+    def score_covariance(self, theta: np.ndarray) -> np.ndarray:
+        raise EstimationError("The exact estimator's errors come from its exact likelihood.")
+
     def latent_covariance(self, theta: np.ndarray, mats: Matrices, radius: float) -> np.ndarray:
         raise EstimationError(f"The lagged paths are not stationary (spectral radius {radius:.3f}).")
 
-    def figures(self, theta: np.ndarray, loglik: float, sigma0: np.ndarray
-                ) -> tuple[FitIndices, list[Flag]]:
+    def figures(self, theta: np.ndarray, loglik: float, sigma0: np.ndarray,
+                information: np.ndarray | None) -> tuple[FitIndices, list[Flag]]:
         """The exact log-likelihood, AIC and BIC (n = answered prompts); no window figures."""
         ix = fit_indices(loglik, None, 0.0, self.layout.n_free, 0, self.n_rows, None, sigma0)
         return replace(ix, df=0, exact=True), []

@@ -7,6 +7,9 @@ inverting the noncentral chi-square, close-fit p = P(chi2_df(lambda = 0.05^2 df 
 (Browne & Cudeck 1993). CFI (Bentler 1990) and TLI (Tucker & Lewis 1973) against the
 independence baseline; SRMR (Bentler 1995): root mean square of (s_ij - sigma_ij) /
 sqrt(s_ii s_jj) over i <= j. AIC = -2 loglik + 2 n_free, BIC = -2 loglik + n_free log N.
+Calibrated for overlapping windows (models.robust): the scaled statistic T / c, c =
+tr(U Gamma) / df (Satorra & Bentler 1994), the mean-and-variance adjusted one (Satterthwaite
+1946), and RMSEA, CFI and TLI from the scaled statistics of the model and the baseline.
 """
 
 from __future__ import annotations
@@ -16,7 +19,8 @@ from scipy.special import chndtrinc
 from scipy.stats import chi2 as chi2_dist
 from scipy.stats import ncx2
 
-from lagwise.models.results import FitIndices
+from lagwise.models.results import FitIndices, ScaledFit
+from lagwise.models.robust import Traces
 
 
 def rmsea_interval(chi2: float, df: int, n: int, level: float = 0.90) -> tuple[float, float]:
@@ -66,3 +70,34 @@ def fit_indices(loglik: float, loglik_sat: float | None, loglik_base: float, n_f
     return FitIndices(chi2=float(chi2), df=int(df), p=p, rmsea=rmsea, rmsea_ci=ci, rmsea_pclose=pclose,
                       cfi=float(cfi), tli=None if tli is None else float(tli), srmr=s,
                       loglik=float(loglik), aic=float(aic), bic=float(bic), n_free=n_free, n_obs=n_obs)
+
+
+def scaled_fit(fit: FitIndices, width: int, base_chi2: float, traces: list[Traces]
+               ) -> ScaledFit | None:
+    """The calibrated figures from the traces of the model and of the independence baseline:
+    T* = T d* / tr(U Gamma) on d* = tr(U Gamma)^2 / tr((U Gamma)^2), and the RMSEA, CFI and
+    TLI formulas above with (T*, d*) for the model and the baseline."""
+    model, base = traces
+    df, n = fit.df, fit.n_obs
+    df_b = width * (width + 3) // 2 - 2 * width
+    if df <= 0 or model.first <= 0 or model.second <= 0 or fit.chi2 is None:
+        return None
+    chi2, d = _adjusted(fit.chi2, model)
+    cfi = tli = None
+    if df_b > 0 and base.first > 0 and base.second > 0:
+        chi2_b, d_b = _adjusted(base_chi2, base)
+        denom = max(chi2_b - d_b, chi2 - d, 0.0)
+        cfi = 1.0 - max(chi2 - d, 0.0) / denom if denom > 0 else 1.0
+        if chi2_b / d_b > 1.0:
+            tli = (chi2_b / d_b - chi2 / d) / (chi2_b / d_b - 1.0)
+    c = model.first / df
+    return ScaledFit(chi2=chi2, df=d, p=float(chi2_dist.sf(chi2, d)), scaling=float(c),
+                     scaled_chi2=float(fit.chi2 / c), scaled_p=float(chi2_dist.sf(fit.chi2 / c, df)),
+                     rmsea=float(np.sqrt(max(chi2 - d, 0.0) / (d * n))),
+                     cfi=None if cfi is None else float(cfi), tli=None if tli is None else float(tli))
+
+
+def _adjusted(statistic: float, traces: Traces) -> tuple[float, float]:
+    """(T*, d*): the mean-and-variance adjusted statistic and its degrees of freedom."""
+    d = traces.first ** 2 / traces.second
+    return float(statistic * d / traces.first), float(d)

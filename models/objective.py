@@ -10,20 +10,25 @@ first-copy-free estimators differ only in the covariance of the oldest copies
 
 from __future__ import annotations
 
+from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from lagwise.models import flags as warn
 from lagwise.models.errors import EstimationError, SpecError
-from lagwise.models.fitindices import fit_indices
+from lagwise.models.fitindices import fit_indices, scaled_fit
 from lagwise.models.flags import Flag
 from lagwise.models.implied import Implied, implied_moments, matrix_gradients, moment_jacobian
 from lagwise.models.optimise import observed_information
 from lagwise.models.parameters import Matrices, ParameterLayout
 from lagwise.models.patterns import pattern_data
 from lagwise.models.progress import Monitor, checkpoint
-from lagwise.models.results import FitIndices
+from lagwise.models.robust import (Projection, WindowScores, baseline_information,
+                                   baseline_projection, fit_test_traces, kernel_covariance,
+                                   project)
+from lagwise.models.results import (CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO, CAUTION_ROBUST_SE,
+                                     CAUTION_SE, FitIndices)
 from lagwise.models.spec import ModelSpec
 from lagwise.models.start import start_matrices
 from lagwise.models.windows import LagWindows, lag_windows
@@ -33,6 +38,7 @@ if TYPE_CHECKING:
     from lagwise.models.estimators import FitOptions
 
 MIN_WINDOWS_PER_PARAMETER = 5.0
+MIN_CLUSTERS = 20   # fewer independent segments: the scores' covariance by a kernel (models.robust)
 
 
 class WindowObjective:
@@ -43,12 +49,21 @@ class WindowObjective:
         self.depth = windows.depth
         self.free_first_copies = options.method.free_first_copies
         self.n_occasions = windows.n_occasions
-        rows = windows.data if options.missing == "fiml" else windows.data[windows.complete]
+        keep = slice(None) if options.missing == "fiml" else windows.complete
+        rows = windows.data[keep]
         self.rows = rows
         self.data = pattern_data(rows)
+        # the dependence between windows: segments (clusters) or, with days joined, time order
+        segment = (np.arange(windows.n_windows) if windows.segment is None else windows.segment)
+        self.segment = np.asarray(segment)[keep][self.data.kept]
+        # clusters need many independent segments; with days joined or few segments, a kernel
+        self.joined = windows.days_joined or np.unique(self.segment).size < MIN_CLUSTERS
+        self.order = np.argsort(np.asarray(windows.occasion)[keep][self.data.kept], kind="stable")
         p = len(spec.items)
         self.item_var = np.nanvar(rows[:, :p], axis=0) if rows.size else np.ones(p)
         self.layout = ParameterLayout(spec, self.item_var, self.free_first_copies)
+        self._jacobian: tuple[bytes, Implied, Projection] | None = None
+        self._scores: tuple[bytes, WindowScores, np.ndarray | None] | None = None
 
     @classmethod
     def build(cls, diary: "Diary", spec: ModelSpec, options: "FitOptions",
@@ -83,10 +98,8 @@ class WindowObjective:
         """Expected (Fisher) information of the window rows at `theta`, summed over patterns:
         I_ij = sum_g n_g [ 1/2 tr(S^-1 dS_i S^-1 dS_j) + dmu_i' S^-1 dmu_j ] with S = Sigma_oo
         (normal-theory information; the moment derivatives analytic, models.implied.moment_jacobian)."""
-        m = self.layout.unpack(theta)
-        imp = implied_moments(m, self.depth, self.free_first_copies)
-        d_mu, d_sigma = moment_jacobian(m, self.layout.directions(m), imp, self.depth,
-                                        self.free_first_copies)
+        imp, model = self.jacobian(theta)
+        d_mu, d_sigma = model.mu, model.sigma
         data = self.data
         if data.complete:
             inverses = np.linalg.inv(imp.sigma)[None]
@@ -99,6 +112,12 @@ class WindowObjective:
             y = (inv @ d_sigma @ inv).reshape(n, -1)
             info += count * (0.5 * y @ flat.T + d_mu @ inv @ d_mu.T)
         return 0.5 * (info + info.T)
+
+    cheap_steps = True   # the expected information is analytic: Newton steps finish the optimum
+
+    def step_information(self, theta: np.ndarray) -> np.ndarray:
+        """The information for Newton steps: the expected information (any missingness)."""
+        return self.expected_information(theta)
 
     def information(self, theta: np.ndarray, sizes: np.ndarray,
                     monitor: Monitor | None = None) -> np.ndarray:
@@ -131,13 +150,62 @@ class WindowObjective:
         """Without a stationary solution: the implied covariance of the newest copy."""
         return self.implied(theta).phi_xi[:self.layout.k, :self.layout.k]
 
-    def figures(self, theta: np.ndarray, loglik: float, sigma0: np.ndarray
-                ) -> tuple[FitIndices, list[Flag]]:
-        """Fit indices on the window covariance against the saturated and independence models."""
-        _, sigma_sat, ll_sat, sat_ok = self.data.saturated_model
-        fit = fit_indices(loglik, ll_sat, self.data.independence_loglik(), self.layout.n_free,
-                          self.data.width, self.n_rows, sigma_sat, self.implied(theta).sigma)
+    def jacobian(self, theta: np.ndarray) -> tuple[Implied, Projection]:
+        """The implied moments and their Jacobian at `theta` (the last one is kept)."""
+        key = theta.tobytes()
+        if self._jacobian is None or self._jacobian[0] != key:
+            m = self.layout.unpack(theta)
+            imp = implied_moments(m, self.depth, self.free_first_copies)
+            d_mu, d_sigma = moment_jacobian(m, self.layout.directions(m), imp, self.depth,
+                                            self.free_first_copies)
+            self._jacobian = (key, imp, Projection(d_mu, d_sigma))
+        return self._jacobian[1], self._jacobian[2]
+
+    def scores(self, theta: np.ndarray) -> tuple[WindowScores, np.ndarray | None]:
+        """The window scores at the implied moments of `theta`, and (segments as clusters)
+        their sums by segment mapped to the parameters (the last ones are kept)."""
+        key = theta.tobytes()
+        if self._scores is None or self._scores[0] != key:
+            imp, model = self.jacobian(theta)
+            scores = WindowScores.at(self.data, imp.mu, imp.sigma)
+            summed = None if self.joined else project(*scores.cluster_sums(self.segment), model)
+            self._scores = (key, scores, summed)
+        return self._scores[1], self._scores[2]
+
+    def score_covariance(self, theta: np.ndarray) -> np.ndarray:
+        """J of models.robust: the covariance of the total window score, windows dependent
+        within a segment."""
+        scores, summed = self.scores(theta)
+        if summed is not None:
+            return summed.T @ summed
+        return kernel_covariance(scores.rows(self.jacobian(theta)[1]), self.segment, self.order)
+
+    def figures(self, theta: np.ndarray, loglik: float, sigma0: np.ndarray,
+                information: np.ndarray | None) -> tuple[FitIndices, list[Flag]]:
+        """Fit indices on the window covariance against the saturated and independence models,
+        and the calibrated test of models.robust. Without the information (a refit):
+        the log-likelihood, AIC and BIC only (the saturated model is not needed)."""
+        if information is None:
+            return fit_indices(loglik, None, 0.0, self.layout.n_free, self.data.width,
+                               self.n_rows, None, sigma0), []
+        mu_sat, sigma_sat, ll_sat, sat_ok = self.data.saturated_model
+        ll_base = self.data.independence_loglik()
+        imp, model = self.jacobian(theta)
+        fit = fit_indices(loglik, ll_sat, ll_base, self.layout.n_free, self.data.width,
+                          self.n_rows, sigma_sat, imp.sigma)
+        if fit.df > 0:
+            w = self.data.width
+            scores, summed = self.scores(theta)
+            own = information if self.data.complete else None   # K = D' H_s D
+            traces = fit_test_traces(
+                scores, imp.sigma, self.segment, self.joined, self.order,
+                [(model, own, summed),
+                 (baseline_projection(w), baseline_information(self.data, imp.sigma), None)])
+            fit = replace(fit, scaled=scaled_fit(fit, w, 2.0 * (ll_sat - ll_base), traces))
         return fit, ([] if sat_ok else [warn.saturated_not_converged()])
 
     def result_fields(self, theta: np.ndarray, mats: Matrices) -> dict[str, Any]:
-        return {"depth": self.depth}
+        robust = self.options.standard_errors == "robust"
+        return {"depth": self.depth,
+                "cautions": (CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO,
+                             CAUTION_ROBUST_SE if robust else CAUTION_SE)}

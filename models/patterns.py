@@ -70,6 +70,9 @@ class PatternData:
         for k in range(g):
             rows = dev[order[bounds[k]:bounds[k + 1]]]
             self.covs[k] = rows.T @ rows / self.counts[k]
+        self.kept = keep                                       # rows of `data` with an answer
+        self.filled = filled                                   # (n, w) the answers, 0 where missing
+        self.row_pattern = inverse                             # (n,) pattern of each row
         self.obs_outer = self.observed[:, :, None] & self.observed[:, None, :]
         # every row answered in full: one pattern, no padding needed
         self.complete = g == 1 and bool(self.observed.all())

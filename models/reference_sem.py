@@ -162,7 +162,7 @@ def window_frame(windows: LagWindows) -> pd.DataFrame:
 
 
 def fit_windows(windows: LagWindows, spec: ModelSpec, *, means: str = "items",
-                precise: bool = True, report: bool = False,
+                precise: bool = True, report: bool = False, statistics: bool = True,
                 single_thread: bool = True) -> ReferenceFit:
     """Fit the first-copy-free model with semopy on the complete rows of `windows`.
 
@@ -170,9 +170,10 @@ def fit_windows(windows: LagWindows, spec: ModelSpec, *, means: str = "items",
     (module docstring). precise=True tightens the optimiser (SLSQP ftol 1e-12) for use as
     a check value; False keeps semopy's defaults (benchmark). report=True also computes
     what a user asks semopy for after a fit: the parameter table with standard errors
-    (semopy.inspect) and the fit statistics (semopy.calc_stats). single_thread=False leaves
-    BLAS at its default threads. `seconds` is semopy's own time: model built from its text,
-    data loaded, optimised (and the report).
+    (semopy.inspect) and, unless statistics=False, the fit statistics (semopy.calc_stats).
+    single_thread=False leaves BLAS at its default threads. `seconds` is semopy's own time
+    inside the BLAS limit: model built from its text, data loaded, optimised (and the
+    report); writing the text and the data frame here, and setting the limit, are not in it.
     """
     import semopy
 
@@ -181,8 +182,8 @@ def fit_windows(windows: LagWindows, spec: ModelSpec, *, means: str = "items",
     desc = window_model_description(spec, windows.depth, means=means)
     frame = window_frame(windows)
     kwargs = {"options": {"ftol": 1e-12, "maxiter": 20000}} if precise else {}
-    start = time.perf_counter()
     with threadpool_limits(limits=1 if single_thread else None, user_api="blas"):
+        start = time.perf_counter()
         if means != "free":
             model = semopy.ModelMeans(desc)
             res = model.fit(frame, obj="ML", **kwargs)
@@ -191,8 +192,9 @@ def fit_windows(windows: LagWindows, spec: ModelSpec, *, means: str = "items",
             res = model.fit(frame, obj="MLW", **kwargs)
         if report:
             model.inspect()
-            semopy.calc_stats(model)
-    seconds = time.perf_counter() - start
+            if statistics:
+                semopy.calc_stats(model)
+        seconds = time.perf_counter() - start
     return _collect(model, res, spec, windows.depth, frame.to_numpy(), means, seconds)
 
 

@@ -3,9 +3,11 @@
 from __future__ import annotations
 
 from lagwise.models.bootstrap import Bootstrap
+from lagwise.models.estimators import ERRORS
 from lagwise.models.kinds import Kind
 from lagwise.models.lag2check import Lag2Check
 from lagwise.models.numbers import fmt
+from lagwise.models.responses import Responses
 from lagwise.models.results import FitResult
 
 def format_result(result: FitResult) -> str:
@@ -17,6 +19,7 @@ def format_result(result: FitResult) -> str:
         lines.append(f"  optimiser: {result.message}")
     lines.append(f"  {result.n_occasions} occasions, {result.data_used} used, "
                  f"{result.fit.n_free} free parameters, spectral radius {result.spectral_radius:.3f}")
+    lines.append(f"  standard errors: {ERRORS[result.se_method]}")
     for kind in Kind:
         rows = result.table(kind)
         if not rows:
@@ -33,6 +36,12 @@ def format_result(result: FitResult) -> str:
     lines.append("")
     label = "exact likelihood of the series" if f.exact else "window pseudo-likelihood"
     lines.append(f"Fit ({label})")
+    s = f.scaled
+    if s is not None:
+        lines.append(f"  calibrated test (mean-and-variance adjusted for overlapping windows): "
+                     f"chi-square {fmt(s.chi2, digits=2)} on {fmt(s.df, digits=1)} df, p {fmt(s.p, 'p')}")
+        lines.append(f"  calibrated RMSEA {fmt(s.rmsea)}   CFI {fmt(s.cfi)}   TLI {fmt(s.tli)}")
+        lines.append("  unadjusted (windows as independent rows; for reference):")
     if f.chi2 is not None:
         lines.append(f"  chi-square {fmt(f.chi2, digits=2)} on {f.df} df, p {fmt(f.p, 'p')}")
     if f.rmsea is not None:
@@ -90,3 +99,30 @@ def format_bootstrap(boot: Bootstrap) -> str:
                  "interval is in the JSON.")
     return "\n".join(lines)
 
+
+def format_responses(responses: Responses) -> str:
+    """Unit responses in the states' own units, one block per shocked state (h = 1..H, with
+    the band when there is one), then the half-lives and one sentence per state."""
+    curve = responses.curve("unit")
+    bands = {"delta": "delta method", "percentile": f"bootstrap percentiles, {responses.replicates} replicates"}
+    band = bands.get(responses.interval)
+    head = f"; {100 * responses.level:g}% bands: {band}" if band else "; no bands"
+    lines = [f"Responses to a rise of 1 in each state (unit innovations, the states' own units{head})"]
+    width = 24 if band else 11
+    for j, shock in enumerate(responses.states):
+        lines.append(f"  after a rise of 1 in {shock}")
+        names = "".join(f"{s[:width - 2]:<{width}}" for s in responses.states)
+        lines.append(f"    {'prompts':>7}  {names}".rstrip())
+        for h in range(1, responses.horizon + 1):
+            cells = []
+            for i in range(len(responses.states)):
+                text = fmt(curve.estimate[h, i, j])
+                if band:
+                    text += f" [{fmt(curve.lower[h, i, j])}, {fmt(curve.upper[h, i, j])}]"
+                cells.append(f"{text:<{width}}")
+            lines.append(f"    {h:>7}  {''.join(cells)}".rstrip())
+    halves = [f"{s} {'more than ' + str(responses.horizon) if h is None else h}"
+              for s, h in zip(responses.states, responses.half_life)]
+    lines.append("  half-life (prompts until a state's own response falls below half): " + ", ".join(halves))
+    lines += [f"  - {sentence}" for sentence in responses.sentences()]
+    return "\n".join(lines)

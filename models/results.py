@@ -29,6 +29,10 @@ CAUTION_PSEUDO = (
     "approximate; they are not the likelihood of the series.")
 CAUTION_SE = (
     "Standard errors are approximate: overlapping windows are treated as independent.")
+CAUTION_ROBUST_SE = (
+    "Standard errors are robust (sandwich): they allow for overlapping lag windows and for "
+    "dependence within a day (or, with days joined, between neighbouring prompts); with a few "
+    "hundred prompts they are still approximate. The calibrated fit test allows for the same.")
 Z95 = float(norm.ppf(0.975))
 SE_METHODS = ("robust", "model")
 
@@ -137,6 +141,43 @@ class Parameter:
 
 
 @dataclass(frozen=True)
+class ScaledFit:
+    """The window fit test calibrated for overlapping windows (models.robust): chi2 on df is
+    the mean-and-variance adjusted statistic (the calibrated test; df need not be whole),
+    with RMSEA, CFI and TLI from the adjusted statistics of the model and the baseline;
+    scaled_chi2 = T / scaling on the model's df is the scaled statistic (for reference: it
+    rejects too often when the windows' eigenvalues are uneven)."""
+
+    chi2: float
+    df: float
+    p: float
+    scaling: float
+    scaled_chi2: float
+    scaled_p: float
+    rmsea: float | None
+    cfi: float | None
+    tli: float | None
+
+    def to_json(self) -> dict:
+        return {f: getattr(self, f) for f in _SCALED_FIELDS}
+
+    @classmethod
+    def from_json(cls, doc: object, where: str = "") -> "ScaledFit":
+        return cls(**jr.read_fields(doc, where, (
+            jr.field("chi2", jr.number), jr.field("df", jr.number), jr.field("p", jr.number),
+            jr.field("scaling", jr.number), jr.field("scaled_chi2", jr.number),
+            jr.field("scaled_p", jr.number), jr.field("rmsea", jr.number, null=True),
+            jr.field("cfi", jr.number, null=True), jr.field("tli", jr.number, null=True))))
+
+
+_SCALED_FIELDS = ("chi2", "df", "p", "scaling", "scaled_chi2", "scaled_p", "rmsea", "cfi", "tli")
+
+
+def _scaled(value: object, where: str) -> ScaledFit | None:
+    return None if value is None else ScaledFit.from_json(value, where)
+
+
+@dataclass(frozen=True)
 class FitIndices:
     """Fit on the window covariance (usual SEM definitions); pseudo-likelihood figures."""
 
@@ -155,13 +196,15 @@ class FitIndices:
     n_free: int
     n_obs: int
     exact: bool = False  # True: loglik/AIC/BIC are the exact likelihood of the series
+    scaled: ScaledFit | None = None   # the calibrated test (window estimators)
 
     def to_json(self) -> dict:
         return {"chi2": self.chi2, "df": self.df, "p": self.p, "rmsea": self.rmsea,
                 "rmsea_ci": None if self.rmsea_ci is None else list(self.rmsea_ci),
                 "rmsea_pclose": self.rmsea_pclose, "cfi": self.cfi, "tli": self.tli,
                 "srmr": self.srmr, "loglik": self.loglik, "aic": self.aic, "bic": self.bic,
-                "n_free": self.n_free, "n_obs": self.n_obs, "exact": self.exact}
+                "n_free": self.n_free, "n_obs": self.n_obs, "exact": self.exact,
+                "scaled": None if self.scaled is None else self.scaled.to_json()}
 
     @classmethod
     def from_json(cls, doc: object, where: str = "") -> "FitIndices":
@@ -182,6 +225,7 @@ class FitIndices:
             jr.field("n_free", jr.integer),
             jr.field("n_obs", jr.integer),
             jr.field("exact", jr.boolean, False),
+            jr.field("scaled", _scaled, None),
         )))
 
 

@@ -28,6 +28,7 @@ from lagwise.models.optimise import covariance_from_information, interior, maxim
 from lagwise.models.parameters import Matrices, ParameterLayout
 from lagwise.models.progress import Monitor, checkpoint, scaled
 from lagwise.models.results import FitIndices, FitResult, Parameter
+from lagwise.models.robust import sandwich
 from lagwise.models.spec import ModelSpec
 
 GRADIENT_TOLERANCE = 1e-3
@@ -53,11 +54,18 @@ class Objective(Protocol):
     def information(self, theta: np.ndarray, sizes: np.ndarray,
                     monitor: Monitor | None) -> np.ndarray: ...
 
+    cheap_steps: bool   # step_information is cheap: Newton steps finish every optimum
+
+    def step_information(self, theta: np.ndarray) -> np.ndarray | None: ...
+
     def preflight(self) -> list[Flag]: ...
 
     def latent_covariance(self, theta: np.ndarray, mats: Matrices, radius: float) -> np.ndarray: ...
 
-    def figures(self, theta: np.ndarray, loglik: float, sigma0: np.ndarray) -> tuple[FitIndices, list[Flag]]: ...
+    def figures(self, theta: np.ndarray, loglik: float, sigma0: np.ndarray,
+                information: np.ndarray | None) -> tuple[FitIndices, list[Flag]]: ...
+
+    def score_covariance(self, theta: np.ndarray) -> np.ndarray: ...
 
     def result_fields(self, theta: np.ndarray, mats: Matrices) -> dict[str, Any]: ...
 
@@ -120,41 +128,52 @@ def solve(objective: Objective, notes: list[str], monitor: Monitor | None = None
     checkpoint(monitor, 0.02, "Start values")
     theta0 = start_vector(objective, start, scaled(monitor, 0.02, 0.3))
     sizes = layout.sizes(theta0, objective.item_var)
-    # with standard errors the information is computed anyway: a rough optimum, then Newton
-    # steps; if those do not settle, the precise optimiser finishes and the steps are retried
+    # Objectives with a cheap information for Newton steps (the window likelihood's expected
+    # information): a rough optimum, then Newton steps until they settle (else the precise
+    # optimiser finishes and the steps are tried again). Others: the precise optimiser.
+    cheap = objective.cheap_steps
     theta, ok, message, iterations = maximise(objective, theta0, start_scale(start, layout, sizes),
-                                              options.max_iter, scaled(monitor, 0.3, 0.8),
-                                              precise=not standard_errors)
+                                              options.max_iter, scaled(monitor, 0.3, 0.75),
+                                              precise=not cheap)
     steps = 0
-    cov = np.full((layout.n_free, layout.n_free), np.nan)
-    if standard_errors:
-        checkpoint(monitor, 0.8, "Standard errors")
-        information = objective.information(theta, sizes, scaled(monitor, 0.8, 0.9))
-        theta, steps, settled = newton_polish(objective, theta, information)
+    if cheap:
+        checkpoint(monitor, 0.75, "Newton steps")
+        theta, steps, settled = newton_polish(objective, theta, objective.step_information(theta))
         if not settled and iterations < options.max_iter:
             theta, ok, message, more = maximise(objective, theta, sizes, options.max_iter - iterations,
-                                                scaled(monitor, 0.8, 0.85))
+                                                scaled(monitor, 0.75, 0.8))
             iterations += more
-            information = objective.information(theta, sizes, scaled(monitor, 0.85, 0.9))
+            theta, more_steps, _ = newton_polish(objective, theta, objective.step_information(theta))
+            steps += more_steps
+    cov = cov_model = np.full((layout.n_free, layout.n_free), np.nan)
+    information = None
+    if standard_errors:     # the errors belong to the estimate reported
+        checkpoint(monitor, 0.8, "Standard errors")
+        information = objective.information(theta, sizes, scaled(monitor, 0.8, 0.88))
+        if not cheap:
             theta, more_steps, _ = newton_polish(objective, theta, information)
             steps += more_steps
     ll, grad = objective.loglik_and_gradient(theta)
     inside = interior(objective, theta)
     verdict = judge(ok, message, grad, sizes, inside, objective.n_rows)
     if standard_errors:
-        cov, se_ok = covariance_from_information(information, inside)
+        cov_model, se_ok = covariance_from_information(information, inside)
+        cov = cov_model
         if verdict.converged and not se_ok:
             flags.append(warn.not_identified())
+        if options.standard_errors == "robust":
+            checkpoint(monitor, 0.88, "Robust standard errors")
+            cov = sandwich(cov_model, objective.score_covariance(theta))
     checkpoint(monitor, 0.9, "Fit figures")
     mats = layout.unpack(theta)
     radius = spectral_radius(list(mats.lagged)) if layout.q else 0.0
     latent = (stationary_covariance(list(mats.lagged), mats.psi) if radius < 1.0
               else objective.latent_covariance(theta, mats, radius))
     sigma0 = mats.lam @ latent @ mats.lam.T + np.diag(mats.theta)
-    fit, figure_flags = objective.figures(theta, ll, sigma0)
+    fit, figure_flags = objective.figures(theta, ll, sigma0, information)
     flags += figure_flags + warn.stationarity(radius) + boundary_flags(layout, theta, sigma0,
                                                                         objective.item_var)
-    parameters = parameter_table(layout, theta, cov, cov, latent, sigma0, mats)
+    parameters = parameter_table(layout, theta, cov, cov_model, latent, sigma0, mats)
     fields = objective.result_fields(theta, mats)
     checkpoint(monitor, 1.0, "Done")
     return FitResult(
@@ -166,7 +185,7 @@ def solve(objective: Objective, notes: list[str], monitor: Monitor | None = None
         lagged=tuple(mats.lagged[l].copy() for l in range(layout.q)), innovation=mats.psi.copy(),
         latent_cov=latent, r_squared=1.0 - mats.theta / np.diag(sigma0), spectral_radius=radius,
         flags=tuple(flags), notes=tuple(notes), newton_steps=steps,
-        covariance=cov if standard_errors else None, se_method="model", **fields)
+        covariance=cov if standard_errors else None, se_method=options.standard_errors, **fields)
 
 
 def boundary_flags(layout: ParameterLayout, theta: np.ndarray, sigma0: np.ndarray,

@@ -24,6 +24,17 @@ class LagWindows:
     data: np.ndarray
     occasion: np.ndarray  # index of occasion t (the newest) of each window
     diary_occasions: int | None = None  # occasions of the diary the windows were cut from
+    segment: np.ndarray | None = None   # segment of each window (None: not recorded)
+    day: np.ndarray | None = None       # day of each window's newest occasion
+
+    @property
+    def days_joined(self) -> bool:
+        """True when a segment spans more than one day (windows then cross nights)."""
+        if self.segment is None or self.day is None or not self.segment.size:
+            return False
+        order = np.lexsort((self.day, self.segment))
+        seg, day = self.segment[order], self.day[order]
+        return bool(np.any((seg[1:] == seg[:-1]) & (day[1:] != day[:-1])))
 
     @property
     def n_occasions(self) -> int:
@@ -71,4 +82,4 @@ def lag_windows(diary: Diary, depth: int) -> LagWindows:
         data[:, j * p:(j + 1) * p] = diary.values[t - j]
     keep = ~np.isnan(data).all(axis=1)
     return LagWindows(depth=depth, items=diary.items, data=data[keep], occasion=t[keep],
-                      diary_occasions=n)
+                      diary_occasions=n, segment=seg[t[keep]], day=np.asarray(diary.day)[t[keep]])

@@ -25,7 +25,19 @@ GRID = ["--day", "day", "--prompt", "prompt"]
 EXTRA_ARGS = {"stationary": ["--lag2-check"], "first-copy-free": [], "exact": []}
 # keys added since the contract was recorded (each documented in README's JSON notes)
 ADDED = {"$.flag_codes", "$.flag_codes[]", "$.se_method", "$.covariance", "$.covariance[]",
-         "$.covariance[][]", "$.parameters[].se_model"}
+         "$.covariance[][]", "$.parameters[].se_model", "$.options.se", "$.fit.scaled",
+         *(f"$.fit.scaled.{key}" for key in ("chi2", "df", "p", "scaling", "scaled_chi2",
+                                             "scaled_p", "rmsea", "cfi", "tli"))}
+# the impulse responses (models.responses.Responses.to_json), written by every fit
+RESPONSE_ARRAYS = [f"{form}{cumulative}{standardized}{part}" for form in ("unit", "orthogonal")
+                   for cumulative in ("", "_cumulative") for standardized in ("", "_standardized")
+                   for part in ("", "_se", "_lower", "_upper")]
+ADDED |= {"$.responses", *(f"$.responses.{key}" for key in (
+    "format", "states", "states[]", "horizon", "order", "order[]", "level", "interval",
+    "replicates", "half_life", "half_life[]", "oscillates", "oscillates[]", "state_sd",
+    "state_sd[]", "innovation_sd", "innovation_sd[]", "notes", "notes[]", "sentences",
+    "sentences[]")), *(f"$.responses.{name}{depth}" for name in RESPONSE_ARRAYS
+                        for depth in ("", "[]", "[][]", "[][][]"))}
 # --bootstrap N adds one key, "bootstrap" (models.bootstrap.Bootstrap.to_json)
 BOOTSTRAP = {"$.bootstrap", *(f"$.bootstrap.{key}" for key in (
     "replicates", "failed", "seed", "method", "block_length", "level", "parameters",

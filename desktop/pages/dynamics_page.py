@@ -25,7 +25,7 @@ from PySide6.QtWidgets import (
 from lagwise.desktop import style
 from lagwise.desktop.session import Session
 from lagwise.models.errors import LagwiseError
-from lagwise.models.estimators import ESTIMATORS, MISSING, FitOptions
+from lagwise.models.estimators import ERRORS, ESTIMATORS, MISSING, FitOptions
 from lagwise.models.spec import ModelSpec, full_mask, inertia_mask
 
 WINDOW_ONLY_TIP = ("The exact estimator follows the whole series with the Kalman filter: it uses "
@@ -221,6 +221,14 @@ class DynamicsPage(QWidget):
         self.missing_label = QLabel("&Missed prompts:")
         self.missing_label.setBuddy(self.missing_combo)
         form.addRow(self.missing_label, self.missing_combo)
+        self.errors_combo = QComboBox()
+        self.errors_combo.setAccessibleName("Standard errors")
+        for key, words in ERRORS.items():
+            self.errors_combo.addItem(words[:1].upper() + words[1:], key)
+        self.errors_combo.currentIndexChanged.connect(self._options_chosen)
+        self.errors_label = QLabel("Standard e&rrors:")
+        self.errors_label.setBuddy(self.errors_combo)
+        form.addRow(self.errors_label, self.errors_combo)
         self.depth_combo = QComboBox()
         self.depth_combo.setAccessibleName("Prompts per lag window")
         self.depth_combo.currentIndexChanged.connect(self._options_chosen)
@@ -293,6 +301,14 @@ class DynamicsPage(QWidget):
             _select(self.estimator_combo, options.estimator)
             self.estimator_help.setText(options.method.help)
             _select(self.missing_combo, options.missing)
+            _select(self.errors_combo, options.standard_errors)
+            choice = len(options.method.errors) > 1
+            self.errors_combo.setEnabled(choice)
+            self.errors_label.setEnabled(choice)
+            self.errors_combo.setToolTip(
+                "Robust errors allow for overlapping windows and for dependence within a day "
+                "(recommended); model-based ones treat windows as independent." if choice else
+                "The exact estimator's errors come from the likelihood of the whole series.")
             self._fill_depth(spec, options)
             self._show_night_rules(options)
             _, problem = self._session.validation()
@@ -457,8 +473,12 @@ class DynamicsPage(QWidget):
     def _options_chosen(self) -> None:
         if self._syncing:
             return
-        options = replace(self._session.options, missing=self.missing_combo.currentData(),
-                          depth=self.depth_combo.currentData())
+        current = self._session.options
+        errors = self.errors_combo.currentData()
+        options = replace(current, missing=self.missing_combo.currentData(),
+                          depth=self.depth_combo.currentData(),
+                          se=None if errors == current.method.errors[0] or
+                          errors not in current.method.errors else errors)
         self._session.edit_options(options, "Lag-window settings")
 
     def set_night_rule(self, night_gap: int | None) -> None:

@@ -15,7 +15,7 @@ from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
 from lagwise.desktop.results.tables import fit_model, fit_rows
 from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
-from lagwise.models.estimators import MISSING
+from lagwise.models.estimators import ERRORS, MISSING
 from lagwise.models.flags import FlagCode
 from lagwise.models.results import FitResult
 
@@ -99,8 +99,9 @@ class FitPanel(ResultsPanel):
                    else "bridged by the filter (every answered item used)")
         self.summary.setText(
             f"Estimator: {method.short}; missing prompts: {missing}; {result.data_used} of "
-            f"{fmt(result.n_occasions, 'int')} prompts; {fmt(result.iterations, 'int')} "
-            f"iterations, {result.seconds:.2f} s.")
+            f"{fmt(result.n_occasions, 'int')} prompts; standard errors: "
+            f"{ERRORS[result.se_method]}; {fmt(result.iterations, 'int')} iterations, "
+            f"{result.seconds:.2f} s.")
         self.cautions.setText("<br><br>".join(html.escape(c) for c in result.cautions))
 
     def tables(self) -> dict:

@@ -14,7 +14,8 @@ from lagwise.desktop.results.tables import PARAMETER_COLUMNS, SORT_ROLE
 from lagwise.models.kinds import Kind
 from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, table_view
-from lagwise.models.results import CAUTION_SE, FitResult
+from lagwise.models.estimators import ERRORS
+from lagwise.models.results import FitResult
 
 
 class ParameterFilter(QSortFilterProxyModel):
@@ -75,9 +76,8 @@ class ParametersPanel(ResultsPanel):
         self.bootstrap_note = note_label()
         self.body.addWidget(self.bootstrap_note)
         self.show_bootstrap(None)
-        self.body.addWidget(note_label(
-            "Click a column title to sort. " + CAUTION_SE + " The 95% interval is estimate ± 1.96 SE; "
-            "z = estimate / SE. Fixed parameters are set by the model, not estimated."))
+        self.note = note_label("")
+        self.body.addWidget(self.note)
 
     def _set_text(self, text: str) -> None:
         self.proxy.setFilterRegularExpression(
@@ -86,6 +86,11 @@ class ParametersPanel(ResultsPanel):
 
     def show_result(self, result: FitResult) -> None:
         self.model.set_rows(result.parameters)
+        self.note.setText(
+            f"Click a column title to sort. Standard errors (SE): {ERRORS[result.se_method]}; "
+            "SE (model) beside them for comparison. The 95% interval is estimate ± 1.96 SE; "
+            "z = estimate / SE. Fixed parameters are set by the model, not estimated. "
+            + result.cautions[-1])
         present = [k for k in Kind if any(p.kind == k for p in result.parameters)]
         current = self.kind_box.currentData()
         self.kind_box.blockSignals(True)

@@ -206,7 +206,10 @@ PARAMETER_COLUMNS = (
     Column("Lag", _lag_text, "text", tip="For lagged paths: how many prompts back the 'From' state is"),
     Column("Estimate", lambda p: p.estimate),
     Column("Standardized", lambda p: p.standardized),
-    Column("SE", lambda p: p.se, tip="Standard error (approximate)"),
+    Column("SE", lambda p: p.se, tip="Standard error as chosen for this run (robust by default "
+                                      "for lag windows; see the note below the table)"),
+    Column("SE (model)", lambda p: p.se_model,
+           tip="Model-based standard error (inverse information), for comparison"),
     Column("z", lambda p: p.z),
     Column("p", lambda p: p.p, "p"),
     Column("95% low", lambda p: _ci(p, 0)),
@@ -279,8 +282,20 @@ def fit_rows(result: FitResult) -> list[FitRow]:
     """The fit figures of a result with short, plain-language reading guides."""
     f = result.fit
     low, high = f.rmsea_ci if f.rmsea_ci is not None else (None, None)
-    rows = [
-        FitRow("Chi-square", f.chi2, guide="Compare with df; with many windows small misfit shows"),
+    s = f.scaled
+    calibrated = [] if s is None else [
+        FitRow("Calibrated chi-square", s.chi2,
+               guide="Adjusted for overlapping windows (mean and variance): read this test"),
+        FitRow("Calibrated df", s.df, guide="Need not be a whole number"),
+        FitRow("Calibrated p", s.p, "p", "Above .05: no clear evidence of misfit"),
+        FitRow("Calibrated RMSEA", s.rmsea, guide="From the calibrated chi-square; around .06 or below"),
+        FitRow("Calibrated CFI", s.cfi, guide="From the calibrated chi-squares; around .95 or above"),
+        FitRow("Calibrated TLI", s.tli, guide="From the calibrated chi-squares; around .95 or above"),
+    ]
+    rows = calibrated + [
+        FitRow("Chi-square", f.chi2,
+               guide="Compare with df; with many windows small misfit shows" if s is None
+               else "Windows treated as independent: too kind to the model"),
         FitRow("Degrees of freedom (df)", f.df, "int"),
         FitRow("p (chi-square)", f.p, "p", "Above .05: no clear evidence of misfit"),
         FitRow("RMSEA", f.rmsea, guide="Around .06 or below is often read as close fit"),

@@ -1,8 +1,9 @@
 """ResultsView: the tabs that show one FitResult (or a plain message when there is none).
 
-Besides the five tabs over the estimate, "State scores" (exact estimator only),
-"Lag-2 check" (a Lag2View, exposed as `lag2`, whose signals the window wires) and
-"Stability" (the bootstrap: a StabilityPanel exposed as `stability`, wired the same way).
+Besides the five tabs over the estimate, "Responses" (what follows a rise in one state, beside
+"Dynamics"), "State scores" (exact estimator only), "Lag-2 check" (a Lag2View, exposed as
+`lag2`, whose signals the window wires) and "Stability" (the bootstrap: a StabilityPanel
+exposed as `stability`, wired the same way).
 """
 
 from __future__ import annotations
@@ -16,6 +17,7 @@ from lagwise.desktop.results.innovations import InnovationsPanel
 from lagwise.desktop.results.measurement import MeasurementPanel
 from lagwise.desktop.results.lag2_view import Lag2View
 from lagwise.desktop.results.parameters import ParametersPanel
+from lagwise.desktop.results.responses_view import ResponsesPanel
 from lagwise.desktop.results.stability_view import StabilityPanel
 from lagwise.desktop.results.state_scores import StateScoresPanel
 from lagwise.desktop.results.widgets import ResultsPanel
@@ -28,7 +30,8 @@ EMPTY_MESSAGE = ("No results yet.\n\nAssign items to states, choose the lagged p
 
 
 class ResultsView(QWidget):
-    """Tabs Measurement, Dynamics, Innovations, Fit, Parameters, State scores, Lag-2 check.
+    """Tabs Measurement, Dynamics, Responses, Innovations, Fit, Parameters, State scores,
+    Lag-2 check.
 
     `show_result(None)` shows the empty state. Each tab is a ResultsPanel with
     `pictures()` and `tables()` (what its Export button saves). `panels()` are the five tabs
@@ -41,6 +44,7 @@ class ResultsView(QWidget):
         self._result: FitResult | None = None
         self.measurement = MeasurementPanel()
         self.dynamics = DynamicsPanel()
+        self.responses = ResponsesPanel()
         self.innovations = InnovationsPanel()
         self.fit = FitPanel()
         self.parameters = ParametersPanel()
@@ -49,8 +53,9 @@ class ResultsView(QWidget):
         self.stability = StabilityPanel()
         self.tabs = QTabWidget()
         self.tabs.setDocumentMode(True)
-        for panel, title in zip(self.all_panels(), ("Measurement", "Dynamics", "Innovations", "Fit",
-                                                    "Parameters", "State scores", "Lag-2 check")):
+        for panel, title in zip(self.all_panels(), ("Measurement", "Dynamics", "Responses",
+                                                    "Innovations", "Fit", "Parameters",
+                                                    "State scores", "Lag-2 check")):
             self.tabs.addTab(panel, title)
         self.tabs.addTab(self.stability, "Stability")
         self.empty = QLabel(EMPTY_MESSAGE)
@@ -77,8 +82,10 @@ class ResultsView(QWidget):
         return (self.measurement, self.dynamics, self.innovations, self.fit, self.parameters)
 
     def all_panels(self) -> tuple[ResultsPanel, ...]:
-        """Every tab, in order: the estimate's panels, the state scores, the lag-2 check."""
-        return (*self.panels(), self.state_scores, self.lag2)
+        """Every tab, in order: the estimate's panels (the responses beside the dynamics), the
+        state scores, the lag-2 check."""
+        measurement, dynamics, *others = self.panels()
+        return (measurement, dynamics, self.responses, *others, self.state_scores, self.lag2)
 
     def set_diary(self, diary: Diary | None) -> None:
         """The session's diary, whose days and missed prompts the state scores are drawn on."""

@@ -150,8 +150,12 @@ def test_innovation_matrices_show_engine_correlations(view):
 def test_fit_table_shows_engine_indices_and_cautions(view):
     result = demo_result()
     f = result.fit
+    s = f.scaled   # the calibrated test of the window estimators, shown first
     expected = {
-        "Chi-square": fmt(f.chi2), "Degrees of freedom (df)": str(f.df), "p (chi-square)": fmt(f.p, "p"),
+        "Calibrated chi-square": fmt(s.chi2), "Calibrated df": fmt(s.df), "Calibrated p": fmt(s.p, "p"),
+        "Calibrated RMSEA": fmt(s.rmsea), "Calibrated CFI": fmt(s.cfi), "Calibrated TLI": fmt(s.tli),
+        "Chi-square": fmt(f.chi2), "Degrees of freedom (df)": str(f.df),
+        "p (chi-square)": fmt(f.p, "p"),
         "RMSEA": fmt(f.rmsea), "RMSEA 90% interval, low": fmt(f.rmsea_ci[0]),
         "RMSEA 90% interval, high": fmt(f.rmsea_ci[1]), "p (RMSEA ≤ .05)": fmt(f.rmsea_pclose, "p"),
         "CFI": fmt(f.cfi), "TLI": fmt(f.tli), "SRMR": fmt(f.srmr), "Log-likelihood": fmt(f.loglik),
@@ -292,8 +296,8 @@ def test_empty_state_and_back(lagwise_app, qtbot):
 def test_render_each_tab_to_png(view, lagwise_app, qtbot):
     ARTIFACTS.mkdir(exist_ok=True)
     names = [view.tabs.tabText(i) for i in range(view.tabs.count())]
-    assert names == ["Measurement", "Dynamics", "Innovations", "Fit", "Parameters", "State scores", "Lag-2 check",
-                     "Stability"]
+    assert names == ["Measurement", "Dynamics", "Responses", "Innovations", "Fit", "Parameters",
+                     "State scores", "Lag-2 check", "Stability"]
     for index, name in enumerate(names):
         view.tabs.setCurrentIndex(index)
         qtbot.wait(20)

@@ -1,0 +1,125 @@
+"""`lagwise bench`: speed and memory of the estimators, against semopy and statsmodels in the
+same process, on diaries simulated from a known model (cases.py).
+
+Sections (each module's docstring says what it times and why that peer):
+- windows.py: Lagwise's first-copy-free fit against semopy's covariance-only Model fitting the
+  same window model (fit + inspect), interleaved, BLAS on one thread for both; semopy's
+  ModelMeans (the same mean structure too) as a reference row; stationary against
+  first-copy-free;
+- refit.py: a full fit against a refit (no standard errors, started from a first fit) on
+  parametric-bootstrap diaries, with the default estimator;
+- exact.py: the exact estimator against statsmodels' DynamicFactor, and its evaluation cost
+  per prompt as diaries grow, with days and as one segment;
+- memory.py: peak memory of one fit of a long diary, in a fresh process.
+Targets (cases.py), reported as PASS/MISS lines (report.py), never as timed tests: semopy's
+covariance-only fit + inspect takes at least 2x the Lagwise first-copy-free time on both speed
+diaries; stationary within 1.5x of first-copy-free; statsmodels takes at least 5x the Lagwise
+exact time; exact gradient time growing at most as T^1.1 on both layouts; peak memory under
+1 GiB. The refit has no target: its speed-up is reported as a fact.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
+
+from lagwise.models.bench.cases import (
+    EXACT_CASE, EXACT_MEMORY_CASE, EXACT_SIZES, MEMORY_CASE, MEMORY_TARGET_BYTES,
+    QUICK_EXACT_CASE, QUICK_EXACT_MEMORY_CASE, QUICK_EXACT_SIZES, QUICK_MEMORY_CASE,
+    QUICK_REFIT_REPLICATES, QUICK_SPEED_CASES, REFIT_REPLICATES, SPEED_CASES, SPEED_TARGET, Case,
+    bench_diary, bench_model,
+)
+from lagwise.models.bench.exact import (
+    ExactEvaluation, ExactSpeedResult, growth_exponent, measure_exact_evaluation,
+    measure_exact_speed,
+)
+from lagwise.models.bench.refit import RefitResult, measure_refit
+from lagwise.models.bench.report import format_report
+from lagwise.models.bench.windows import PeerTime, SpeedResult, measure_speed
+from lagwise.models.progress import Monitor, checkpoint
+
+if TYPE_CHECKING:
+    from lagwise.models.bench.memory import MemoryResult
+
+# memory.py also runs as the child program (python -m lagwise.models.bench.memory): it is
+# loaded on first use of these names, so that run does not find it already imported
+_MEMORY_NAMES = ("MemoryResult", "measure_memory")
+
+
+def __getattr__(name: str):
+    if name in _MEMORY_NAMES:
+        from lagwise.models.bench import memory
+
+        return getattr(memory, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+@dataclass
+class BenchReport:
+    speed: list[SpeedResult] = field(default_factory=list)
+    refit: list[RefitResult] = field(default_factory=list)
+    memory: MemoryResult | None = None
+    repeats: int = 1
+    semopy_threads: str = "1"
+    exact_speed: ExactSpeedResult | None = None
+    exact_evaluations: list[ExactEvaluation] = field(default_factory=list)
+    exact_segment_evaluations: list[ExactEvaluation] = field(default_factory=list)  # one segment
+    exact_memory: MemoryResult | None = None
+
+
+def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bool = False,
+                  memory: bool = True, semopy_threads: str = "1", windows: bool = True,
+                  exact: bool = True, refit: bool = True, monitor: Monitor | None = None
+                  ) -> BenchReport:
+    """All measurements; `quick` uses the small cases only, fewer refit replicates and
+    10,000-prompt memory runs; `windows` / `exact` choose the sections (window estimators
+    against semopy, with the refit unless `refit` is False; the exact estimator against
+    statsmodels)."""
+    from lagwise.models.bench.memory import measure_memory
+
+    repeats = (1 if quick else 3) if repeats is None else repeats
+    report = BenchReport(repeats=repeats, semopy_threads=semopy_threads)
+    cases = (QUICK_SPEED_CASES if quick else SPEED_CASES) if windows else ()
+    refit_cases = cases if refit else ()
+    parts = (len(cases) + len(refit_cases) + int(windows and memory)
+             + (3 + int(memory) if exact else 0))
+    done = 0
+    for case in cases:
+        checkpoint(monitor, done / parts, f"Timing {case.label}")
+        report.speed.append(measure_speed(case, repeats, True if all_peers else None,
+                                          semopy_threads))
+        done += 1
+    for case in refit_cases:
+        checkpoint(monitor, done / parts, f"Refit, {case.label}")
+        report.refit.append(measure_refit(
+            case, QUICK_REFIT_REPLICATES if quick else REFIT_REPLICATES))
+        done += 1
+    if windows and memory:
+        checkpoint(monitor, done / parts, "Peak memory of a long diary")
+        report.memory = measure_memory(QUICK_MEMORY_CASE if quick else MEMORY_CASE)
+        done += 1
+    if exact:
+        case = QUICK_EXACT_CASE if quick else EXACT_CASE
+        checkpoint(monitor, done / parts, f"Exact estimator: timing {case.label}")
+        report.exact_speed = measure_exact_speed(case, repeats)
+        sizes = QUICK_EXACT_SIZES if quick else EXACT_SIZES
+        checkpoint(monitor, (done + 1) / parts, "Exact estimator: evaluation cost")
+        report.exact_evaluations = measure_exact_evaluation(sizes, repeats)
+        checkpoint(monitor, (done + 2) / parts, "Exact estimator: evaluation cost, one segment")
+        report.exact_segment_evaluations = measure_exact_evaluation(sizes, repeats,
+                                                                    one_segment=True)
+        if memory:
+            checkpoint(monitor, (done + 3) / parts, "Exact estimator: peak memory of a long diary")
+            report.exact_memory = measure_memory(
+                QUICK_EXACT_MEMORY_CASE if quick else EXACT_MEMORY_CASE, estimator="exact")
+    checkpoint(monitor, 1.0, "Done")
+    return report
+
+
+__all__ = [
+    "BenchReport", "Case", "EXACT_CASE", "EXACT_MEMORY_CASE", "EXACT_SIZES", "ExactEvaluation",
+    "ExactSpeedResult", "MEMORY_CASE", "MEMORY_TARGET_BYTES", "MemoryResult", "PeerTime",
+    "REFIT_REPLICATES", "RefitResult", "SPEED_CASES", "SPEED_TARGET", "SpeedResult",
+    "bench_diary", "bench_model", "format_report", "growth_exponent", "measure_exact_evaluation",
+    "measure_exact_speed", "measure_memory", "measure_refit", "measure_speed", "run_benchmark",
+]
