@@ -222,12 +222,13 @@ class _Work:
     diary: Diary
     spec: ModelSpec
     options: FitOptions
-    start: object
+    start: FitResult
     plan: Resampler
 
 
-def bootstrap(diary: Diary, spec: ModelSpec, options: FitOptions, result: FitResult, replicates: int = 500,
-              seed: int = 0, jobs: int | None = None, monitor: Monitor | None = None) -> Bootstrap:
+def bootstrap(diary: Diary, spec: ModelSpec, options: FitOptions, result: FitResult,
+              replicates: int = 500, seed: int = 0, jobs: int | None = None,
+              monitor: Monitor | None = None) -> Bootstrap:
     """Bootstrap `result` (the fit of `spec` to `diary` with `options`): `replicates`
     resampled diaries refitted in `jobs` worker processes (None: every core). Reports
     progress to `monitor` as batches finish; Cancelled stops the workers and returns nothing.
