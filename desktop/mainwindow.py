@@ -39,6 +39,7 @@ from lagwise.models.bootstrap import bootstrap
 from lagwise.models.errors import LagwiseError
 from lagwise.models.estimate import fit
 from lagwise.models.lag2check import adopt, lag2_check
+from lagwise.models.numbers import fmt
 
 PAGES = ("Data", "States", "Dynamics", "Results")
 SETTINGS_GEOMETRY = "window/geometry"
@@ -439,8 +440,8 @@ class MainWindow(QMainWindow):
                                          "its results are dropped.", 15000)
             return
         self.results.show_bootstrap(boot, self.session.result)
-        self.statusBar().showMessage(f"Bootstrap finished: {boot.used} of {boot.replicates} "
-                                     "replicates refitted.", 15000)
+        self.statusBar().showMessage(f"Bootstrap finished: {fmt(boot.used, 'int')} of "
+                                     f"{fmt(boot.replicates, 'int')} replicates refitted.", 15000)
         self.show_page(PAGES.index("Results"))
         self.results.tabs.setCurrentWidget(self.results.stability)
 
