@@ -141,10 +141,10 @@ def test_bootstrap_runs_off_the_ui_thread_and_shows_its_numbers(qtbot, window, a
     # pictures for a person to look at (1280 x 800)
     window.resize(1280, 800)
     settle(qtbot, 50)
-    assert save_widget_png(window, artifacts / "page-results-stability.png", 1.0).stat().st_size > 20_000
+    assert save_widget_png(window, artifacts / "bootstrap-stability-1280x800.png", 1.0).stat().st_size > 20_000
     window.results.tabs.setCurrentWidget(panel)
     settle(qtbot, 50)
-    save_widget_png(window, artifacts / "page-results-parameters-bootstrap.png", 1.0)
+    save_widget_png(window, artifacts / "bootstrap-parameters-1280x800.png", 1.0)
 
     # a new estimate makes the bootstrap out of date: cleared, columns hidden
     window.estimate_action.trigger()
