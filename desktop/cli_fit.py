@@ -23,7 +23,8 @@ from lagwise.models.lag2check import lag2_check
 from lagwise.models.project import (
     Project, embed_file, is_project_file, open_project, project_diary, save_project,
 )
-from lagwise.models.report import format_lag2, format_responses, format_result
+from lagwise.models.bootstrap import Bootstrap, bootstrap
+from lagwise.models.report import format_bootstrap, format_lag2, format_responses, format_result
 from lagwise.models.responses import MAX_HORIZON, check_horizon, impulse_responses
 from lagwise.models.results import _finite
 from lagwise.models.estimators import ERRORS, ESTIMATORS, MISSING, FitOptions
@@ -59,15 +60,23 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--horizon", type=int, default=10, metavar="H",
                         help=f"impulse responses over H prompts (1 to {MAX_HORIZON}, default 10): "
                              "printed, and written to the JSON as \"responses\"")
+    boot = parser.add_argument_group("bootstrap")
+    boot.add_argument("--bootstrap", type=int, metavar="N",
+                      help="check the stability of the estimates with N bootstrap replicates "
+                           "(resampled days, or stationary blocks when days are joined)")
+    boot.add_argument("--seed", type=int, default=0, metavar="S",
+                      help="seed of the bootstrap (default 0): the same seed, the same answer")
+    boot.add_argument("--jobs", type=int, metavar="J",
+                      help="worker processes for the bootstrap (default: every core)")
     parser.add_argument("--json", metavar="OUT", help="write the result as JSON to OUT")
     parser.add_argument("--save", metavar="PROJECT.lagwise",
                         help="also save the data, model, settings and result as a project file")
     parser.epilog = ("DATA may be a saved project (PROJECT.lagwise): it is refitted with its "
                      "own data, model and estimator settings; only --json, --save, "
-                     "--lag2-check and --horizon may be added.")
+                     "--lag2-check, --horizon and the bootstrap options may be added.")
 
 
-PROJECT_RUN_OPTIONS = ("data", "json", "save", "lag2_check", "horizon")
+PROJECT_RUN_OPTIONS = ("data", "json", "save", "lag2_check", "horizon", "bootstrap", "seed", "jobs")
 
 
 def parse_states(texts: list[str] | None) -> tuple[State, ...]:
@@ -96,6 +105,7 @@ def spec_from_args(args: argparse.Namespace) -> ModelSpec:
 
 
 def run(args: argparse.Namespace) -> int:
+    check_bootstrap_arguments(args)
     if args.save is not None and not is_project_file(args.save):
         raise ProjectError(f"--save {args.save}: a project file name ends in .lagwise")
     check_horizon(args.horizon)
@@ -122,6 +132,11 @@ def run(args: argparse.Namespace) -> int:
         print()
         print(format_lag2(check))
         doc["lag2_check"] = _finite(check.to_json())
+    if args.bootstrap is not None:
+        boot = run_bootstrap(args, diary, spec, options, result)
+        print()
+        print(format_bootstrap(boot))
+        doc["bootstrap"] = boot.to_json()
     if args.json:
         Path(args.json).write_text(json.dumps(doc, indent=2, allow_nan=False), encoding="utf-8")
     if args.save is not None:
@@ -134,6 +149,41 @@ def run(args: argparse.Namespace) -> int:
         print("lagwise: the optimiser did not converge; results are flagged", file=sys.stderr)
         return 3
     return 0
+
+
+def check_bootstrap_arguments(args: argparse.Namespace) -> None:
+    """Refuse impossible bootstrap options before anything is fitted."""
+    if args.bootstrap is not None and args.bootstrap < 1:
+        raise SpecError("--bootstrap needs a number of replicates of 1 or more")
+    if args.jobs is not None and args.jobs < 1:
+        raise SpecError("--jobs needs 1 or more worker processes")
+    if args.seed < 0:
+        raise SpecError("--seed needs a whole number of 0 or more")
+    if args.bootstrap is None and (args.jobs is not None or args.seed != 0):
+        raise SpecError("--seed and --jobs go with --bootstrap N")
+
+
+def run_bootstrap(args: argparse.Namespace, diary, spec: ModelSpec, options: FitOptions,
+                  result) -> Bootstrap:
+    """The bootstrap of `result` asked for with --bootstrap, with progress on stderr."""
+    return bootstrap(diary, spec, options, result, replicates=args.bootstrap, seed=args.seed,
+                     jobs=args.jobs, monitor=_StderrProgress())
+
+
+class _StderrProgress:
+    """Bootstrap progress on stderr, one line per tenth of the work."""
+
+    def __init__(self) -> None:
+        self._shown = -1
+
+    def report(self, fraction: float, message: str) -> None:
+        tenth = int(fraction * 10)
+        if tenth > self._shown:
+            self._shown = tenth
+            print(f"lagwise: {message}", file=sys.stderr, flush=True)
+
+    def cancelled(self) -> bool:
+        return False
 
 
 def project_to_refit(args: argparse.Namespace) -> Project:

@@ -4,7 +4,8 @@ The window owns one Session (the document, also the project file's content), one
 and the project-file commands (desktop.project_files: New, Open, Save, Save As, Open
 Recent, autosave and recovery). Estimate sends a frozen snapshot of the prepared diary,
 model and settings to `models.estimate.fit` off the UI thread; the lag-2 check tab's
-"Run" sends one to `models.lag2check.lag2_check` through the same worker. Progress shows
+"Run" sends one to `models.lag2check.lag2_check` through the same worker, and the Stability
+tab's "Check stability (bootstrap)" one to `models.bootstrap.bootstrap`. Progress shows
 in the status bar with a Cancel button; a LagwiseError becomes a dialog; a cancelled run
 leaves the shown results as they were. The title shows the project's name and a mark for
 unsaved changes; closing with unsaved changes asks first. Window size, position and the
@@ -34,9 +35,11 @@ from lagwise.desktop.project_files import ProjectFiles
 from lagwise.desktop.results import ResultsView
 from lagwise.desktop.session import Session, Snapshot
 from lagwise.desktop.worker import Worker
+from lagwise.models.bootstrap import bootstrap
 from lagwise.models.errors import LagwiseError
 from lagwise.models.estimate import fit
 from lagwise.models.lag2check import adopt, lag2_check
+from lagwise.models.numbers import fmt
 
 PAGES = ("Data", "States", "Dynamics", "Results")
 SETTINGS_GEOMETRY = "window/geometry"
@@ -46,8 +49,10 @@ SETTINGS_FOLDER = "import/folder"
 SETTINGS_SPLITTERS = "splitters/"
 JOB_ESTIMATE = "estimate"
 JOB_LAG2 = "lag-2 check"
+JOB_BOOTSTRAP = "bootstrap"
 _JOB_WORDS = {JOB_ESTIMATE: ("Estimating…", "Estimation"),
-              JOB_LAG2: ("Running the lag-2 check…", "The lag-2 check")}
+              JOB_LAG2: ("Running the lag-2 check…", "The lag-2 check"),
+              JOB_BOOTSTRAP: ("Checking stability (bootstrap)…", "The bootstrap")}
 _LAG2_DATA_CHANGED = ("The data or their preparation changed since the last lag-2 check. Press "
                       "“Run lag-2 check” to test the model on the present data.")
 
@@ -82,6 +87,7 @@ class MainWindow(QMainWindow):
         self.files = ProjectFiles(self, self.session)
         self._running: Snapshot | None = None
         self._running_document = -1
+        self._bootstrapped = None   # the estimate the running bootstrap checks
         self._close_confirmed = False
         self._build_pages()
         self._build_actions()
@@ -267,6 +273,7 @@ class MainWindow(QMainWindow):
         self.files.recentChanged.connect(self._fill_recent_menu)
         s.documentReplaced.connect(self.worker.cancel)
         self._connect_lag2()
+        self.results.stability.run_requested.connect(self.run_bootstrap)
         self.worker.started.connect(self._run_started)
         self.worker.progress.connect(self._run_progress)
         self.worker.done.connect(self._run_done)
@@ -353,6 +360,23 @@ class MainWindow(QMainWindow):
                           job=JOB_LAG2)
         return True
 
+    def run_bootstrap(self, replicates: int = 500) -> bool:
+        """Start the bootstrap of the shown estimate (models.bootstrap.bootstrap, on every
+        core) in the worker; False (with a message) when there is no current estimate."""
+        result = self.session.result
+        if result is None or not self.session.result_is_current():
+            QMessageBox.information(self, "Estimate first", "The bootstrap checks the present "
+                                    "estimate: press Estimate (Ctrl+E) first.")
+            return False
+        snapshot = self._ready_snapshot("The bootstrap cannot run yet")
+        if snapshot is None:
+            return False
+        self._running, self._running_document = snapshot, self.session.document
+        self._bootstrapped = result
+        self.worker.start(bootstrap, snapshot.diary, snapshot.spec, snapshot.options, result,
+                          replicates=int(replicates), job=JOB_BOOTSTRAP)
+        return True
+
     def _ready_snapshot(self, title: str) -> Snapshot | None:
         """The frozen inputs for a run, or None after telling the user what is missing."""
         try:
@@ -393,6 +417,9 @@ class MainWindow(QMainWindow):
     def _run_done(self, result) -> None:
         if self._running_document != self.session.document:  # the document was replaced
             return
+        if self.worker.job == JOB_BOOTSTRAP:
+            self._bootstrap_done(result)
+            return
         if self.worker.job == JOB_LAG2:
             self.results.lag2.show_check(result)
             self.results.lag2.set_spec(self.session.spec)  # edited meanwhile: out of date
@@ -406,6 +433,17 @@ class MainWindow(QMainWindow):
             f"Estimated in {result.seconds:.2f} s from {result.data_used}; "
             f"the estimation {verdict}.", 15000)
         self.show_page(PAGES.index("Results"))
+
+    def _bootstrap_done(self, boot) -> None:
+        if self.session.result is not self._bootstrapped:
+            self.statusBar().showMessage("The estimate changed while the bootstrap ran; "
+                                         "its results are dropped.", 15000)
+            return
+        self.results.show_bootstrap(boot, self.session.result)
+        self.statusBar().showMessage(f"Bootstrap finished: {fmt(boot.used, 'int')} of "
+                                     f"{fmt(boot.replicates, 'int')} replicates refitted.", 15000)
+        self.show_page(PAGES.index("Results"))
+        self.results.tabs.setCurrentWidget(self.results.stability)
 
     @Slot(str, str)
     def _run_error(self, message: str, details: str) -> None:

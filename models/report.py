@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from lagwise.models.bootstrap import Bootstrap
 from lagwise.models.estimators import ERRORS
 from lagwise.models.kinds import Kind
 from lagwise.models.lag2check import Lag2Check
@@ -76,6 +77,26 @@ def format_lag2(check: Lag2Check) -> str:
         lines.append(f"  {label:<26}{t.from_:<14.14}{t.to:<14.14}{fmt(t.score, digits=2):>8}{fmt(t.p, 'p'):>8}"
                      f"{fmt(t.p_holm, 'p'):>8}{fmt(t.epc):>9}{fmt(t.std_epc):>9}")
     lines += [f"  * {c}" for c in check.cautions]
+    return "\n".join(lines)
+
+
+def format_bootstrap(boot: Bootstrap) -> str:
+    """The bootstrap as text: how it resampled, then each lagged path's stability."""
+    how = ("whole days" if boot.block_length is None else
+           f"stationary blocks of {fmt(boot.block_length, digits=1)} prompts on average")
+    lines = [f"Stability of the lagged paths (bootstrap: {boot.replicates} replicates resampling "
+             f"{how}, seed {boot.seed})",
+             f"  {'path':<24}{'from':<14}{'to':<14}{'estimate':>10}{'same sign':>11}   "
+             f"95% interval (percentile)   excludes 0"]
+    for s in boot.stability():
+        interval = f"[{fmt(s.lower)}, {fmt(s.upper)}]"
+        lines.append(f"  {Kind(s.kind).label:<24.24}{s.from_:<14.14}{s.to:<14.14}{fmt(s.estimate):>10}"
+                     f"{fmt(s.same_sign):>11}   {interval:<28}{'yes' if s.excludes_zero else 'no'}")
+    if boot.warning:
+        lines.append(f"  ! {boot.warning}")
+    lines.append("  * Same sign: the share of replicates whose estimate has the sign of this "
+                 "diary's estimate. Every free parameter's percentile and bias-corrected "
+                 "interval is in the JSON.")
     return "\n".join(lines)
 
 

@@ -38,6 +38,16 @@ ADDED |= {"$.responses", *(f"$.responses.{key}" for key in (
     "state_sd[]", "innovation_sd", "innovation_sd[]", "notes", "notes[]", "sentences",
     "sentences[]")), *(f"$.responses.{name}{depth}" for name in RESPONSE_ARRAYS
                         for depth in ("", "[]", "[][]", "[][][]"))}
+# --bootstrap N adds one key, "bootstrap" (models.bootstrap.Bootstrap.to_json)
+BOOTSTRAP = {"$.bootstrap", *(f"$.bootstrap.{key}" for key in (
+    "replicates", "failed", "seed", "method", "block_length", "level", "parameters",
+    "parameters[]", "intervals", "stability", "stability[]", "estimates", "estimates[]",
+    "estimates[][]")),
+    *(f"$.bootstrap.parameters[].{key}" for key in ("kind", "from", "to", "lag", "estimate")),
+    *(f"$.bootstrap.stability[].{key}" for key in ("kind", "from", "to", "same_sign", "excludes_zero")),
+    *(f"$.bootstrap.intervals.{name}{tail}" for name in ("percentile", "bias_corrected")
+      for tail in ("", "[]", "[].kind", "[].from", "[].to", "[].lower", "[].upper"))}
+ADDED |= BOOTSTRAP
 
 
 @pytest.mark.parametrize("estimator", sorted(EXTRA_ARGS))
@@ -53,3 +63,13 @@ def test_fit_json_has_the_recorded_keys_and_kinds(estimator, tmp_path):
                if not (now[path] - {"null"}) <= (set(kinds) - {"null"})}
     assert changed == {}
     assert sorted(set(now) - set(contract) - ADDED) == []
+
+
+def test_bootstrap_adds_only_its_key(tmp_path):
+    contract = json.loads((HERE / "data" / "fit_json_contract.json").read_text())["stationary"]
+    out = tmp_path / "fit.json"
+    assert main(["fit", str(DEMO), *GRID, *STATES, "--bootstrap", "4", "--jobs", "1",
+                 "--json", str(out)]) == 0
+    now = shape(json.loads(out.read_text()))
+    assert sorted(set(now) - set(contract) - (ADDED - BOOTSTRAP)) == sorted(BOOTSTRAP)
+

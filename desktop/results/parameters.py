@@ -9,8 +9,10 @@ from __future__ import annotations
 from PySide6.QtCore import QRegularExpression, QSortFilterProxyModel, Qt
 from PySide6.QtWidgets import QComboBox, QLabel, QLineEdit
 
-from lagwise.desktop.results.tables import SORT_ROLE, parameters_model
+from lagwise.desktop.results.stability_view import BootstrapIntervals, ParametersWithBootstrap
+from lagwise.desktop.results.tables import PARAMETER_COLUMNS, SORT_ROLE
 from lagwise.models.kinds import Kind
+from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, table_view
 from lagwise.models.estimators import ERRORS
 from lagwise.models.results import FitResult
@@ -63,13 +65,17 @@ class ParametersPanel(ResultsPanel):
             self.head.insertWidget(index + offset, widget)
         self.head.insertSpacing(index + 3, 12)
 
-        self.model = parameters_model(self)
+        self.bootstrap = BootstrapIntervals()   # filled by show_bootstrap
+        self.model = ParametersWithBootstrap(PARAMETER_COLUMNS, self.bootstrap, parent=self)
         self.proxy = ParameterFilter(self)
         self.proxy.setSourceModel(self.model)
         self.table = table_view(self.proxy, stretch_last=True)
         self.table.setSortingEnabled(True)
         self.table.sortByColumn(-1, Qt.SortOrder.AscendingOrder)
         self.body.addWidget(self.table, 1)
+        self.bootstrap_note = note_label()
+        self.body.addWidget(self.bootstrap_note)
+        self.show_bootstrap(None)
         self.note = note_label("")
         self.body.addWidget(self.note)
 
@@ -95,6 +101,23 @@ class ParametersPanel(ResultsPanel):
         self.kind_box.setCurrentIndex(max(0, self.kind_box.findData(current)) if current in present else 0)
         self.kind_box.blockSignals(False)
         self.proxy.set_kind(self.kind_box.currentData() or "")
+
+    def show_bootstrap(self, boot) -> None:
+        """Bootstrap intervals beside the model's (models.bootstrap.Bootstrap), or none: the
+        columns are hidden while there is no bootstrap of the shown estimate."""
+        self.bootstrap.set(boot)
+        self.bootstrap_note.setVisible(boot is not None)
+        if boot is not None:
+            self.bootstrap_note.setText(
+                f"Bootstrap 95%: the interval holding the middle 95% of the estimates from "
+                f"{fmt(boot.used, 'int')} replicates of this diary (percentile interval); the "
+                "Stability tab says how they were drawn.")
+        column = self.model.bootstrap_column
+        if self.model.rowCount():
+            self.model.dataChanged.emit(self.model.index(0, column),
+                                        self.model.index(self.model.rowCount() - 1, column))
+        if self.table.isColumnHidden(column) != (boot is None):
+            self.table.setColumnHidden(column, boot is None)
 
     def tables(self) -> dict:
         return {"parameters as shown": self.proxy}

@@ -1,8 +1,9 @@
 """ResultsView: the tabs that show one FitResult (or a plain message when there is none).
 
 Besides the five tabs over the estimate, "Responses" (what follows a rise in one state, beside
-"Dynamics"), "State scores" (exact estimator only) and "Lag-2 check" (a Lag2View, exposed as
-`lag2`, whose signals the window wires).
+"Dynamics"), "State scores" (exact estimator only), "Lag-2 check" (a Lag2View, exposed as
+`lag2`, whose signals the window wires) and "Stability" (the bootstrap: a StabilityPanel
+exposed as `stability`, wired the same way).
 """
 
 from __future__ import annotations
@@ -17,6 +18,7 @@ from lagwise.desktop.results.measurement import MeasurementPanel
 from lagwise.desktop.results.lag2_view import Lag2View
 from lagwise.desktop.results.parameters import ParametersPanel
 from lagwise.desktop.results.responses_view import ResponsesPanel
+from lagwise.desktop.results.stability_view import StabilityPanel
 from lagwise.desktop.results.state_scores import StateScoresPanel
 from lagwise.desktop.results.widgets import ResultsPanel
 from lagwise.models.diary import Diary
@@ -48,12 +50,14 @@ class ResultsView(QWidget):
         self.parameters = ParametersPanel()
         self.state_scores = StateScoresPanel()
         self.lag2 = Lag2View()
+        self.stability = StabilityPanel()
         self.tabs = QTabWidget()
         self.tabs.setDocumentMode(True)
         for panel, title in zip(self.all_panels(), ("Measurement", "Dynamics", "Responses",
                                                     "Innovations", "Fit", "Parameters",
                                                     "State scores", "Lag-2 check")):
             self.tabs.addTab(panel, title)
+        self.tabs.addTab(self.stability, "Stability")
         self.empty = QLabel(EMPTY_MESSAGE)
         self.empty.setAlignment(Qt.AlignmentFlag.AlignCenter)
         self.empty.setWordWrap(True)
@@ -95,4 +99,12 @@ class ResultsView(QWidget):
             return
         for panel in self.all_panels():
             panel.show_result(result)
+        self.stability.show_result(result)
+        self.parameters.show_bootstrap(self.stability.bootstrap)
         self.stack.setCurrentWidget(self.tabs)
+
+    def show_bootstrap(self, boot, result: FitResult | None = None) -> None:
+        """A finished bootstrap (models.bootstrap.Bootstrap) of `result` (default: the shown
+        one): the Stability tab and the bootstrap columns of the Parameters tab."""
+        self.stability.show_bootstrap(boot, result=result)
+        self.parameters.show_bootstrap(boot)
