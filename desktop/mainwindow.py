@@ -439,6 +439,7 @@ class MainWindow(QMainWindow):
             self.statusBar().showMessage("The estimate changed while the bootstrap ran; "
                                          "its results are dropped.", 15000)
             return
+        self.session.set_bootstrap(boot)
         self.results.show_bootstrap(boot, self.session.result)
         self.statusBar().showMessage(f"Bootstrap finished: {fmt(boot.used, 'int')} of "
                                      f"{fmt(boot.replicates, 'int')} replicates refitted.", 15000)
@@ -473,6 +474,8 @@ class MainWindow(QMainWindow):
         """A new result in every tab (the lag-2 tab keeps following the model being edited)."""
         self.results.set_diary(self.session.diary)
         self.results.show_result(self.session.result)
+        if self.session.bootstrap is not None:   # reopened with the project
+            self.results.show_bootstrap(self.session.bootstrap, self.session.result)
         self.results.lag2.set_spec(self.session.spec)
         self._show_result_note()
 

@@ -95,6 +95,7 @@ class Session(QObject):
         self._spec: ModelSpec = EMPTY_SPEC
         self._options = FitOptions()
         self._result: FitResult | None = None
+        self._bootstrap = None     # the bootstrap of the result (models.bootstrap.Bootstrap)
         self._result_inputs: Snapshot | None = None
         self._preparation: tuple[Step, ...] = ()
         self._prepared: tuple[Diary, tuple[Step, ...], Diary] | None = None  # cache
@@ -225,11 +226,22 @@ class Session(QObject):
 
     def set_result(self, result: FitResult | None, inputs: Snapshot | None = None) -> None:
         """Show `result`, estimated from `inputs` (not an edit: it is not undoable, but the
-        document counts as unsaved)."""
+        document counts as unsaved); a bootstrap of an earlier result is dropped."""
         self._result = result
         self._result_inputs = inputs
+        self._bootstrap = None
         self._set_unsaved(True)
         self.resultChanged.emit()
+
+    @property
+    def bootstrap(self):
+        """The bootstrap of the present result, or None."""
+        return self._bootstrap
+
+    def set_bootstrap(self, boot) -> None:
+        """Keep a finished bootstrap of the present result (saved with the project)."""
+        self._bootstrap = boot
+        self._set_unsaved(True)
 
     @property
     def document(self) -> int:
@@ -281,7 +293,8 @@ class Session(QObject):
             prompts_per_day=None if settings is None else settings.prompts_per_day,
             preparation=tuple(steps_to_json(self._preparation)),
             spec=spec, options=self._options, result=self._result,
-            result_current=self._result is None or self.result_is_current(), notes=self._notes,
+            result_current=self._result is None or self.result_is_current(),
+            bootstrap=self._bootstrap, notes=self._notes,
             created=self._created, file=self._file)
 
     def load_project(self, project: Project, table, saved: bool = True) -> None:
@@ -315,7 +328,10 @@ class Session(QObject):
             current = (project.result_current and result.spec == self._spec
                        and result.options == self._options)
             # estimated from earlier inputs: shown, with no known inputs, so not current
-            self.set_result(result, self.snapshot() if current else None)
+            self._bootstrap = project.bootstrap
+            self._result, self._result_inputs = result, self.snapshot() if current else None
+            self._set_unsaved(True)
+            self.resultChanged.emit()
         if saved:
             self.mark_saved(project.file)
 

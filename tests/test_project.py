@@ -135,6 +135,28 @@ def test_save_then_open_gives_identical_specification_data_and_results(demo, tmp
     assert again.created == saved.created
 
 
+def test_a_bootstrap_is_kept_with_its_results(demo, tmp_path):
+    # The stored bootstrap reopens with the same replicate estimates, intervals and
+    # stability (models.bootstrap recomputes them from the estimates and checks them).
+    from dataclasses import replace
+    from lagwise.models.bootstrap import bootstrap
+
+    project, _ = demo
+    boot = bootstrap(project_diary(project), project.spec, project.options, project.result,
+                     replicates=6, seed=3, jobs=1)
+    path = tmp_path / "with-bootstrap.lagwise"
+    save_project(replace(project, bootstrap=boot), path)
+    opened = open_project(path)
+    assert opened.bootstrap.to_json() == boot.to_json()
+    np.testing.assert_array_equal(opened.bootstrap.estimates, boot.estimates)
+    # a bootstrap of other parameters than the stored results' is refused
+    doc = json.loads(path.read_text(encoding="utf-8"))
+    doc["bootstrap"]["parameters"] = doc["bootstrap"]["parameters"][::-1]
+    path.write_text(json.dumps(doc), encoding="utf-8")
+    with pytest.raises(ProjectError, match="bootstrap"):
+        open_project(path)
+
+
 def test_refit_of_a_reopened_project_without_the_data_file(demo, tmp_path):
     project, _ = demo
     csv = tmp_path / "demo_diary.csv"

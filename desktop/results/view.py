@@ -101,6 +101,7 @@ class ResultsView(QWidget):
             panel.show_result(result)
         self.stability.show_result(result)
         self.parameters.show_bootstrap(self.stability.bootstrap)
+        self.responses.set_bootstrap(self.stability.bootstrap)
         self.stack.setCurrentWidget(self.tabs)
 
     def show_bootstrap(self, boot, result: FitResult | None = None) -> None:
@@ -108,3 +109,4 @@ class ResultsView(QWidget):
         one): the Stability tab and the bootstrap columns of the Parameters tab."""
         self.stability.show_bootstrap(boot, result=result)
         self.parameters.show_bootstrap(boot)
+        self.responses.set_bootstrap(boot)

@@ -21,6 +21,7 @@ import pandas as pd
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import FieldError, ProjectError
 from lagwise.models.readers import read_table
+from lagwise.models.bootstrap import Bootstrap
 from lagwise.models.results import FitResult
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
@@ -91,6 +92,7 @@ class Project:
     items, time, missing_codes, prompts_per_day: how the table becomes a diary (`recipe`).
     preparation: preparation steps as plain JSON values (models.preparation), in order.
     spec/options/result: the model, the estimator settings and the last results (None: none).
+    bootstrap: the bootstrap of those results (models.bootstrap), when one was run.
     result_current: False when the data, steps, model or settings changed after the results
         were estimated (the window then shows them as out of date).
     created/modified: UTC ISO 8601 times, set by `save_project`.
@@ -108,6 +110,7 @@ class Project:
     options: FitOptions = FitOptions()
     result: FitResult | None = None
     result_current: bool = True
+    bootstrap: Bootstrap | None = None
     notes: str = ""
     created: str = ""
     modified: str = ""

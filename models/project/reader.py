@@ -29,6 +29,7 @@ from lagwise.models.project.document import (
 )
 from lagwise.models.project.table import parse_table
 from lagwise.models.project.upgrade import upgrade
+from lagwise.models.bootstrap import Bootstrap
 from lagwise.models.results import FitResult
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
@@ -125,8 +126,22 @@ def _parse(raw: bytes, label: str) -> Any:
 
 # ---------------------------------------------------------------------------- fields
 
+def _bootstrap(value: object, results: object) -> Bootstrap | None:
+    """The stored bootstrap of the stored results (its parameters must be theirs)."""
+    if value is None:
+        return None
+    if results is None:
+        raise FieldError("bootstrap", "belongs to results, but the project has none")
+    boot = Bootstrap.from_json(value, "bootstrap")
+    free = [q for q in results["parameters"] if q.get("free")]
+    if [(str(p.kind), p.from_, p.to) for p in boot.parameters] != [
+            (q["kind"], q["from"], q["to"]) for q in free]:
+        raise FieldError("bootstrap.parameters", "should be the free parameters of the results")
+    return boot
+
+
 def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
-    doc = jr.obj(doc, "", _TOP_KEYS, ("recovery_of", "results_current"))
+    doc = jr.obj(doc, "", _TOP_KEYS, ("recovery_of", "results_current", "bootstrap"))
     time, per_day = _time(doc["time"])
     items = doc["items"]
     if items is not None:
@@ -156,6 +171,7 @@ def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
         options=FitOptions.from_json(doc["options"], "options"),
         result=None if results is None else FitResult.from_json(results, "results"),
         result_current=jr.boolean(doc.get("results_current", True), "results_current"),
+        bootstrap=_bootstrap(doc.get("bootstrap"), results),
         notes=jr.text(doc["notes"], "notes", jr.MAX_TEXT),
         created=_timestamp(doc["created"], "created"),
         modified=_timestamp(doc["modified"], "modified"),

@@ -118,6 +118,7 @@ def _document(project: Project, folder: Path) -> dict:
         "options": project.options.to_json(),
         "results": None if project.result is None else project.result.to_json(),
         "results_current": project.result_current,
+        **({} if project.bootstrap is None else {"bootstrap": project.bootstrap.to_json()}),
         "notes": project.notes,
     }
 

@@ -166,3 +166,27 @@ def test_cancel_stops_the_bootstrap_and_keeps_what_was_shown(qtbot, window):
     settle(qtbot)
     assert stability.bootstrap is None
     assert "The bootstrap stopped" in window.statusBar().currentMessage()
+
+
+def test_a_bootstrap_is_saved_with_the_project_and_shown_when_reopened(qtbot, window, tmp_path):
+    # The finished bootstrap goes into the project file; reopening shows the same numbers in
+    # the Stability tab (read off the screen) and the Responses tab gets its percentile bands.
+    win = window
+    result = win.session.result
+    boot = bootstrap(win.session.snapshot().diary, result.spec, result.options, result,
+                     replicates=8, seed=2, jobs=1)
+    win._bootstrapped = result
+    win._bootstrap_done(boot)
+    settle(qtbot)
+    path = tmp_path / "with-bootstrap.lagwise"
+    assert win.files.save_to(path)
+    shown_before = _shown(win.results.stability.table, win.results.stability.model)
+    win.session.mark_saved(None)
+    again = open_window(qtbot, 1280, 800)
+    assert again.files.open(path)
+    settle(qtbot)
+    assert again.session.bootstrap.to_json() == boot.to_json()
+    stability = again.results.stability
+    assert _shown(stability.table, stability.model) == shown_before
+    assert again.results.responses._bootstrap is again.session.bootstrap
+    again.session.mark_saved(None)
