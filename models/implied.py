@@ -94,12 +94,11 @@ def window_shape(p: int, k: int, q: int, depth: int) -> WindowShape:
                        item_of=np.tile(np.arange(p), copies), state_of=np.tile(np.arange(k), copies))
 
 
-def _inverse_nilpotent(eye_minus_a: np.ndarray, copies: int) -> np.ndarray:
+def _inverse_nilpotent(a: np.ndarray, copies: int) -> np.ndarray:
     """(I - A)^-1 = I + A + ... + A^(copies-1): copies only regress on older copies, so A is
     block strictly upper triangular and A^copies = 0."""
-    a = np.eye(eye_minus_a.shape[0]) - eye_minus_a
-    out, term = np.eye(a.shape[0]), np.eye(a.shape[0])
-    for _ in range(copies - 1):
+    out, term = a + np.eye(a.shape[0]), a
+    for _ in range(copies - 2):
         term = term @ a
         out += term
     return out
@@ -123,9 +122,9 @@ def implied_moments(m: Matrices, depth: int, free_first_copies: bool = False) ->
     q = m.lagged.shape[0]
     shape = window_shape(p, k, q, depth)
     kk, n_reg = shape.kk, shape.n_reg
-    eye_minus_a = np.eye(kk)
+    a = np.zeros((kk, kk))
     rows, cols, src = shape.a_at
-    eye_minus_a[rows, cols] = -m.lagged.ravel()[src]
+    a[rows, cols] = m.lagged.ravel()[src]
     psi_big = np.zeros((kk, kk))
     rows, cols, src = shape.psi_at
     psi_big[rows, cols] = m.psi.ravel()[src]
@@ -141,7 +140,7 @@ def implied_moments(m: Matrices, depth: int, free_first_copies: bool = False) ->
             big_q[:k, :k] = m.psi
             p_old = solve_lyapunov(comp, big_q)
         psi_big[n_reg * k:, n_reg * k:] = p_old
-    m_inv = _inverse_nilpotent(eye_minus_a, shape.copies)
+    m_inv = _inverse_nilpotent(a, shape.copies)
     phi_xi = m_inv @ psi_big @ m_inv.T
     lam_big = np.zeros((shape.width, kk))
     rows, cols, src = shape.lam_at

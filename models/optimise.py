@@ -35,7 +35,7 @@ class Likelihood(Protocol):
 
 
 PRECISE = {"ftol": 1e-12, "gtol": 1e-8}
-ROUGH = {"ftol": 1e-6, "gtol": 1e-4}   # when Newton steps with the information finish the job
+ROUGH = {"ftol": 1e-5, "gtol": 1e-3}   # when Newton steps with the information finish the job
 
 
 def maximise(objective: Likelihood, theta0: np.ndarray, sizes: np.ndarray, max_iter: int,
@@ -106,7 +106,7 @@ def observed_information(objective: Likelihood, theta: np.ndarray, sizes: np.nda
 
 
 def newton_polish(objective: Likelihood, theta: np.ndarray, information: np.ndarray,
-                  steps: int = 10) -> tuple[np.ndarray, int, bool]:
+                  steps: int = 20) -> tuple[np.ndarray, int, bool]:
     """Newton steps theta += I^-1 g on the interior parameters while they raise the
     log-likelihood (I the observed or expected information at the starting point), until the
     Newton decrement g' I^-1 g falls below 1e-12 per row (the log-likelihood is then within

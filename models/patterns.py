@@ -124,15 +124,15 @@ class PatternData:
                          ) -> tuple[float, np.ndarray | None, np.ndarray | None]:
         """`loglik` for one complete pattern (the same formulas without padding)."""
         chol, info = lapack.dpotrf(sigma, lower=1)
-        diag = np.diagonal(chol)
-        if info != 0 or not np.all(np.isfinite(diag)) or np.any(diag <= 0):
+        logdet = 2.0 * float(np.log(np.diagonal(chol)).sum()) if info == 0 else np.nan
+        if not np.isfinite(logdet):    # not positive definite (or not finite)
             raise NotAdmissible("window covariance not positive definite")
         inv, _ = lapack.dpotri(chol, lower=1)      # the lower triangle of Sigma^-1
         inv = np.where(self._lower, inv, inv.T)
         e = self.means[0] - mu
         mg = self.covs[0] + e[:, None] * e[None, :]
         n = self.counts[0]
-        total = float(-0.5 * n * (self.width * LOG2PI + 2.0 * np.log(diag).sum() + np.vdot(inv, mg)))
+        total = float(-0.5 * n * (self.width * LOG2PI + logdet + np.vdot(inv, mg)))
         if not gradient:
             return total, None, None
         return total, 0.5 * n * (inv @ mg @ inv - inv), n * (inv @ e)
