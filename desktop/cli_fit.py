@@ -25,7 +25,7 @@ from lagwise.models.project import (
 )
 from lagwise.models.bootstrap import Bootstrap, bootstrap
 from lagwise.models.report import format_bootstrap, format_lag2, format_responses, format_result
-from lagwise.models.responses import MAX_HORIZON, check_horizon, impulse_responses
+from lagwise.models.responses import DEFAULT_HORIZON, MAX_HORIZON, check_horizon, impulse_responses
 from lagwise.models.results import _finite
 from lagwise.models.estimators import ERRORS, ESTIMATORS, MISSING, FitOptions
 from lagwise.models.spec import ModelSpec, State, full_mask, inertia_mask
@@ -57,7 +57,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                      help=f"optimiser iterations at most (default {FitOptions.max_iter})")
     parser.add_argument("--lag2-check", action="store_true",
                         help="test whether lag 1 is enough (lag-2 paths and autocorrelated unique parts)")
-    parser.add_argument("--horizon", type=int, default=10, metavar="H",
+    parser.add_argument("--horizon", type=int, default=DEFAULT_HORIZON, metavar="H",
                         help=f"impulse responses over H prompts (1 to {MAX_HORIZON}, default 10): "
                              "printed, and written to the JSON as \"responses\"")
     boot = parser.add_argument_group("bootstrap")

@@ -274,6 +274,8 @@ class MainWindow(QMainWindow):
         s.documentReplaced.connect(self.worker.cancel)
         self._connect_lag2()
         self.results.stability.run_requested.connect(self.run_bootstrap)
+        self.results.responses.choice_changed.connect(
+            lambda: s.set_responses(self.results.responses.response_choice()))
         self.worker.started.connect(self._run_started)
         self.worker.progress.connect(self._run_progress)
         self.worker.done.connect(self._run_done)
@@ -476,6 +478,8 @@ class MainWindow(QMainWindow):
         self.results.show_result(self.session.result)
         if self.session.bootstrap is not None:   # reopened with the project
             self.results.show_bootstrap(self.session.bootstrap, self.session.result)
+        if self.session.result is not None and self.session.responses is not None:
+            self.results.responses.set_response_choice(self.session.responses)
         self.results.lag2.set_spec(self.session.spec)
         self._show_result_note()
 

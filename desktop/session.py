@@ -96,6 +96,7 @@ class Session(QObject):
         self._options = FitOptions()
         self._result: FitResult | None = None
         self._bootstrap = None     # the bootstrap of the result (models.bootstrap.Bootstrap)
+        self._responses = None     # what the Responses tab shows (models.responses.ResponseChoice)
         self._result_inputs: Snapshot | None = None
         self._preparation: tuple[Step, ...] = ()
         self._prepared: tuple[Diary, tuple[Step, ...], Diary] | None = None  # cache
@@ -244,6 +245,18 @@ class Session(QObject):
         self._set_unsaved(True)
 
     @property
+    def responses(self):
+        """What the Responses tab shows (models.responses.ResponseChoice), or None."""
+        return self._responses
+
+    def set_responses(self, choice) -> None:
+        """Keep what the Responses tab shows (saved with the project, with a result)."""
+        if choice != self._responses:
+            self._responses = choice
+            if self._result is not None:
+                self._set_unsaved(True)
+
+    @property
     def document(self) -> int:
         """A number that changes whenever the whole document is replaced (an import, an
         opened project, New): a run started on an earlier document is not shown."""
@@ -294,7 +307,8 @@ class Session(QObject):
             preparation=tuple(steps_to_json(self._preparation)),
             spec=spec, options=self._options, result=self._result,
             result_current=self._result is None or self.result_is_current(),
-            bootstrap=self._bootstrap, notes=self._notes,
+            bootstrap=self._bootstrap,
+            responses=None if self._result is None else self._responses, notes=self._notes,
             created=self._created, file=self._file)
 
     def load_project(self, project: Project, table, saved: bool = True) -> None:
@@ -329,6 +343,7 @@ class Session(QObject):
                        and result.options == self._options)
             # estimated from earlier inputs: shown, with no known inputs, so not current
             self._bootstrap = project.bootstrap
+            self._responses = project.responses
             self._result, self._result_inputs = result, self.snapshot() if current else None
             self._set_unsaved(True)
             self.resultChanged.emit()

@@ -53,6 +53,7 @@ from lagwise.models.parameters import ParameterLayout
 from lagwise.models.results import FitResult, _finite
 
 MAX_HORIZON = 200
+DEFAULT_HORIZON = 10
 FORMS = ("unit", "orthogonal")
 INTERVALS = ("delta", "percentile", "none")
 _DYNAMICS_MATRICES = frozenset(("lagged", "psi", "pv", "rmat"))  # what the responses depend on
@@ -73,6 +74,40 @@ class Replicates(Protocol):
     `FitResult.free_parameters`."""
 
     estimates: np.ndarray
+
+
+@dataclass(frozen=True)
+class ResponseChoice:
+    """What the Responses tab shows (kept with the project): the horizon, the order of the
+    states for orthogonal responses (empty: the states' own order), the form, cumulative or
+    not, and standardized or in the states' own units."""
+
+    horizon: int = DEFAULT_HORIZON
+    order: tuple[str, ...] = ()
+    form: str = "unit"
+    cumulative: bool = False
+    standardized: bool = True
+
+    def to_json(self) -> dict:
+        return {"horizon": self.horizon, "order": list(self.order), "form": self.form,
+                "cumulative": self.cumulative, "standardized": self.standardized}
+
+    @classmethod
+    def from_json(cls, doc: object, where: str = "", states: Sequence[str] | None = None
+                  ) -> "ResponseChoice":
+        """The choice from `to_json` output (strict); with `states`, the order must hold
+        exactly those states (or be empty)."""
+        fields = jr.read_fields(doc, where, (
+            jr.field("horizon", jr.integer, low=1, high=MAX_HORIZON),
+            jr.field("order", jr.tuple_of, item=jr.text, limit=jr.MAX_STATES),
+            jr.field("form", jr.choice, choices=FORMS),
+            jr.field("cumulative", jr.boolean),
+            jr.field("standardized", jr.boolean)), closed=True)
+        order = fields["order"]
+        if states is not None and order and sorted(order) != sorted(states):
+            raise FieldError(jr.at(where, "order"),
+                             f"should hold the states {list(states)}, not {list(order)}")
+        return cls(**fields)
 
 
 @dataclass(frozen=True, eq=False)
@@ -259,7 +294,7 @@ def _percent(level: float) -> str:
 
 # ============================================================================ computation
 
-def impulse_responses(result: FitResult, horizon: int = 10, order: Sequence[str] | None = None,
+def impulse_responses(result: FitResult, horizon: int = DEFAULT_HORIZON, order: Sequence[str] | None = None,
                       bootstrap: Replicates | None = None, level: float = 0.95) -> Responses:
     """Unit, orthogonal, cumulative and standardized responses of `result` for h = 0..horizon,
     with pointwise bands at `level`: percentile bands of `bootstrap.estimates` when given,

@@ -157,6 +157,25 @@ def test_a_bootstrap_is_kept_with_its_results(demo, tmp_path):
         open_project(path)
 
 
+def test_the_responses_choice_is_kept_with_its_results(demo, tmp_path):
+    # What the Responses tab showed reopens as it was; an order of other states is refused.
+    from dataclasses import replace
+    from lagwise.models.responses import ResponseChoice
+
+    project, _ = demo
+    order = tuple(reversed(project.result.states))
+    choice = ResponseChoice(horizon=7, order=order, form="orthogonal", cumulative=True,
+                            standardized=False)
+    path = tmp_path / "with-responses.lagwise"
+    save_project(replace(project, responses=choice), path)
+    assert open_project(path).responses == choice
+    doc = json.loads(path.read_text(encoding="utf-8"))
+    doc["responses"]["order"] = ["Somebody", *order[1:]]
+    path.write_text(json.dumps(doc), encoding="utf-8")
+    with pytest.raises(ProjectError, match="responses.order"):
+        open_project(path)
+
+
 def test_refit_of_a_reopened_project_without_the_data_file(demo, tmp_path):
     project, _ = demo
     csv = tmp_path / "demo_diary.csv"

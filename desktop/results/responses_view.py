@@ -17,7 +17,7 @@ import math
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import Qt
+from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QColor, QFont
 from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QHBoxLayout, QLabel,
                                QListWidget, QListWidgetItem, QScrollArea, QSizePolicy, QSpinBox,
@@ -27,10 +27,10 @@ from lagwise.desktop.results.charts import style_plot
 from lagwise.desktop.results.tables import Column, RecordsModel
 from lagwise.desktop.results.widgets import ResultsPanel, fit_height, note_label, section_label, table_view
 from lagwise.desktop.style import INK, MUTED, NEGATIVE, POSITIVE, RULE
-from lagwise.models.responses import MAX_HORIZON, Replicates, Responses, impulse_responses
+from lagwise.models.responses import (DEFAULT_HORIZON, MAX_HORIZON, Replicates, ResponseChoice,
+                                      Responses, impulse_responses)
 from lagwise.models.results import FitResult
 
-DEFAULT_HORIZON = 10
 COLUMNS_OF_PLOTS = 3
 ROW_HEIGHT = 180
 BAND = "#6b777d"          # neutral grey (MUTED) band, drawn at BAND_ALPHA
@@ -61,6 +61,7 @@ class ResponsesPanel(ResultsPanel):
     """Plots, tables and sentences of `impulse_responses(result, horizon, order)`."""
 
     name = "responses"
+    choice_changed = Signal()   # the user changed what the tab shows (see `response_choice`)
 
     def __init__(self, parent=None):
         super().__init__("Responses: what follows a rise in one state", parent)
@@ -141,6 +142,10 @@ class ResponsesPanel(ResultsPanel):
         self.form_box.currentIndexChanged.connect(self._form_changed)
         self.cumulative_box.toggled.connect(self._redraw)
         self.horizon_spin.valueChanged.connect(self._recompute)
+        for signal in (self.units_box.currentIndexChanged, self.form_box.currentIndexChanged,
+                       self.cumulative_box.toggled, self.horizon_spin.valueChanged,
+                       self.order_list.model().rowsMoved):
+            signal.connect(lambda *_: self.choice_changed.emit())
 
     def _build_body(self) -> None:
         self.legend = QLabel()
@@ -242,6 +247,30 @@ class ResponsesPanel(ResultsPanel):
         if self._result is not None:
             self._recompute()
 
+    def response_choice(self) -> ResponseChoice:
+        """What the tab shows now (saved with the project)."""
+        form, cumulative, standardized = self.choice()
+        return ResponseChoice(self.horizon_spin.value(), self.order, form, cumulative,
+                              standardized)
+
+    def set_response_choice(self, choice: ResponseChoice) -> None:
+        """Show `choice` (a reopened project's); an order of other states is left alone."""
+        widgets = (self.horizon_spin, self.units_box, self.form_box, self.cumulative_box)
+        for widget in widgets:
+            widget.blockSignals(True)
+        self.horizon_spin.setValue(choice.horizon)
+        self.units_box.setCurrentIndex(self.units_box.findData(
+            "standardized" if choice.standardized else "own"))
+        self.form_box.setCurrentIndex(self.form_box.findData(choice.form))
+        self.cumulative_box.setChecked(choice.cumulative)
+        for widget in widgets:
+            widget.blockSignals(False)
+        self.order_row.setVisible(choice.form == "orthogonal")
+        if choice.order and sorted(choice.order) == sorted(self.order):
+            self.set_order(choice.order)
+        elif self._result is not None:
+            self._recompute()
+
     @property
     def order(self) -> tuple[str, ...]:
         return tuple(self.order_list.item(n).text() for n in range(self.order_list.count()))
@@ -288,6 +317,7 @@ class ResponsesPanel(ResultsPanel):
         order.insert(target, order.pop(row))
         self.set_order(order)
         self.order_list.setCurrentRow(target)
+        self.choice_changed.emit()
 
     def _recompute(self) -> None:
         responses = self.responses

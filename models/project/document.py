@@ -22,6 +22,7 @@ from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import FieldError, ProjectError
 from lagwise.models.readers import read_table
 from lagwise.models.bootstrap import Bootstrap
+from lagwise.models.responses import ResponseChoice
 from lagwise.models.results import FitResult
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
@@ -93,6 +94,7 @@ class Project:
     preparation: preparation steps as plain JSON values (models.preparation), in order.
     spec/options/result: the model, the estimator settings and the last results (None: none).
     bootstrap: the bootstrap of those results (models.bootstrap), when one was run.
+    responses: what the Responses tab shows for those results (None: its defaults).
     result_current: False when the data, steps, model or settings changed after the results
         were estimated (the window then shows them as out of date).
     created/modified: UTC ISO 8601 times, set by `save_project`.
@@ -111,6 +113,7 @@ class Project:
     result: FitResult | None = None
     result_current: bool = True
     bootstrap: Bootstrap | None = None
+    responses: ResponseChoice | None = None
     notes: str = ""
     created: str = ""
     modified: str = ""

@@ -30,6 +30,7 @@ from lagwise.models.project.document import (
 from lagwise.models.project.table import parse_table
 from lagwise.models.project.upgrade import upgrade
 from lagwise.models.bootstrap import Bootstrap
+from lagwise.models.responses import ResponseChoice
 from lagwise.models.results import FitResult
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
@@ -140,8 +141,18 @@ def _bootstrap(value: object, results: object) -> Bootstrap | None:
     return boot
 
 
+def _responses(value: object, result: FitResult | None) -> ResponseChoice | None:
+    """What the Responses tab showed for the stored results (its order: their states)."""
+    if value is None:
+        return None
+    if result is None:
+        raise FieldError("responses", "belongs to results, but the project has none")
+    return ResponseChoice.from_json(value, "responses", states=result.states)
+
+
 def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
-    doc = jr.obj(doc, "", _TOP_KEYS, ("recovery_of", "results_current", "bootstrap"))
+    doc = jr.obj(doc, "", _TOP_KEYS, ("recovery_of", "results_current", "bootstrap",
+                                           "responses"))
     time, per_day = _time(doc["time"])
     items = doc["items"]
     if items is not None:
@@ -164,14 +175,16 @@ def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
         recovery_of = Path(jr.text(recovery_of, "recovery_of", jr.MAX_TEXT))
     spec = doc["spec"]
     results = doc["results"]
+    result = None if results is None else FitResult.from_json(results, "results")
     project = Project(
         data=data, items=items, time=time, missing_codes=codes, prompts_per_day=per_day,
         preparation=tuple(preparation),
         spec=None if spec is None else ModelSpec.from_json(spec, "spec", validate=False),
         options=FitOptions.from_json(doc["options"], "options"),
-        result=None if results is None else FitResult.from_json(results, "results"),
+        result=result,
         result_current=jr.boolean(doc.get("results_current", True), "results_current"),
         bootstrap=_bootstrap(doc.get("bootstrap"), results),
+        responses=_responses(doc.get("responses"), result),
         notes=jr.text(doc["notes"], "notes", jr.MAX_TEXT),
         created=_timestamp(doc["created"], "created"),
         modified=_timestamp(doc["modified"], "modified"),

@@ -119,6 +119,7 @@ def _document(project: Project, folder: Path) -> dict:
         "results": None if project.result is None else project.result.to_json(),
         "results_current": project.result_current,
         **({} if project.bootstrap is None else {"bootstrap": project.bootstrap.to_json()}),
+        **({} if project.responses is None else {"responses": project.responses.to_json()}),
         "notes": project.notes,
     }
 

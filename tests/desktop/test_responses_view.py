@@ -272,3 +272,39 @@ def test_the_tab_reads_without_clipping_in_the_window(qtbot, lagwise_app, artifa
     assert panel.plot_scroll.verticalScrollBar().maximum() == 0
     assert panel.side.widget().width() <= panel.side.viewport().width()   # no text cut on the right
     win.session.mark_saved(None)
+
+
+def test_what_the_tab_shows_is_saved_with_the_project(qtbot, lagwise_app, tmp_path, monkeypatch):
+    # The horizon, order, form, cumulative and units chosen on the tab go into the project
+    # file and come back on the reopened tab (read off its controls and its table).
+    from lagwise.desktop.app import load_demo
+
+    monkeypatch.setenv("LAGWISE_DATA_DIR", str(tmp_path / "data"))
+    win = open_window(qtbot, 1280, 800)
+    load_demo(win.session)
+    win.session.set_result(demo_result())
+    settle(qtbot)
+    panel = win.results.responses
+    choose(panel, 0, "orthogonal", True, False)
+    panel.horizon_spin.setValue(6)
+    panel.order_list.setCurrentRow(0)
+    qtbot.mouseClick(panel.later_button, Qt.MouseButton.LeftButton)
+    chosen = panel.response_choice()
+    assert chosen.horizon == 6 and chosen.form == "orthogonal" and chosen.cumulative
+    assert not chosen.standardized and chosen.order[1] == demo_result().states[0]
+    assert win.session.responses == chosen
+    path = tmp_path / "responses.lagwise"
+    assert win.files.save_to(path)
+    win.session.mark_saved(None)
+
+    again = open_window(qtbot, 1280, 800)
+    assert again.files.open(path)
+    settle(qtbot)
+    shown = again.results.responses
+    assert shown.horizon_spin.text() == "6"
+    assert [shown.order_list.item(n).text() for n in range(shown.order_list.count())] == list(chosen.order)
+    assert shown.form_box.currentText() == responses_view.FORMS["orthogonal"]
+    assert shown.units_box.currentText() == responses_view.UNITS["own"]
+    assert shown.cumulative_box.isChecked()
+    assert shown.responses.order == chosen.order and shown.responses.horizon == 6
+    again.session.mark_saved(None)
