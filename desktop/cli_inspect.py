@@ -10,10 +10,9 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from pathlib import Path
 
 from lagwise.desktop.cli_common import add_diary_arguments, diary_from_args
-from lagwise.models.errors import DataError
+from lagwise.models.atomic import write_output
 from lagwise.models.summary import diary_summary, format_summary
 from lagwise.models.screening import format_screening, screen_diary, screening_json
 
@@ -38,9 +37,5 @@ def run(args: argparse.Namespace) -> int:
     print()
     print(format_screening(screening))
     if args.json:
-        out = Path(args.json)
-        try:
-            out.write_text(text + "\n", encoding="utf-8")
-        except OSError as error:
-            raise DataError(f"{out}: cannot write the summary ({error.strerror})") from error
+        write_output(args.json, text + "\n", "the summary")
     return 0
