@@ -80,7 +80,7 @@ def write_output(target: str | Path, data: bytes | str, what: str) -> Path:
     except OSError as error:
         kept = ("the previous file is unchanged" if target.is_file()
                 else "nothing was written")
-        raise OutputError(f"{target}: could not write {what} ({_reason(error)}); "
+        raise OutputError(f"{target}: could not write {what} ({failure_reason(error)}); "
                           f"{kept}") from error
     return target
 
@@ -124,9 +124,8 @@ def sync_folder(folder: str | Path) -> None:
         os.close(handle)
 
 
-def _reason(error: OSError) -> str:
-    if error.errno == errno.ENOSPC:
-        return "the disk is full"
+def failure_reason(error: OSError) -> str:
+    """Why a write failed, in plain words (a folder, a missing folder, else the system's)."""
     if isinstance(error, IsADirectoryError):
         return "it is a folder"
     if isinstance(error, FileNotFoundError):

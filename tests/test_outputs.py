@@ -8,6 +8,7 @@ a missing folder, a folder and a read-only file are real. The diary is the bundl
 
 from __future__ import annotations
 
+import errno
 import json
 import os
 import shutil
@@ -32,6 +33,7 @@ from lagwise.models.spec import make_spec
 DEMO = Path(__file__).resolve().parents[1] / "resources" / "demo" / "demo_diary.csv"
 GRID = ["--day", "day", "--prompt", "prompt"]
 STATE = ["--state", "tension=tense,restless,worried"]  # one of the demo's states (its README)
+FULL = os.strerror(errno.ENOSPC)  # what the system says of a full disk
 OLD = b'{"an older file": "kept byte for byte"}\n'
 POSIX_USER = not sys.platform.startswith("win") and os.geteuid() != 0
 READ_ONLY = pytest.mark.skipif(not POSIX_USER, reason="read-only files bind a POSIX non-root user")
@@ -85,7 +87,7 @@ def test_a_full_disk_leaves_the_older_json_byte_identical(tmp_path, capsys, monk
     monkeypatch.undo()
     assert code == 2
     line = one_plain_line(err)
-    assert "disk is full" in line and "previous file is unchanged" in line
+    assert FULL in line and "previous file is unchanged" in line
     assert out.read_bytes() == OLD
     only_file(tmp_path, "r.json")
 
@@ -126,7 +128,7 @@ def test_fit_project_that_cannot_be_saved_still_writes_the_json(tmp_path, capsys
     code, out, err = run(capsys, "fit", demo_csv, *GRID, *STATE, "--json", result,
                          "--save", tmp_path / "no such folder" / "ok.lagwise")
     assert code == 2
-    assert "could not save the project" in one_plain_line(err)
+    assert "could not save the project (the folder does not exist)" in one_plain_line(err)
     assert f"Results written to {result}" in out
     assert json.loads(result.read_text(encoding="utf-8"))["converged"] is True
 
