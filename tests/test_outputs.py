@@ -26,7 +26,7 @@ from lagwise.models.atomic import STALE_SECONDS, remove_stale_temporaries, write
 from lagwise.models.diary import TimeSettings
 from lagwise.models.errors import ProjectError
 from lagwise.models.project import (
-    Project, embed_file, open_project, recovery_path, save_project, write_recovery,
+    Project, embed_file, find_recoveries, open_project, recovery_path, save_project, write_recovery,
 )
 from lagwise.models.spec import make_spec
 
@@ -209,3 +209,12 @@ def test_removing_stale_temporaries_before_opening(tmp_path):
     stale = aged(tmp_path / ".robin.lagwise.0123abcd.tmp", 10 * STALE_SECONDS)
     assert remove_stale_temporaries(target) == [stale.resolve()]
     assert list(tmp_path.iterdir()) == []
+
+
+def test_looking_for_autosaves_removes_old_temporaries_of_killed_autosaves(tmp_path):
+    folder = tmp_path / "recovery"
+    folder.mkdir()
+    stale = aged(folder / ".untitled-4242.lagwise.0123abcd.tmp", 10 * STALE_SECONDS)
+    fresh = aged(folder / ".untitled-4243.lagwise.0123abcd.tmp", 0)
+    assert find_recoveries(folder) == []
+    assert not stale.exists() and fresh.exists()
