@@ -32,6 +32,7 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from scipy.special import stdtr
 
+from lagwise.models.blas import one_blas_thread
 from lagwise.models.diary import Diary
 from lagwise.models.errors import DataError
 from lagwise.models.numbers import fmt, p_phrase
@@ -201,14 +202,15 @@ def screen_diary(diary: Diary, scales: dict[str, tuple[float, float]] | None = N
     n_free: free parameters of the current specification (for windows per parameter).
     """
     scales = scales or {}
-    weekday = weekdays(diary)
-    screens = []
-    for j, name in enumerate(diary.items):
-        checkpoint(monitor, j / (diary.n_items + 1), f"Screening item {name}")
-        screens.append(screen_item(name, diary.values[:, j], diary.segment, diary.prompt,
-                                   weekday, scales.get(name)))
-    checkpoint(monitor, diary.n_items / (diary.n_items + 1), "Readiness")
-    return Screening(items=tuple(screens), readiness=readiness(diary, screens, n_free))
+    with one_blas_thread():  # long vector products: threaded BLAS only waits on two cores
+        weekday = weekdays(diary)
+        screens = []
+        for j, name in enumerate(diary.items):
+            checkpoint(monitor, j / (diary.n_items + 1), f"Screening item {name}")
+            screens.append(screen_item(name, diary.values[:, j], diary.segment, diary.prompt,
+                                       weekday, scales.get(name)))
+        checkpoint(monitor, diary.n_items / (diary.n_items + 1), "Readiness")
+        return Screening(items=tuple(screens), readiness=readiness(diary, screens, n_free))
 
 
 def screening_json(screening: Screening) -> dict:
