@@ -57,7 +57,7 @@ def adf_max_lag(n: int) -> int:
 def adf(x: np.ndarray, max_lag: int | None = None) -> tuple[float, float, int]:
     """ADF test with a constant and the lag chosen by AIC: (statistic, p, lag).
 
-    ValueError when the series is too short for the regression."""
+    ValueError when the series is too short or its regressors collinear."""
     x = np.asarray(x, dtype=float)
     top = adf_max_lag(x.size) if max_lag is None else int(max_lag)
     if x.size // 2 - 2 < top or x.size < 6:
@@ -160,5 +160,8 @@ def _cross_products(x: np.ndarray, dx: np.ndarray, lag: int) -> np.ndarray:
 
 
 def _cholesky(g: np.ndarray) -> np.ndarray:
-    """Upper factor R with R'R = g."""
-    return np.linalg.cholesky(g).T
+    """Upper factor R with R'R = g; ValueError when the regressors are collinear."""
+    try:
+        return np.linalg.cholesky(g).T
+    except np.linalg.LinAlgError:
+        raise ValueError("the answers change too rarely for the ADF regression") from None

@@ -114,3 +114,12 @@ def test_timestamp_weekdays_match_pandas():
     answered = ~np.isnat(np.asarray(diary.time, dtype="datetime64[ns]"))
     want = pd.DatetimeIndex(np.asarray(diary.time, dtype="datetime64[ns]")[answered]).day_of_week
     assert np.array_equal(got[answered], want)   # pandas' weekday, Monday = 0
+
+
+def test_collinear_regression_is_reported_in_words():
+    """One change at the very end: every lagged difference is zero on the regression's rows,
+    so the regressors are collinear (statsmodels returns NaN here); the ADF is not run."""
+    x = np.r_[np.zeros(199), 1.0]
+    adf_test, _ = stationarity_tests(x)
+    assert adf_test.p is None
+    assert adf_test.verdict == "not run: the answers change too rarely for the ADF regression"
