@@ -10,7 +10,10 @@ cases.py holds the targets):
   each run, so every run tests every item afresh;
 - `lagwise inspect` of a long diary (`INSPECT_CASE`: 9 items, a million prompts, 20% missed,
   simulated from `bench_model` and written as CSV with day and prompt columns) as one
-  process, once: reading, summary and screening of every item.
+  process, once: reading, summary and screening of every item;
+- for reference, no target: the ADF and KPSS tests of the 9 items of a 10,000-prompt diary
+  (`TESTS_CASE`) by models.unitroot against statsmodels' adfuller (constant, AIC, its default
+  lag rule, unbounded) and kpss (level, automatic lags), interleaved, one BLAS thread each.
 """
 
 from __future__ import annotations
@@ -24,11 +27,12 @@ from pathlib import Path
 
 import numpy as np
 
-from lagwise.models.bench.cases import Case, bench_diary
+from lagwise.models.bench.cases import Case, bench_diary, interleaved_best, timed
 from lagwise.models.progress import Monitor, checkpoint
 
 CLI = (sys.executable, "-m", "lagwise.desktop.cli")
 GRID = ("--day", "day", "--prompt", "prompt")
+TESTS_CASE = Case(3, 3, 10_000)
 
 
 @dataclass(frozen=True)
@@ -39,6 +43,12 @@ class CommandTimes:
     long_case: Case
     inspect_long_seconds: float       # `lagwise inspect` of the long diary, whole process
     long_answered: int                # answered prompts in the long diary
+    tests_seconds: float              # models.unitroot, ADF + KPSS of TESTS_CASE's items
+    peer_tests_seconds: float         # statsmodels adfuller + kpss of the same series
+
+    @property
+    def tests_ratio(self) -> float:
+        return self.peer_tests_seconds / self.tests_seconds
 
 
 def process_seconds(args: tuple[str, ...], repeats: int, warm_up: bool = True,
@@ -79,6 +89,33 @@ def screen_demo_seconds(repeats: int) -> float:
     return float(best)
 
 
+def tests_seconds(case: Case, repeats: int) -> tuple[float, float]:
+    """Best seconds of the ADF and KPSS tests of every item of `case` (20% missed, gaps
+    closed up): models.unitroot, and statsmodels' adfuller and kpss at their defaults."""
+    import warnings
+
+    from statsmodels.tsa.stattools import adfuller, kpss
+
+    from lagwise.models.blas import one_blas_thread
+    from lagwise.models.unitroot import adf, kpss_level
+
+    _, diary = bench_diary(case, p_missed=0.2)
+    series = [c[~np.isnan(c)] for c in diary.values.T]
+
+    def ours():
+        return [(adf(x), kpss_level(x)) for x in series]
+
+    def peer():
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            return [(adfuller(x, regression="c", autolag="AIC"),
+                     kpss(x, regression="c", nlags="auto")) for x in series]
+
+    with one_blas_thread():
+        best = interleaved_best({"ours": timed(ours), "peer": timed(peer)}, repeats)
+    return best["ours"][0], best["peer"][0]
+
+
 def write_diary_csv(case: Case, path: Path) -> int:
     """The diary of `case` (20% missed prompts) as CSV with day and prompt columns; returns
     the number of answered prompts."""
@@ -104,6 +141,8 @@ def measure_commands(case: Case, repeats: int = 3, monitor: Monitor | None = Non
     inspect_s = process_seconds((*CLI, "inspect", demo, *GRID), repeats)
     checkpoint(monitor, 0.4, "Screening the demo in process")
     screen_s = screen_demo_seconds(repeats)
+    checkpoint(monitor, 0.45, f"ADF and KPSS against statsmodels, {TESTS_CASE.label}")
+    ours_s, peer_s = tests_seconds(TESTS_CASE, repeats)
     checkpoint(monitor, 0.5, f"Writing the long diary ({case.label})")
     with tempfile.TemporaryDirectory() as folder:
         path = Path(folder) / "long_diary.csv"
@@ -113,4 +152,5 @@ def measure_commands(case: Case, repeats: int = 3, monitor: Monitor | None = Non
     checkpoint(monitor, 1.0, "Command line: done")
     return CommandTimes(help_seconds=help_s, inspect_demo_seconds=inspect_s,
                         screen_demo_seconds=screen_s, long_case=case,
-                        inspect_long_seconds=long_s, long_answered=answered)
+                        inspect_long_seconds=long_s, long_answered=answered,
+                        tests_seconds=ours_s, peer_tests_seconds=peer_s)

@@ -17,7 +17,7 @@ def test_command_line_timings():
     result = measure_commands(QUICK_INSPECT_CASE, repeats=2)
     print("\n" + format_report(BenchReport(commands=result, repeats=2)))
     seconds = (result.help_seconds, result.inspect_demo_seconds, result.screen_demo_seconds,
-               result.inspect_long_seconds)
+               result.inspect_long_seconds, result.tests_seconds, result.peer_tests_seconds)
     assert all(np.isfinite(s) and s > 0 for s in seconds)
     # 20% of prompts missed on purpose: the answered share is binomial around 0.8
     share = result.long_answered / QUICK_INSPECT_CASE.occasions
