@@ -13,10 +13,13 @@
 from __future__ import annotations
 
 import argparse
+from typing import TYPE_CHECKING
 
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import DataError
-from lagwise.models.recipe import DiaryRecipe
+
+if TYPE_CHECKING:  # the readers (pandas) load when a diary is read, not for --help
+    from lagwise.models.recipe import DiaryRecipe
 
 
 def add_diary_arguments(parser: argparse.ArgumentParser, data: bool = True) -> None:
@@ -72,6 +75,8 @@ def split_list(text: str | None) -> list[str] | None:
 
 def recipe_from_args(args: argparse.Namespace) -> DiaryRecipe:
     """How the options say the data file becomes a diary."""
+    from lagwise.models.recipe import DiaryRecipe
+
     return DiaryRecipe.of(split_list(args.items), time_settings_from_args(args),
                           split_list(args.missing_codes) or (), args.prompts_per_day)
 

@@ -3,6 +3,7 @@
 Prints prompts scheduled and answered, days and compliance per day, lag windows per depth
 (complete and with missing values) and per item the missing count, mean and SD; with
 --json OUT also writes these as JSON (models.summary.diary_summary; '-' writes to stdout).
+The computation is imported when the command runs, so `lagwise inspect --help` is instant.
 """
 
 from __future__ import annotations
@@ -13,8 +14,6 @@ import sys
 
 from lagwise.desktop.cli_common import add_diary_arguments, diary_from_args
 from lagwise.models.atomic import write_output
-from lagwise.models.summary import diary_summary, format_summary
-from lagwise.models.screening import format_screening, screen_diary, screening_json
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -24,6 +23,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from lagwise.models.screening import format_screening, screen_diary, screening_json
+    from lagwise.models.summary import diary_summary, format_summary
+
     diary = diary_from_args(args)
     summary = diary_summary(diary)
     screening = screen_diary(diary)
