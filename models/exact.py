@@ -65,6 +65,10 @@ class ExactObjective:
     def matrices(self, theta: np.ndarray) -> Matrices:
         return self.layout.unpack(theta)
 
+    def answers_per_item(self) -> np.ndarray:
+        """How often the likelihood counts an answer of each item."""
+        return (~np.isnan(self.values)).sum(axis=0)
+
     def _args(self, theta: np.ndarray) -> tuple:
         m = self.layout.unpack(theta)
         return m, (self.values, self.segment, m.nu, m.lam, m.theta, list(m.lagged), m.psi, m.d)

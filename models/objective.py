@@ -75,6 +75,11 @@ class WindowObjective:
     def n_rows(self) -> int:
         return self.data.n_rows
 
+    def answers_per_item(self) -> np.ndarray:
+        """How often the likelihood counts an answer of each item (over all window copies)."""
+        per_column = self.data.counts @ self.data.observed
+        return per_column.reshape(self.depth + 1, -1).sum(axis=0)
+
     # ----- the likelihood ---------------------------------------------------------------
     def matrices(self, theta: np.ndarray) -> Matrices:
         return self.layout.unpack(theta)
@@ -135,9 +140,12 @@ class WindowObjective:
     def preflight(self) -> list[Flag]:
         """Refuse what cannot be estimated; warn when the windows are few."""
         n, n_free, width = self.n_rows, self.layout.n_free, self.data.width
-        if n < 2:
-            raise EstimationError("Too few usable lag windows to estimate the model "
-                                  f"({n}; check the time settings and missing prompts).")
+        complete = int(self.data.counts[self.data.observed.all(axis=1)].sum())
+        if complete <= width:   # fewer: the data's window covariance is singular
+            raise EstimationError(
+                f"Too few complete lag windows ({complete}) for {len(self.spec.items)} items in "
+                f"windows of {self.depth + 1} prompts: need at least {width + 1} (check the time "
+                "settings and missed prompts, or use fewer items).")
         moments = width * (width + 3) // 2
         if n_free > moments:
             raise SpecError(f"The model has {n_free} free parameters but the lag windows give only "
