@@ -23,9 +23,10 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from lagwise.models.errors import DataError, EstimationError
+from lagwise.models.implied import NotAdmissible
 from lagwise.models.kinds import LAGGED_KINDS, Kind
 from lagwise.models.numbers import fmt
-from lagwise.models.results import FitResult, StateScores
+from lagwise.models.results import FitResult, Parameter, StateScores
 from lagwise.models.spec import ModelSpec
 
 CONSTANT = 1e-9          # SD below this share of the item's largest absolute value: constant
@@ -45,6 +46,15 @@ def item_sd(column: np.ndarray) -> float:
     if top == 0.0 or not np.isfinite(top):
         return 0.0 if top == 0.0 else np.inf
     return float(np.std(x / top)) * top
+
+
+def answered_moments(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Mean and variance (divisor n) of each column over its answered rows; 0 for a column
+    without answers (where numpy's NaN-aware functions would warn)."""
+    seen = ~np.isnan(x)
+    n = np.maximum(seen.sum(axis=0), 1)
+    mean = np.where(seen, x, 0.0).sum(axis=0) / n
+    return mean, (np.where(seen, x - mean, 0.0) ** 2).sum(axis=0) / n
 
 
 def constant_item(column: np.ndarray) -> bool:
@@ -173,9 +183,13 @@ class Rescaling:
         if isinstance(start, np.ndarray):
             free = [e for e in self.spec.parameters(free_first_copies) if e.free]
             return start / np.array([self._factor(*e.key) for e in free])
-        if isinstance(start, FitResult):
-            return {p.key: p.estimate / self._factor(*p.key) for p in start.parameters}
+        if isinstance(start, FitResult):   # kept a result: its errors scale the optimiser
+            return replace(start, parameters=tuple(self._internal(p) for p in start.parameters))
         return {key: value / self._factor(*key) for key, value in start.items()}
+
+    def _internal(self, p: Parameter) -> Parameter:
+        f = self._factor(*p.key)
+        return replace(p, estimate=p.estimate / f, se=None if p.se is None else p.se / f)
 
     def restore(self, result: FitResult, answers: np.ndarray) -> FitResult:
         """`result` of the rescaled items in the original units; `answers` per item: how
@@ -216,7 +230,8 @@ def numerical_failures(values: np.ndarray, spec: ModelSpec) -> Iterator[None]:
     with np.errstate(all="ignore"):
         try:
             yield
-        except (np.linalg.LinAlgError, FloatingPointError, OverflowError, ZeroDivisionError) as error:
+        except (np.linalg.LinAlgError, NotAdmissible, FloatingPointError, OverflowError,
+                ZeroDivisionError) as error:
             raise EstimationError(explain(values, spec, str(error))) from None
         except ValueError as error:
             if "finite" not in str(error) and "NaN" not in str(error):

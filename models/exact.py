@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from lagwise.models.conditioning import answered_moments
 from lagwise.models.diary import Diary
 from lagwise.models.errors import EstimationError
 from lagwise.models.fitindices import fit_indices
@@ -52,7 +53,7 @@ class ExactObjective:
         self.values, self.segment = values, segment
         self.plan = filter_plan(values, segment)
         self.n_rows = int((~np.isnan(values)).any(axis=1).sum())
-        self.item_var = np.nanvar(values, axis=0)
+        self.item_var = answered_moments(values)[1]
         self.layout = ParameterLayout(spec, self.item_var)
         self.autocorrelated = np.array([it in spec.unique_autocorrelation for it in spec.items])
         self.start_loglik: float | None = None

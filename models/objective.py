@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from lagwise.models import flags as warn
+from lagwise.models.conditioning import answered_moments
 from lagwise.models.errors import EstimationError, SpecError
 from lagwise.models.fitindices import fit_indices, scaled_fit
 from lagwise.models.flags import Flag
@@ -60,7 +61,7 @@ class WindowObjective:
         self.joined = windows.days_joined or np.unique(self.segment).size < MIN_CLUSTERS
         self.order = np.argsort(np.asarray(windows.occasion)[keep][self.data.kept], kind="stable")
         p = len(spec.items)
-        self.item_var = np.nanvar(rows[:, :p], axis=0) if rows.size else np.ones(p)
+        self.item_var = answered_moments(rows[:, :p])[1] if rows.size else np.ones(p)
         self.layout = ParameterLayout(spec, self.item_var, self.free_first_copies)
         self._jacobian: tuple[bytes, Implied, Projection] | None = None
         self._scores: tuple[bytes, WindowScores, np.ndarray | None] | None = None

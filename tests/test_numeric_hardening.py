@@ -244,3 +244,15 @@ def test_random_small_diaries_give_a_result_or_a_plain_error(estimator, case):
 @given(case=small_diaries())
 def test_many_random_small_diaries_give_a_result_or_a_plain_error(estimator, case):
     check_fit_or_plain_error(*case, estimator)
+
+
+def test_a_refit_of_rescaled_items_starts_from_the_result_in_original_units(demo):
+    # the refit path (bootstrap): same data, started at its own optimum -> the same optimum
+    values = demo.values.copy()
+    values[:, ITEMS.index("restless")] *= 1e4
+    diary = replace(demo, values=values)
+    full = fit(diary, SPEC)
+    refit = fit(diary, SPEC, standard_errors=False, start=full)
+    assert refit.converged
+    for a, b in zip(full.free_parameters, refit.free_parameters):
+        assert b.estimate == pytest.approx(a.estimate, abs=1e-3 * a.se), a.key
