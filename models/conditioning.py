@@ -3,10 +3,10 @@ exact internal rescaling of items whose scales are extreme or far apart.
 
 Checks (a DataError naming the item or state): an item that does not vary (or only in its
 last digits), an item whose values are too large or too small for floating-point moments, a
-state whose items keep growing (explosive dynamics), and items that are (nearly) collinear. Rescaling: when item standard deviations differ by more
-than SPREAD or leave SAFE, every item is divided by the power of two nearest its standard
-deviation, and the estimates are carried back exactly (a power of two multiplies without
-rounding). The model is invariant under such a change of units (common practice): with
+state whose items keep growing (explosive dynamics), and items that are (nearly) collinear.
+Rescaling: when item standard deviations differ by more than SPREAD or leave SAFE, every
+item is divided by the power of two nearest its standard deviation, and the estimates are
+carried back exactly (a power of two multiplies without rounding). The model is invariant under such a change of units (common practice): with
 y_i = c_i y'_i and, under marker identification, states in their marker item's units
 (eta_j = s_j eta'_j), loadings scale by c_i / s_j, intercepts by c_i, unique variances by
 c_i^2, lagged paths by s_to / s_from, innovation (co)variances by s_a s_b; correlations,

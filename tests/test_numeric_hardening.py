@@ -172,6 +172,38 @@ def test_an_item_in_other_units_changes_only_what_its_units_touch(demo, item):
     assert scaled.fit.rmsea == pytest.approx(base.fit.rmsea, abs=1e-8)
 
 
+@pytest.mark.parametrize("form", [{"identification": "variance"}, {"innovations": "partial"}])
+def test_every_parameter_follows_the_change_of_units(demo, form):
+    # tense (the marker of tension) in 1e4 times larger units, first-copy-free windows: under
+    # variance identification only tense's own loading, intercept and unique variance
+    # change; under marker identification tension is in 1e4 times larger units too, so each
+    # parameter scales by 1e4 per tension at its "to" end and 1/1e4 per tension at its
+    # "from" end of a loading or path, by 1e4 per tension in a (co)variance (common practice)
+    spec = make_spec({"tension": ["tense", "restless", "worried"],
+                      "mood": ["sad", "flat", "hopeless"]}, **form)
+    values = demo.values.copy()
+    values[:, 0] *= 1e4
+    options = FitOptions(estimator="first-copy-free")
+    base, scaled = fit(demo, spec, options), fit(replace(demo, values=values), spec, options)
+    assert base.converged and scaled.converged
+    marker = 1e4 if spec.identification == "marker" else 1.0
+
+    def units(name: str) -> float:
+        return marker if name.split("@")[0] == "tension" else 1.0
+
+    def factor(kind, from_, to) -> float:
+        own = 1e4 if to == "tense" else 1.0
+        return {"loading": own / units(from_), "intercept": own, "unique": own ** 2,
+                "inertia": 1.0, "cross_lagged": units(to) / units(from_),
+                "innovation": units(from_) * units(to), "first_copy": units(from_) * units(to),
+                "latent_intercept": units(to)}.get(kind, 1.0)
+
+    for a, b in zip(base.free_parameters, scaled.free_parameters):
+        f = factor(*a.key)
+        assert b.estimate == pytest.approx(f * a.estimate, abs=1e-3 * f * a.se), a.key
+        assert b.se == pytest.approx(f * a.se, rel=1e-4), a.key
+
+
 def test_the_exact_estimator_reports_in_original_units(demo):
     # the same invariance for the exact likelihood, with its state scores in the state's units
     values = demo.values.copy()
@@ -194,16 +226,24 @@ def test_the_exact_estimator_reports_in_original_units(demo):
 
 @st.composite
 def small_diaries(draw):
-    """A short diary of 2-4 items with some of: few rows, a constant column, a duplicated
-    column, huge or tiny scales, many missed answers."""
-    n = draw(st.integers(3, 40))
+    """A short diary of 2-4 items with some of: few rows, a constant or nearly constant
+    column, a duplicated column, huge or tiny scales, answers 0/1 only, many missed answers,
+    a column with two answers."""
+    n = draw(st.integers(3, 60))
     p = draw(st.integers(2, 4))
     rng = np.random.default_rng(draw(st.integers(0, 2 ** 32 - 1)))
     values = rng.normal(size=(n, p)).cumsum(axis=0) * 0.3 + rng.normal(size=(n, p))
     for j in range(p):
-        trouble = draw(st.sampled_from(["none", "none", "constant", "duplicate", "scale", "missing"]))
+        trouble = draw(st.sampled_from(["none", "none", "constant", "near-constant", "duplicate",
+                                        "scale", "missing", "binary", "two answers"]))
         if trouble == "constant":
             values[:, j] = 4.0
+        elif trouble == "near-constant":
+            values[:, j] = 4.0 + 1e-12 * values[:, j]
+        elif trouble == "binary":
+            values[:, j] = values[:, j] > 0
+        elif trouble == "two answers":
+            values[2:, j] = np.nan
         elif trouble == "duplicate" and j > 0:
             values[:, j] = values[:, 0]
         elif trouble == "scale":
@@ -216,8 +256,8 @@ def small_diaries(draw):
     diary = Diary(items=items, values=values, segment=day, day=day,
                   day_labels=tuple(str(d) for d in range(day.max() + 1)),
                   prompt=(np.arange(n) % per_day + 1).astype(float))
-    states = ({"s": list(items)} if p < 4 or draw(st.booleans())
-              else {"a": list(items[:2]), "b": list(items[2:])})
+    split = draw(st.integers(0, p - 1))   # 0: one state; else two (maybe of one item)
+    states = {"a": list(items[:split]), "b": list(items[split:])} if split else {"s": list(items)}
     return diary, make_spec(states)
 
 
