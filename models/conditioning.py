@@ -260,8 +260,8 @@ def explain(values: np.ndarray, spec: ModelSpec, what: str) -> str:
     if pair is not None and best >= 0.99:
         return (f"{head}: items {pair[0]} and {pair[1]} are nearly collinear (correlation "
                 f"{fmt(best)}); drop one or combine them")
-    return (f"{head}: the model may be too large for the data, or an item nearly constant; "
-            "free fewer paths, use fewer states or check the items")
+    return (f"{head}: the model may be too large for the data; free fewer paths, use fewer "
+            "states or try the other estimator")
 
 
 def _growing_states(x: np.ndarray, spec: ModelSpec) -> list[str]:

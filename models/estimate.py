@@ -41,7 +41,8 @@ def fit(diary: Diary, spec: ModelSpec, options: FitOptions = FitOptions(),
     if not rescaling.identity:
         data = replace(data, values=data.values / rescaling.factors)
         start = rescaling.internal_start(start, options.method.free_first_copies)
-    with one_blas_thread(), numerical_failures(data.values, spec):
-        objective = options.method.build(data, spec, options, monitor)
+    with one_blas_thread():
+        with numerical_failures(data.values, spec):
+            objective = options.method.build(data, spec, options, monitor)
         result = solve(objective, notes, monitor, standard_errors=standard_errors, start=start)
     return result if rescaling.identity else rescaling.restore(result, objective.answers_per_item())

@@ -66,6 +66,11 @@ class ExactObjective:
     def matrices(self, theta: np.ndarray) -> Matrices:
         return self.layout.unpack(theta)
 
+    @property
+    def item_values(self) -> np.ndarray:
+        """The answers, prompts as rows (with the nights' blank prompts when days are joined)."""
+        return self.values
+
     def answers_per_item(self) -> np.ndarray:
         """How often the likelihood counts an answer of each item."""
         return (~np.isnan(self.values)).sum(axis=0)

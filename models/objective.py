@@ -76,6 +76,11 @@ class WindowObjective:
     def n_rows(self) -> int:
         return self.data.n_rows
 
+    @property
+    def item_values(self) -> np.ndarray:
+        """The newest prompt of each window row (items as columns)."""
+        return self.rows[:, :len(self.spec.items)]
+
     def answers_per_item(self) -> np.ndarray:
         """How often the likelihood counts an answer of each item (over all window copies)."""
         per_column = self.data.counts @ self.data.observed

@@ -82,12 +82,14 @@ def test_fewer_windows_than_the_window_width(tmp_path, capsys):
     assert "Too few complete lag windows" in one_line(err) and "need at least 13" in err
 
 
-def test_the_lag2_check_on_too_few_windows(tmp_path, capsys):
-    # the first 16 prompts: enough for lag-1 windows, too few for the depth-2 windows of the
-    # lag-2 check (18 columns) -> the check's own message
-    code, err = run_fit(tmp_path, capsys, demo_table().head(16), extra=["--lag2-check"])
+@pytest.mark.parametrize("rows, words", [(16, "windows of 2 prompts: need at least 13"),
+                                         (24, "windows of 3 prompts: need at least 19")])
+def test_the_lag2_check_on_too_few_windows(tmp_path, capsys, rows, words):
+    # 16 prompts: too few complete windows for the lag-1 fit itself; 24: enough for it, too
+    # few for the lag-2 check's windows of 3 prompts (18 columns: at least 19 windows)
+    code, err = run_fit(tmp_path, capsys, demo_table().head(rows), extra=["--lag2-check"])
     assert code == 2
-    assert "Too few complete lag windows" in one_line(err) and "need at least" in err
+    assert "Too few complete lag windows" in one_line(err) and words in err
 
 
 def test_explosive_dynamics_name_the_state(tmp_path, capsys):
