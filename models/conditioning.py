@@ -38,14 +38,16 @@ GROWTH = 100.0           # prompt-to-prompt changes this many times larger late 
 DEPENDENT = 1e-8         # smallest eigenvalue share of the item correlation matrix: dependent
 
 
-def item_sd(column: np.ndarray) -> float:
-    """Standard deviation (divisor n) of the answered values, safe from overflow and
-    underflow (computed on values divided by their largest absolute value)."""
-    x = column[~np.isnan(column)]
-    top = float(np.max(np.abs(x))) if x.size else 0.0
-    if top == 0.0 or not np.isfinite(top):
-        return 0.0 if top == 0.0 else np.inf
-    return float(np.std(x / top)) * top
+def item_scales(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per column: the largest absolute answer and the standard deviation (divisor n) of the
+    answers, safe from overflow and underflow (computed on the answers divided by the
+    largest); 0 for a column without answers, inf for one with an infinite answer."""
+    seen = ~np.isnan(values)
+    top = np.where(seen, np.abs(values), 0.0).max(axis=0, initial=0.0)
+    with np.errstate(all="ignore"):
+        unit = np.where(top > 0, top, 1.0)
+        sd = np.sqrt(answered_moments(values / unit)[1]) * unit
+    return top, np.where(np.isfinite(top), sd, np.inf)
 
 
 def answered_moments(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -57,26 +59,27 @@ def answered_moments(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return mean, (np.where(seen, x - mean, 0.0) ** 2).sum(axis=0) / n
 
 
-def constant_item(column: np.ndarray) -> bool:
-    """True when the answered values do not vary, or only below CONSTANT of their size."""
-    x = column[~np.isnan(column)]
-    if x.size < 2:
-        return False
-    return item_sd(column) <= CONSTANT * float(np.max(np.abs(x)))
+def _problems(values: np.ndarray) -> np.ndarray:
+    """Per column: True when `item_problem` has something to say."""
+    answers = (~np.isnan(values)).sum(axis=0)
+    top, sd = item_scales(values)
+    constant = sd <= CONSTANT * top
+    return (answers < 2) | ~np.isfinite(top) | constant | (sd < EXTREME[0]) | (sd > EXTREME[1])
 
 
 def item_problem(name: str, column: np.ndarray) -> str | None:
     """Why item `name` (its column, NaN = unanswered) cannot be modelled, or None: fewer than
-    two answers, infinite values, no variation (CONSTANT), or an SD outside EXTREME."""
+    two answers, infinite values, no variation (SD at most CONSTANT of its largest absolute
+    answer), or an SD outside EXTREME."""
     x = column[~np.isnan(column)]
+    top, sd = (float(v[0]) for v in item_scales(column[:, None]))
     if x.size < 2:
         return f"item '{name}' has {x.size} answers: it needs at least 2 to be modelled"
-    if not np.all(np.isfinite(x)):
+    if not np.isfinite(top):
         return f"item '{name}' has infinite values: check the data file"
-    if constant_item(column):
+    if sd <= CONSTANT * top:
         return (f"item '{name}' does not vary (every answer is about {x[0]:.6g}): it carries "
                 "no information about the states; drop it from the model")
-    sd = item_sd(column)
     if not EXTREME[0] <= sd <= EXTREME[1]:
         return (f"item '{name}' has values far too {'large' if sd > 1 else 'small'} to estimate "
                 f"with (SD {sd:.3g}): rescale it before fitting (for example multiply by "
@@ -88,11 +91,10 @@ def check_items(values: np.ndarray, spec: ModelSpec) -> np.ndarray:
     """The standard deviations of the model's items (the columns of `values`); DataError for
     an item with a problem (`item_problem`), for a state whose items keep growing, or for
     (nearly) collinear items."""
-    for i, name in enumerate(spec.items):
-        problem = item_problem(name, values[:, i])
-        if problem:
-            raise DataError(problem)
-    sd = np.array([item_sd(values[:, i]) for i in range(len(spec.items))])
+    bad = np.flatnonzero(_problems(values))
+    if bad.size:
+        raise DataError(item_problem(spec.items[bad[0]], values[:, bad[0]]))
+    sd = item_scales(values)[1]
     with np.errstate(all="ignore"):
         growing = _growing_states(values / sd, spec)
         if growing:
@@ -108,19 +110,12 @@ def check_collinear(values: np.ndarray, items: tuple[str, ...]) -> None:
     answered) or a set of items whose correlation matrix is (nearly) singular."""
     p = len(items)
     seen = ~np.isnan(values)
-    for a in range(p):
-        for b in range(a):
-            both = seen[:, a] & seen[:, b]
-            if both.sum() < 3:
-                continue
-            x, y = values[both, a], values[both, b]
-            sx, sy = np.std(x), np.std(y)
-            if sx == 0 or sy == 0:
-                continue
-            r = float(np.mean((x - x.mean()) * (y - y.mean())) / (sx * sy))
-            if abs(r) >= COLLINEAR:
-                raise DataError(f"items {items[b]} and {items[a]} are (nearly) collinear "
-                                f"(correlation {fmt(r)}): drop one, or combine them into one score")
+    r = pairwise_correlations(values)
+    close = np.argwhere(np.tril(np.abs(r) >= COLLINEAR, -1))
+    if close.size:
+        a, b = close[0]
+        raise DataError(f"items {items[b]} and {items[a]} are (nearly) collinear "
+                        f"(correlation {fmt(r[a, b])}): drop one, or combine them into one score")
     complete = values[seen.all(axis=1)]
     if p < 3 or complete.shape[0] <= p:
         return
@@ -132,6 +127,21 @@ def check_collinear(values: np.ndarray, items: tuple[str, ...]) -> None:
         named = [items[i] for i in np.flatnonzero(np.abs(v[:, 0]) > 0.1)]
         raise DataError(f"items {', '.join(named[:-1])} and {named[-1]} are (nearly) linearly "
                         "dependent (one is almost a weighted sum of the others): drop one of them")
+
+
+def pairwise_correlations(values: np.ndarray) -> np.ndarray:
+    """Correlations of the columns, each pair over the rows where both are answered (NaN for
+    pairs with fewer than 3 such rows or no variation there)."""
+    seen = ~np.isnan(values)
+    m = seen.astype(float)
+    x = np.where(seen, values - answered_moments(values)[0], 0.0)   # centred: no cancellation
+    n = m.T @ m
+    with np.errstate(all="ignore"):
+        mean = (x.T @ m) / n                       # [a, b]: mean of a where b is answered too
+        cov = (x.T @ x) / n - mean * mean.T
+        var = (x.T ** 2 @ m) / n - mean ** 2       # [a, b]: variance of a where b is answered
+        r = cov / np.sqrt(var * var.T)
+    return np.where((n >= 3) & (var > 0) & (var.T > 0), r, np.nan)
 
 
 @dataclass(frozen=True)
@@ -242,24 +252,16 @@ def numerical_failures(values: np.ndarray, spec: ModelSpec) -> Iterator[None]:
 def explain(values: np.ndarray, spec: ModelSpec, what: str) -> str:
     """One line: the failure and its likely cause, naming the item or state involved."""
     head = f"Estimation failed numerically ({what.rstrip('.').lower()})"
-    x = values / np.maximum(np.array([item_sd(values[:, i]) for i in range(values.shape[1])]),
-                            1e-300)
+    x = values / np.maximum(item_scales(values)[1], 1e-300)
     growing = _growing_states(x, spec)
     if growing:
         return (f"{head}: state {', '.join(growing)} looks non-stationary (its items keep "
                 "growing over the diary); remove the trend or model a shorter stretch")
-    seen = ~np.isnan(x)
-    best, pair = 0.0, None
-    for a in range(x.shape[1]):
-        for b in range(a):
-            both = seen[:, a] & seen[:, b]
-            if both.sum() >= 3:
-                r = np.corrcoef(x[both, a], x[both, b])[0, 1]
-                if np.isfinite(r) and abs(r) > best:
-                    best, pair = abs(r), (spec.items[b], spec.items[a])
-    if pair is not None and best >= 0.99:
-        return (f"{head}: items {pair[0]} and {pair[1]} are nearly collinear (correlation "
-                f"{fmt(best)}); drop one or combine them")
+    r = np.abs(np.tril(np.nan_to_num(pairwise_correlations(x)), -1))
+    a, b = np.unravel_index(np.argmax(r), r.shape)
+    if r[a, b] >= 0.99:
+        return (f"{head}: items {spec.items[b]} and {spec.items[a]} are nearly collinear "
+                f"(correlation {fmt(r[a, b])}); drop one or combine them")
     return (f"{head}: the model may be too large for the data; free fewer paths, use fewer "
             "states or try the other estimator")
 

@@ -21,6 +21,7 @@ from lagwise.desktop.cli import main
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import LagwiseError
 from lagwise.models.estimate import fit
+from lagwise.models.conditioning import pairwise_correlations
 from lagwise.models.estimators import ESTIMATORS, FitOptions
 from lagwise.models.recipe import load_diary
 from lagwise.models.screening import screen_diary
@@ -298,3 +299,13 @@ def test_a_refit_of_rescaled_items_starts_from_the_result_in_original_units(demo
     assert refit.converged
     for a, b in zip(full.free_parameters, refit.free_parameters):
         assert b.estimate == pytest.approx(a.estimate, abs=1e-3 * a.se), a.key
+
+
+def test_pairwise_correlations_match_pandas():
+    # each pair over the prompts where both items were answered: pandas' pairwise-complete
+    # correlation is the reference
+    rng = np.random.default_rng(3)
+    values = rng.normal(size=(300, 5)) @ rng.normal(size=(5, 5)) + 50.0
+    values[rng.random(values.shape) < 0.4] = np.nan
+    expected = pd.DataFrame(values).corr().to_numpy()
+    np.testing.assert_allclose(pairwise_correlations(values), expected, rtol=0, atol=1e-12)
