@@ -168,21 +168,29 @@ class Rescaling:
         return bool(np.all(self.factors == 1.0))
 
     def _factor(self, kind: str, from_: str, to: str) -> float:
-        """Original value / internal value of one parameter (see the module docstring)."""
-        item = dict(zip(self.spec.items, self.factors))
-        state = dict(zip(self.spec.state_names, self.state_factors))
+        """Original value / internal value of one parameter (see the module docstring); 1 for
+        names outside this model (a start may name more)."""
+        items = dict(zip(self.spec.items, self.factors))
+        states = dict(zip(self.spec.state_names, self.state_factors))
+
+        def item(name: str) -> float:
+            return float(items.get(name, 1.0))
+
+        def unit(name: str) -> float:   # a state, or a window copy of one ("mood@t-1")
+            return float(states.get(name.split("@")[0], 1.0))
+
         if kind == Kind.LOADING:
-            return item[to] / state[from_]
+            return item(to) / unit(from_)
         if kind == Kind.INTERCEPT:
-            return item[to]
+            return item(to)
         if kind == Kind.UNIQUE:
-            return item[to] ** 2
+            return item(to) ** 2
         if kind in LAGGED_KINDS:
-            return state[to] / state[from_]
+            return unit(to) / unit(from_)
         if kind in (Kind.INNOVATION, Kind.FIRST_COPY):
-            return state[from_.split("@")[0]] * state[to.split("@")[0]]
+            return unit(from_) * unit(to)
         if kind == Kind.LATENT_INTERCEPT:
-            return state[to]
+            return unit(to)
         return 1.0   # correlations
 
     def internal_start(self, start, free_first_copies: bool):

@@ -75,6 +75,14 @@ def test_an_item_that_is_minus_a_million_times_another_is_collinear(tmp_path, ca
     assert code == 2 and "tense and restless" in one_line(err) and "-1.000" in err
 
 
+def test_an_item_that_is_the_sum_of_two_others_is_named(tmp_path, capsys):
+    table = demo_table()
+    table["worried"] = table["tense"] + table["restless"]
+    code, err = run_fit(tmp_path, capsys, table)
+    assert code == 2
+    assert "items tense, restless and worried are (nearly) linearly dependent" in one_line(err)
+
+
 def test_fewer_windows_than_the_window_width(tmp_path, capsys):
     # the first 8 prompts: 6 items in windows of 2 prompts give 12 columns, so the data's
     # window covariance needs at least 13 complete windows (common practice)
@@ -309,3 +317,20 @@ def test_pairwise_correlations_match_pandas():
     values[rng.random(values.shape) < 0.4] = np.nan
     expected = pd.DataFrame(values).corr().to_numpy()
     np.testing.assert_allclose(pairwise_correlations(values), expected, rtol=0, atol=1e-12)
+
+
+def test_a_state_named_like_its_only_item_keeps_the_units_apart(demo):
+    # variance identification: the state "tense" keeps variance-one units while its item
+    # "tense" moves to 1e4 times larger units (loading x1e4, innovation unchanged; common
+    # practice)
+    spec = make_spec({"tense": ["tense"], "mood": ["sad", "flat", "hopeless"]},
+                     identification="variance")
+    values = demo.values.copy()
+    values[:, 0] *= 1e4
+    base, scaled = fit(demo, spec), fit(replace(demo, values=values), spec)
+    assert base.converged and scaled.converged
+    for key, factor in {("loading", "tense", "tense"): 1e4, ("intercept", "tense", "tense"): 1e4,
+                        ("inertia", "tense", "tense"): 1.0, ("innovation", "tense", "mood"): 1.0,
+                        ("cross_lagged", "mood", "tense"): 1.0}.items():
+        a, b = base.get(*key), scaled.get(*key)
+        assert b.estimate == pytest.approx(factor * a.estimate, abs=1e-3 * factor * a.se), key
