@@ -11,7 +11,8 @@ y_i = c_i y'_i and, under marker identification, states in their marker item's u
 (eta_j = s_j eta'_j), loadings scale by c_i / s_j, intercepts by c_i, unique variances by
 c_i^2, lagged paths by s_to / s_from, innovation (co)variances by s_a s_b; correlations,
 standardized values and fit tests do not change, and the log-likelihood moves by
--sum log c_i over the answers it counts.
+-sum log c_i over the answers it counts. `numerical_failures` turns what still fails inside
+estimation into one EstimationError naming the likely cause.
 """
 
 from __future__ import annotations

@@ -451,7 +451,7 @@ def readiness(diary: Diary, screens: list[ItemScreen] | tuple[ItemScreen, ...],
     for j, name in enumerate(diary.items):   # what fit would refuse (models.conditioning)
         problem = item_problem(name, diary.values[:, j])
         if problem:
-            notes.append(f"Item {problem[5:]}.")
+            notes.append(f"{problem[0].upper()}{problem[1:]}.")
     return Readiness(occasions=diary.n_occasions, answered=answered, complete_windows=complete,
                      partial_windows=windows.n_partial, n_free=n_free,
                      windows_per_parameter=per_parameter, compliance_by_week=weeks,
