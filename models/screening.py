@@ -33,6 +33,7 @@ import numpy as np
 from scipy.special import stdtr
 
 from lagwise.models.blas import one_blas_thread
+from lagwise.models.conditioning import item_problem
 from lagwise.models.diary import Diary
 from lagwise.models.errors import DataError
 from lagwise.models.numbers import fmt, p_phrase
@@ -452,6 +453,10 @@ def readiness(diary: Diary, screens: list[ItemScreen] | tuple[ItemScreen, ...],
         notes.append(f"Fewer than half of the prompts were answered in week {listed}.")
     for s in screens:
         notes += [sentence for _, sentence in _item_findings(s)]
+    for j, name in enumerate(diary.items):   # what fit would refuse (models.conditioning)
+        problem = item_problem(name, diary.values[:, j])
+        if problem:
+            notes.append(f"{problem[0].upper()}{problem[1:]}.")
     return Readiness(occasions=diary.n_occasions, answered=answered, complete_windows=complete,
                      partial_windows=windows.n_partial, n_free=n_free,
                      windows_per_parameter=per_parameter, compliance_by_week=weeks,
