@@ -1,12 +1,14 @@
 """The items before estimation: checks that name the item behind a numerical failure, and an
 exact internal rescaling of items whose scales are extreme or far apart.
 
-Checks (a DataError naming the item or state): an item that does not vary (or only in its
-last digits), an item whose values are too large or too small for floating-point moments, a
-state whose items keep growing (explosive dynamics), and items that are (nearly) collinear.
+Checks (a DataError naming the item or state): the single-item checks of models.itemcheck (no
+variation, or only in its last digits; values too large or too small for floating-point
+moments), a state whose items keep growing (explosive dynamics), and items that are (nearly)
+collinear.
 Rescaling: when item standard deviations differ by more than SPREAD or leave SAFE, every
 item is divided by the power of two nearest its standard deviation, and the estimates are
-carried back exactly (a power of two multiplies without rounding). The model is invariant under such a change of units (common practice): with
+carried back exactly (a power of two multiplies without rounding). The model is invariant
+under such a change of units (common practice): with
 y_i = c_i y'_i and, under marker identification, states in their marker item's units
 (eta_j = s_j eta'_j), loadings scale by c_i / s_j, intercepts by c_i, unique variances by
 c_i^2, lagged paths by s_to / s_from, innovation (co)variances by s_a s_b; correlations,
@@ -25,13 +27,12 @@ import numpy as np
 
 from lagwise.models.errors import DataError, EstimationError
 from lagwise.models.implied import NotAdmissible
+from lagwise.models.itemcheck import answered_moments, item_problem, item_scales, problem_columns
 from lagwise.models.kinds import LAGGED_KINDS, Kind
 from lagwise.models.numbers import fmt
 from lagwise.models.results import FitResult, Parameter, StateScores
 from lagwise.models.spec import ModelSpec
 
-CONSTANT = 1e-9          # SD below this share of the item's largest absolute value: constant
-EXTREME = (1e-50, 1e50)  # an item SD outside: its moments leave floating point; refuse
 SAFE = (1e-3, 1e4)       # item SDs inside and ...
 SPREAD = 1e3             # ... within this ratio of each other: estimated as they are
 COLLINEAR = 0.9999       # |correlation| of two items at least this: (nearly) collinear
@@ -39,60 +40,11 @@ GROWTH = 100.0           # prompt-to-prompt changes this many times larger late 
 DEPENDENT = 1e-8         # smallest eigenvalue share of the item correlation matrix: dependent
 
 
-def item_scales(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Per column: the largest absolute answer and the standard deviation (divisor n) of the
-    answers, safe from overflow and underflow (computed on the answers divided by the
-    largest); 0 for a column without answers, inf for one with an infinite answer."""
-    seen = ~np.isnan(values)
-    top = np.where(seen, np.abs(values), 0.0).max(axis=0, initial=0.0)
-    with np.errstate(all="ignore"):
-        unit = np.where(top > 0, top, 1.0)
-        sd = np.sqrt(answered_moments(values / unit)[1]) * unit
-    return top, np.where(np.isfinite(top), sd, np.inf)
-
-
-def answered_moments(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Mean and variance (divisor n) of each column over its answered rows; 0 for a column
-    without answers (where numpy's NaN-aware functions would warn)."""
-    seen = ~np.isnan(x)
-    n = np.maximum(seen.sum(axis=0), 1)
-    mean = np.where(seen, x, 0.0).sum(axis=0) / n
-    return mean, (np.where(seen, x - mean, 0.0) ** 2).sum(axis=0) / n
-
-
-def _problems(values: np.ndarray) -> np.ndarray:
-    """Per column: True when `item_problem` has something to say."""
-    answers = (~np.isnan(values)).sum(axis=0)
-    top, sd = item_scales(values)
-    constant = sd <= CONSTANT * top
-    return (answers < 2) | ~np.isfinite(top) | constant | (sd < EXTREME[0]) | (sd > EXTREME[1])
-
-
-def item_problem(name: str, column: np.ndarray) -> str | None:
-    """Why item `name` (its column, NaN = unanswered) cannot be modelled, or None: fewer than
-    two answers, infinite values, no variation (SD at most CONSTANT of its largest absolute
-    answer), or an SD outside EXTREME."""
-    x = column[~np.isnan(column)]
-    top, sd = (float(v[0]) for v in item_scales(column[:, None]))
-    if x.size < 2:
-        return f"item '{name}' has {x.size} answers: it needs at least 2 to be modelled"
-    if not np.isfinite(top):
-        return f"item '{name}' has infinite values: check the data file"
-    if sd <= CONSTANT * top:
-        return (f"item '{name}' does not vary (every answer is about {x[0]:.6g}): it carries "
-                "no information about the states; drop it from the model")
-    if not EXTREME[0] <= sd <= EXTREME[1]:
-        return (f"item '{name}' has values far too {'large' if sd > 1 else 'small'} to estimate "
-                f"with (SD {sd:.3g}): rescale it before fitting (for example multiply by "
-                f"{10.0 ** -np.round(np.log10(sd)):.0e})")
-    return None
-
-
 def check_items(values: np.ndarray, spec: ModelSpec) -> np.ndarray:
     """The standard deviations of the model's items (the columns of `values`); DataError for
     an item with a problem (`item_problem`), for a state whose items keep growing, or for
     (nearly) collinear items."""
-    bad = np.flatnonzero(_problems(values))
+    bad = np.flatnonzero(problem_columns(values))
     if bad.size:
         raise DataError(item_problem(spec.items[bad[0]], values[:, bad[0]]))
     sd = item_scales(values)[1]

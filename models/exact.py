@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from lagwise.models.conditioning import answered_moments
+from lagwise.models.itemcheck import answered_moments
 from lagwise.models.diary import Diary
 from lagwise.models.errors import EstimationError
 from lagwise.models.fitindices import fit_indices

@@ -16,7 +16,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from lagwise.models import flags as warn
-from lagwise.models.conditioning import answered_moments
+from lagwise.models.itemcheck import answered_moments
 from lagwise.models.errors import EstimationError, SpecError
 from lagwise.models.fitindices import fit_indices, scaled_fit
 from lagwise.models.flags import Flag

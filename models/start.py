@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from lagwise.models.conditioning import answered_moments
+from lagwise.models.itemcheck import answered_moments
 from lagwise.models.kinds import Kind
 from lagwise.models.lyapunov import companion_covariance, spectral_radius
 from lagwise.models.parameters import Matrices, ParameterLayout
