@@ -225,3 +225,11 @@ def test_error_messages_quote_names_safely():
     with pytest.raises(LagwiseError) as caught:
         make_spec({"calm": ["a", "b"]}, reliability=(("x\x1b[1m", 0.5),)).validate()
     assert "\\x1b[1m" in str(caught.value) and "\x1b" not in str(caught.value)
+
+
+def test_command_line_errors_show_control_characters_as_codes(capsys):
+    code = main(["fit", str(DEMO / "demo_diary.csv"), "--day", "day", "--prompt", "prompt",
+                 "--state", "tension=tense\x1b[2J,restless,worried"])
+    out = capsys.readouterr()
+    assert code == 2 and "\\x1b[2J" in out.err
+    assert not _has_control(out.out + out.err)
