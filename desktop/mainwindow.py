@@ -336,7 +336,7 @@ class MainWindow(QMainWindow):
         try:
             load_demo(self.session)
         except LagwiseError as exc:
-            QMessageBox.warning(self, "Could not open the demo", str(exc))
+            QMessageBox.warning(self, "Could not open the demo", style.plain(str(exc)))
             return
         self.files.discard_recoveries()
         self.statusBar().showMessage("Opened the demo diary (an invented person).", 8000)
@@ -384,7 +384,7 @@ class MainWindow(QMainWindow):
         try:
             snapshot = self.session.snapshot()
         except LagwiseError as exc:  # a preparation step that does not fit the diary
-            QMessageBox.warning(self, title, str(exc))
+            QMessageBox.warning(self, title, style.plain(str(exc)))
             return None
         if snapshot is None:
             QMessageBox.information(self, "Nothing to estimate",
@@ -392,7 +392,7 @@ class MainWindow(QMainWindow):
             return None
         _, problem = self.session.validation()
         if problem:
-            QMessageBox.warning(self, title, problem)
+            QMessageBox.warning(self, title, style.plain(problem))
             return None
         return snapshot
 
@@ -456,6 +456,7 @@ class MainWindow(QMainWindow):
                           QMessageBox.StandardButton.Ok, self)
         if details:
             box.setDetailedText(details)
+        box.setTextFormat(Qt.TextFormat.PlainText)  # the message may quote the user's names
         box.setObjectName("estimationErrorBox")
         box.open()
 
@@ -533,7 +534,7 @@ class MainWindow(QMainWindow):
         try:
             spec = adopt(self.session.spec, kind, from_, to)
         except (LagwiseError, ValueError) as exc:
-            QMessageBox.warning(self, "The path cannot be adopted", str(exc))
+            QMessageBox.warning(self, "The path cannot be adopted", style.plain(str(exc)))
             return
         self.session.edit_spec(spec, text)
         self.statusBar().showMessage(f"{text}. Press Estimate to fit the extended model "

@@ -100,7 +100,7 @@ class PathGrid(QGroupBox):
                 cell.setData(CELL, (i, j))
                 what = (f"inertia of {to}" if inertia else
                         f"effect of {fr} at t-{self.lag} on {to} at t")
-                cell.setToolTip(what[0].upper() + what[1:])
+                cell.setToolTip(style.plain(what[0].upper() + what[1:]))
                 self.table.setItem(i, j, cell)
         self.table.setFixedHeight(self.table.horizontalHeader().height()
                                   + sum(self.table.rowHeight(r) for r in range(len(names))) + 6)
