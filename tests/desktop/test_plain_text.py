@@ -177,3 +177,18 @@ def _fails_naming_the_item(monitor=None):
     from lagwise.models.errors import DataError
 
     raise DataError(f"diary.csv, column '{ITEM}', row 5: 'often' is not a number")
+
+
+def test_import_dialog_shows_column_names_as_written(qtbot, lagwise_app, tmp_path):
+    window = open_window(qtbot)
+    path = tmp_path / "diary.csv"
+    path.write_text(f"day,prompt,{ITEM},calm\n1,1,3,4\n1,2,often,5\n1,3,2,2\n", encoding="utf-8")
+    dialog = window.import_dialog(path)
+    qtbot.addWidget(dialog)
+    dialog.role_box(ITEM).setCurrentText("item")
+    settle(qtbot)
+    texts = shown_texts(dialog)
+    assert any(MARK in text and "often" in text for where, text in texts
+               if where.startswith("label"))  # the error quotes the column as written
+    assert_shown_as_written(texts)
+    dialog.reject()
