@@ -233,3 +233,15 @@ def test_command_line_errors_show_control_characters_as_codes(capsys):
     out = capsys.readouterr()
     assert code == 2 and "\\x1b[2J" in out.err
     assert not _has_control(out.out + out.err)
+
+
+def test_summary_item_table_aligns_wide_names():
+    from lagwise.models.summary import diary_summary, format_summary
+
+    table = pd.read_csv(DEMO / "demo_diary.csv").rename(columns={"tense": LONG["low mood"]})
+    diary = DiaryRecipe(time=GRID).diary(table)
+    lines = format_summary(diary_summary(diary)).splitlines()
+    top = next(i for i, line in enumerate(lines) if line.startswith("  item "))
+    rows = [["item", "answered"]] + [[name, str(diary_summary(diary)["items"][name]["answered"])]
+                                     for name in diary.items]
+    _assert_aligned(lines[top:top + 1 + len(diary.items)], rows, "<>")
