@@ -167,6 +167,19 @@ def test_fit_of_a_shared_project_with_a_hostile_name_prints_no_control_character
     assert not _has_control(out.out + out.err) and "\u202e" not in out.out + out.err
 
 
+@pytest.mark.slow  # about 2 s a fit; the hostile names above are its fast sibling
+@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(name=st.text(min_size=1, max_size=12))
+def test_fit_output_never_holds_a_control_character_whatever_the_name(capsys, name):
+    code = main(["fit", str(DEMO / "demo_diary.csv"), "--day", "day", "--prompt", "prompt",
+                 f"--state={name}=tense,restless,worried", "--state=mood=sad,flat,hopeless"])
+    out = capsys.readouterr()
+    assert code in (0, 2)
+    assert not _has_control(out.out + out.err)
+    if code == 0:  # the command line strips white space (which includes \x1c-\x1f) from names
+        assert names.unsafe_character(name.strip()) is None
+
+
 # ----------------------------------------------------------------------------- report columns
 
 LONG = {"tension": "tension over the whole afternoon", "low mood": "緊張と不安の状態"}
