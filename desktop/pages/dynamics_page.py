@@ -13,6 +13,7 @@ is one undoable edit of the session.
 from __future__ import annotations
 
 from dataclasses import replace
+from html import escape
 
 import numpy as np
 from PySide6.QtCore import Qt, QTimer
@@ -315,7 +316,7 @@ class DynamicsPage(QWidget):
             self.problem_label.setText(
                 "" if problem is None or self._session.diary is None else
                 f"<span style='color:{style.WARNING}'><b>To fix before estimating:</b> "
-                f"{problem}</span>")
+                f"{escape(problem)}</span>")
         finally:
             self._syncing = False
 

@@ -162,7 +162,9 @@ def test_error_dialogs_show_names_as_written(qtbot, hostile_window, monkeypatch)
     spec = window.session.spec
     empty = spec.with_states(spec.states + (State(MARK, ()),))
     window.session.edit_spec(empty, "Add a state")
+    window.show_page(PAGES.index("States"))
     settle(qtbot)
+    assert_shown_as_written(shown_texts(window))  # the page's own message about the state
     assert not window.estimate()
     assert len(asked) == 1 and MARK in displayed(asked[0])
     window.worker.start(_fails_naming_the_item)
