@@ -14,6 +14,7 @@ splitter layout are remembered between runs (QSettings).
 
 from __future__ import annotations
 
+from html import escape
 from pathlib import Path
 
 import shiboken6
@@ -496,7 +497,7 @@ class MainWindow(QMainWindow):
             parts.append(f"<span style='color:{style.WARNING}'><b>The model or data changed "
                          f"since this estimate.</b> Press Estimate (Ctrl+E) to update.</span>")
         verdict = ("the estimation converged" if result.converged else
-                   f"<b>the estimation did not converge</b> ({result.message})")
+                   f"<b>the estimation did not converge</b> ({escape(result.message)})")
         parts.append(f"Estimator: {result.estimator}; {result.data_used} from "
                      f"{result.n_occasions} prompts; {verdict}.")
         self.result_note.setText(" ".join(parts))

@@ -361,7 +361,7 @@ class DynamicsPage(QWidget):
                           "prompt of the next day (common practice).")
         if self._night_error:
             self.night_note.setText(f"<span style='color:{style.WARNING}'>"
-                                    f"{self._night_error}</span>")
+                                    f"{escape(self._night_error)}</span>")
             self._night_error = ""
         elif settings is not None and settings.time.mode == "order":
             self.night_note.setText("The diary has no day or time column: all prompts "
