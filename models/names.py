@@ -40,4 +40,6 @@ def problem(text: str, allowed: str = "") -> str | None:
     char = unsafe_character(text, allowed)
     if char is None:
         return None
-    return f"holds the control character U+{ord(char):04X} ('{shown(text)}'); remove it"
+    kind = {"Cc": "a control character", "Cs": "an unpaired surrogate"}.get(
+        unicodedata.category(char), "a text-direction control")
+    return f"holds U+{ord(char):04X}, {kind} ('{shown(text)}'); remove it"

@@ -43,7 +43,7 @@ class DiaryRecipe:
         diary = diary_from_frame(table, self.items, self.time, self.missing_codes, source=source,
                                  prompts_per_day=self.prompts_per_day)
         for item in diary.items:
-            refused = names.problem(item)
+            refused = names.problem(str(item))
             if refused:
                 raise DataError(f"The name of an item column {refused}.")
         return diary
