@@ -23,6 +23,7 @@ from PySide6.QtGui import QUndoCommand, QUndoStack
 
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import SpecError
+from lagwise.models.names import without_unsafe
 from lagwise.models.preparation import Step, apply_steps, steps_from_json, steps_to_json
 from lagwise.models.project import Project, ProjectData, embed_table, project_diary
 from lagwise.models.results import FitResult
@@ -406,7 +407,9 @@ class Session(QObject):
                                    self._preparation, steps, text))
 
     def set_notes(self, notes: str, text: str = "Project notes") -> None:
-        """Replace the project notes (undoable)."""
+        """Replace the project notes (undoable); characters a project may not hold (control
+        characters but line breaks and tabs, models.names) are left out."""
+        notes = without_unsafe(notes)
         if notes != self._notes:
             self.undo_stack.push(_Swap(self, "_notes", self.notesChanged, self._notes, notes,
                                        text))

@@ -43,3 +43,9 @@ def problem(text: str, allowed: str = "") -> str | None:
     kind = {"Cc": "a control character", "Cs": "an unpaired surrogate"}.get(
         unicodedata.category(char), "a text-direction control")
     return f"holds U+{ord(char):04X}, {kind} ('{shown(text)}'); remove it"
+
+
+def without_unsafe(text: str, allowed: str = LINE_BREAKS) -> str:
+    """`text` with every character a stored text may not hold removed (typed or pasted free
+    text, e.g. notes, so that the project file always opens again)."""
+    return "".join(c for c in text if c in allowed or not _unsafe(c))

@@ -599,3 +599,16 @@ def test_results_out_of_date_when_saved_stay_out_of_date_when_opened(qtbot, wind
     window.open_action.trigger()
     settle(qtbot)
     assert window.session.result is not None and not window.session.result_is_current()
+
+
+def test_pasted_control_characters_never_make_the_project_unopenable(qtbot, window, tmp_path,
+                                                                     monkeypatch):
+    # Notes pasted with a form feed, an ESC colour code and a text-direction override are
+    # kept without those characters (a project refuses them on opening; models.names).
+    import_demo(qtbot, window)
+    target = tmp_path / "pasted.lagwise"
+    answer_save_as(monkeypatch, target)
+    window.session.set_notes("page\x0cbreak \x1b[31mred\x1b[0m \u202eright\nnext\tline")
+    window.save_action.trigger()
+    settle(qtbot)
+    assert open_project(target).notes == "pagebreak [31mred[0m right\nnext\tline"
