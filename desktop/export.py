@@ -20,6 +20,7 @@ from PySide6.QtGui import QAction, QColor, QGuiApplication, QImage, QPainter
 from PySide6.QtSvg import QSvgGenerator
 from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMenu, QMessageBox, QWidget
 
+from lagwise.desktop.style import plain
 from lagwise.models.atomic import write_output
 from lagwise.models.errors import OutputError
 
@@ -169,7 +170,7 @@ def _ask_and_save(parent: QWidget, target, name: str, kind: str) -> None:
         else:
             save_widget_png(target, path)
     except OutputError as exc:
-        QMessageBox.warning(parent, "Could not save", str(exc))
+        QMessageBox.warning(parent, "Could not save", plain(str(exc)))
 
 
 def _in_folder(path: str | Path) -> Path:

@@ -21,6 +21,7 @@ from PySide6.QtWidgets import QFileDialog, QMessageBox, QWidget
 
 from lagwise.desktop.import_dialog import FILE_FILTER
 from lagwise.desktop.session import Session
+from lagwise.desktop.style import plain
 from lagwise.models.atomic import remove_stale_temporaries
 from lagwise.models.errors import LagwiseError, ProjectError
 from lagwise.models.project import (
@@ -141,7 +142,7 @@ class ProjectFiles(QObject):
             except LinkedDataChanged as exc:
                 answer = QMessageBox.question(
                     self._window, "The data file has changed",
-                    f"{exc}.\n\nUse the data file as it is now?",
+                    plain(f"{exc}.\n\nUse the data file as it is now?"),
                     Button.Yes | Button.Cancel, Button.Cancel)
                 if answer != Button.Yes:
                     return None
@@ -159,7 +160,7 @@ class ProjectFiles(QObject):
         """Ask for the moved data file; the project linked to the chosen file (checked next)."""
         answer = QMessageBox.question(
             self._window, "The data file is missing",
-            f"{exc}.\n\nLocate the data file now?", Button.Yes | Button.Cancel, Button.Yes)
+            plain(f"{exc}.\n\nLocate the data file now?"), Button.Yes | Button.Cancel, Button.Yes)
         if answer != Button.Yes:
             return None
         start = exc.expected.parent if exc.expected is not None else Path(self._folder())
@@ -262,9 +263,9 @@ class ProjectFiles(QObject):
         name = recovery.recovery_of.name if recovery.recovery_of is not None else "an untitled project"
         answer = QMessageBox.question(
             self._window, "Restore unsaved work?",
-            f"Lagwise was not closed normally. An autosaved copy of {name} from "
-            f"{recovery.modified.replace('T', ' ').replace('Z', ' UTC')} holds changes that "
-            "were not saved.\n\nRestore it? (No deletes the autosaved copy.)",
+            plain(f"Lagwise was not closed normally. An autosaved copy of {name} from "
+                  f"{recovery.modified.replace('T', ' ').replace('Z', ' UTC')} holds changes "
+                  "that were not saved.\n\nRestore it? (No deletes the autosaved copy.)"),
             Button.Yes | Button.No, Button.Yes)
         return answer == Button.Yes
 
@@ -281,8 +282,8 @@ class ProjectFiles(QObject):
         if not Path(path).is_file():
             self._forget_recent(path)
             QMessageBox.information(self._window, "Project not found",
-                                    f"{path} no longer exists (moved, renamed or deleted); it was "
-                                    "removed from the recent projects.")
+                                    plain(f"{path} no longer exists (moved, renamed or deleted); "
+                                          "it was removed from the recent projects."))
             return False
         return self.open(path)
 
@@ -319,4 +320,4 @@ class ProjectFiles(QObject):
             status().showMessage(message, 10000)
 
     def _refuse(self, title: str, exc: Exception) -> None:
-        QMessageBox.warning(self._window, title, str(exc))
+        QMessageBox.warning(self._window, title, plain(str(exc)))
