@@ -45,6 +45,7 @@ _NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
 _DECIMAL_COMMA = re.compile(r"[+-]?(?:\d+,\d*|,\d+)(?:[eE][+-]?\d+)?")
 _DATE_SHAPE = re.compile(r"\d{1,4}[-./]\d{1,2}[-./]\d{1,4}(?:[ T].*)?")
 _UTC_OFFSET = re.compile(r"(\d{1,2}:\d{2}(?::\d{2}(?:\.\d+)?)?)\s*(?:Z|[+-]\d{2}(?::?\d{2})?)$")
+_OFFSET = re.compile(r"\d{1,2}:\d{2}(?::\d{2}(?:\.\d+)?)?\s*(Z|[+-]\d{2}(?::?\d{2})?)$")
 _BAD_CONTROL = re.compile(r"[\x00-\x08\x0e-\x1f\x7f]")
 _PANDAS_FIELDS = re.compile(r"Expected (\d+) fields in line (\d+), saw (\d+)")
 _FIRST_TIME = np.datetime64("1678-01-01", "us")
@@ -52,8 +53,12 @@ _LAST_TIME = np.datetime64("2261-12-31", "us")
 _PANDAS_QUOTE = re.compile(r"EOF inside string starting at row (\d+)")
 
 
-def read_table(path: str | Path) -> pd.DataFrame:
-    """The raw table of a diary file, indexed by file row ("row") or case number ("case")."""
+def read_table(path: str | Path, columns: Iterable[str] | None = None) -> pd.DataFrame:
+    """The raw table of a diary file, indexed by file row ("row") or case number ("case").
+
+    `columns`: read only these (delimited text; when the header holds them all), which keeps
+    the memory of a long file down. A column name that appears twice is refused.
+    """
     path = Path(path)
     name = str(path)
     if not path.exists():
@@ -70,8 +75,11 @@ def read_table(path: str | Path) -> pd.DataFrame:
     if not raw.strip():
         raise DataError(f"{name}: the file is empty")
     if suffix in TEXT_SUFFIXES:
-        frame = _read_text(raw, name)
+        frame = _read_text(raw, name, columns)
     elif suffix in EXCEL_SUFFIXES:
+        header = _read_binary(path, name, "an Excel workbook", lambda p: pd.read_excel(
+            p, sheet_name=0, engine="openpyxl", header=None, nrows=1))
+        refuse_repeated_names([str(c) for c in header.iloc[0]] if len(header) else [], name)
         frame = _read_binary(path, name, "an Excel workbook",
                              lambda p: pd.read_excel(p, sheet_name=0, engine="openpyxl"))
         frame.index = pd.RangeIndex(2, 2 + len(frame), name="row")
@@ -182,12 +190,16 @@ def numeric_cells(series: pd.Series,
     return values, bad
 
 
-def time_cells(series: pd.Series) -> tuple[np.ndarray, np.ndarray, str]:
+def time_cells(series: pd.Series, date_format: str | None = None
+               ) -> tuple[np.ndarray, np.ndarray, str]:
     """(times, bad, note): a column as datetime64[ns] wall-clock times (NaT = empty).
 
-    Text is tried as ISO 8601 and in the formats guessed from its first cells (month-first
-    and day-first); the reading with fewest failures wins. Offsets such as +02:00 are dropped
-    so that times stay local. `note` is a warning when day and month could be swapped.
+    With `date_format` (a strftime format) text is read with that format only. Otherwise text
+    is tried as ISO 8601 and in the formats guessed from its first cells (month-first and
+    day-first); the reading with fewest failures wins, and DataError is raised when a
+    month-first and a day-first reading both fit every cell (the data cannot tell them
+    apart). Offsets such as +02:00 are left out here so that times stay local
+    (`utc_offsets` reads them).
     """
     n = len(series)
     if pd.api.types.is_datetime64_any_dtype(series.dtype):
@@ -212,13 +224,41 @@ def time_cells(series: pd.Series) -> tuple[np.ndarray, np.ndarray, str]:
         else:
             texts.append(None)
             bad[i] = True
-    parsed, note = _parse_texts(pd.Series(texts, dtype=object))
+    parsed, note = _parse_texts(pd.Series(texts, dtype=object), date_format)
     micro = parsed.to_numpy().astype("datetime64[us]")
     for i, stamp in fixed.items():
         micro[i] = stamp.to_datetime64()
     out, outside = _in_nanoseconds(micro)
     bad |= outside | (np.array([t is not None for t in texts]) & np.isnat(out))
     return out, bad, note
+
+
+def utc_offsets(series: pd.Series) -> np.ndarray:
+    """Minutes east of UTC written with each time (+02:00, -0500, Z); NaN where none."""
+    if pd.api.types.is_datetime64_any_dtype(series.dtype):
+        stamps = pd.DatetimeIndex(series)
+        if stamps.tz is None:
+            return np.full(len(series), np.nan)
+        local = stamps.tz_localize(None).to_numpy()
+        instant = stamps.tz_convert("UTC").tz_localize(None).to_numpy()
+        return ((local - instant) / np.timedelta64(1, "m")).astype(float)
+    out = np.full(len(series), np.nan)
+    for i, cell in enumerate(series.to_numpy(dtype=object)):
+        if isinstance(cell, str):
+            match = _OFFSET.search(cell.strip())
+            if match:
+                out[i] = _offset_minutes(match.group(1))
+        elif isinstance(cell, dt.datetime) and cell.utcoffset() is not None:
+            out[i] = cell.utcoffset().total_seconds() / 60
+    return out
+
+
+def _offset_minutes(text: str) -> float:
+    if text == "Z":
+        return 0.0
+    digits = text[1:].replace(":", "")
+    minutes = int(digits[:2]) * 60 + int(digits[2:] or 0)
+    return float(-minutes if text[0] == "-" else minutes)
 
 
 def looks_like_dates(series: pd.Series) -> bool:
@@ -257,22 +297,46 @@ def show_cell(cell: object) -> str:
 
 # ----------------------------------------------------------------------------------------
 
-def _read_text(raw: bytes, name: str) -> pd.DataFrame:
+def refuse_repeated_names(header: list[str], name: str) -> None:
+    """DataError naming the positions (1 = first column) of a column name given twice."""
+    seen: dict[str, int] = {}
+    for position, column in enumerate(header, start=1):
+        column = str(column).strip()
+        if column in seen:
+            raise DataError(f"{name}: the column name '{column}' appears twice in the header "
+                            f"(columns {seen[column]} and {position}); rename one of them")
+        seen[column] = position
+
+
+def _read_text(raw: bytes, name: str, columns: Iterable[str] | None = None) -> pd.DataFrame:
     text = decode_text(raw, name)
-    lines = text.splitlines(keepends=True)
+    del raw
     skipped = 0
-    while skipped < len(lines) and not lines[skipped].strip():
-        skipped += 1
-    text = "".join(lines[skipped:])
+    start = 0
+    while True:  # leading blank lines, without splitting the whole text into lines
+        end = text.find("\n", start)
+        line = text[start:] if end < 0 else text[start:end + 1]
+        if line.strip() or end < 0:
+            break
+        skipped, start = skipped + 1, end + 1
+    if start:
+        text = text[start:]
     if not text.strip():
         raise DataError(f"{name}: the file is empty")
-    delim, decimal = sniff_format(text)
+    delim, decimal = sniff_format(text[:1 << 20])
+    header = next(csv.reader(io.StringIO(text[:1 << 20], newline=""), delimiter=delim), [])
+    refuse_repeated_names(header, name)
     _check_row_widths(text, delim, name, skipped)
+    wanted = None if columns is None else set(columns)
+    names = [c.strip() for c in header]
+    usecols = None
+    if wanted is not None and wanted <= set(names):
+        usecols = [i for i, c in enumerate(names) if c in wanted]
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", pd.errors.ParserWarning)
             frame = pd.read_csv(io.StringIO(text), sep=delim, decimal=decimal, index_col=False,
-                                skip_blank_lines=False)
+                                skip_blank_lines=False, usecols=usecols)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError) as error:
         detail = _pandas_message(error, skipped)
         raise DataError(f"{name}: cannot read the table: {detail}") from error
@@ -323,12 +387,8 @@ def _read_binary(path: Path, name: str, kind: str, reader) -> pd.DataFrame:
 
 
 def _tidy(frame: pd.DataFrame, name: str) -> pd.DataFrame:
+    refuse_repeated_names(list(frame.columns), name)
     frame.columns = [str(c).strip() for c in frame.columns]
-    seen: set[str] = set()
-    for column in frame.columns:
-        if column in seen:
-            raise DataError(f"{name}: the column name '{column}' appears twice in the header")
-        seen.add(column)
     if frame.shape[1] == 0:
         raise DataError(f"{name}: the file has no columns")
     frame = frame.loc[~frame.isna().all(axis=1)]
@@ -392,19 +452,28 @@ def _could_be_time(cell: object) -> bool:
             and _NUMBER.fullmatch(cell.strip()) is None)
 
 
-def _parse_texts(texts: pd.Series) -> tuple[pd.Series, str]:
-    """Parse date/time texts with the reading that fails least (see `time_cells`)."""
+def _parse_texts(texts: pd.Series, date_format: str | None) -> tuple[pd.Series, str]:
+    """Parse date/time texts with `date_format`, or with the reading that fails least (see
+    `time_cells`)."""
     present = texts.dropna()
     empty = pd.Series(pd.NaT, index=texts.index, dtype="datetime64[ns]")
     if present.empty:
         return empty, ""
+    if date_format:
+        fmt = date_format.replace("%z", "").replace("%Z", "").strip()
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                return pd.to_datetime(texts, format=fmt, errors="coerce"), ""
+        except (ValueError, TypeError, OverflowError) as error:
+            raise DataError(f"the date format {date_format!r} cannot be used ({error})") from None
     formats: list[str] = ["ISO8601"]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         for sample in present.drop_duplicates().iloc[:20]:
             for dayfirst in (False, True):
                 guessed = guess_datetime_format(sample, dayfirst=dayfirst)
-                if guessed and guessed not in formats:
+                if guessed and guessed not in formats and not _year_day_month(guessed):
                     formats.append(guessed)
     readings = []
     for fmt in formats:
@@ -420,17 +489,17 @@ def _parse_texts(texts: pd.Series) -> tuple[pd.Series, str]:
         return empty, ""
     fewest = min(r[0] for r in readings)
     best = [r for r in readings if r[0] == fewest]
-    chosen = best[0]
-    note = ""
     distinct = [r for r in best if not r[2].equals(best[0][2])]
     if distinct:
-        day_first = [r for r in best if _day_first(r[1])]
-        dotted = any("." in s for s in present.iloc[:20])
-        if dotted and day_first:
-            chosen = day_first[0]
-        order = "day before month" if _day_first(chosen[1]) else "month before day"
-        note = f"dates could be read with day or month first; read as {order}"
-    return chosen[2], note
+        shown = " or ".join(repr(f) for f in dict.fromkeys(r[1] for r in best if r[1] != "ISO8601"))
+        raise DataError(f"dates such as {show_cell(present.iloc[0])} could be read with the day "
+                        f"or the month first; give the date format ({shown})")
+    return best[0][2], ""
+
+
+def _year_day_month(fmt: str) -> bool:
+    """A guessed format with the year first and the day before the month: never used."""
+    return fmt.startswith("%Y") and _day_first(fmt)
 
 
 def _day_first(fmt: str) -> bool:
