@@ -13,6 +13,7 @@ shows them (the header is row 1, the first data row is row 2); "case" means case
 
 from __future__ import annotations
 
+import codecs
 import csv
 import datetime as dt
 import io
@@ -71,11 +72,10 @@ def read_table(path: str | Path, columns: Iterable[str] | None = None) -> pd.Dat
             f"{name}: unknown kind of file '{path.suffix or '(no extension)'}'; "
             f"Lagwise reads {', '.join(SUPPORTED_SUFFIXES)}"
         )
-    raw = path.read_bytes()
-    if not raw.strip():
+    if suffix not in TEXT_SUFFIXES and not path.read_bytes().strip():
         raise DataError(f"{name}: the file is empty")
     if suffix in TEXT_SUFFIXES:
-        frame = _read_text(raw, name, columns)
+        frame = _read_text(path, name, columns)
     elif suffix in EXCEL_SUFFIXES:
         header = _read_binary(path, name, "an Excel workbook", lambda p: pd.read_excel(
             p, sheet_name=0, engine="openpyxl", header=None, nrows=1))
@@ -94,25 +94,37 @@ def read_table(path: str | Path, columns: Iterable[str] | None = None) -> pd.Dat
     return _tidy(frame, name)
 
 
-def decode_text(raw: bytes, name: str) -> str:
-    """Text of a file: UTF-8, UTF-8 with a byte-order mark, then Latin-1 (UTF-16 with a mark)."""
-    if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+def text_encoding(path: Path, name: str) -> str:
+    """The encoding of a text file: UTF-8, UTF-8 with a byte-order mark, then Latin-1 (UTF-16
+    with a mark). The file is checked a block at a time, so a long file is never held whole."""
+    with open(path, "rb") as handle:
+        start = handle.read(3)
+    if start.startswith((b"\xff\xfe", b"\xfe\xff")):
         attempts = ("utf-16",)
-    elif raw.startswith(b"\xef\xbb\xbf"):
+    elif start.startswith(b"\xef\xbb\xbf"):
         attempts = ("utf-8-sig",)
     else:
         attempts = ("utf-8", "latin-1")
     for encoding in attempts:
-        try:
-            text = raw.decode(encoding)
-        except UnicodeDecodeError:
-            continue
-        if not _BAD_CONTROL.search(text):
-            return text
+        if _decodes(path, encoding):
+            return encoding
     raise DataError(
         f"{name}: cannot read the file as text (tried UTF-8, UTF-8 with BOM and Latin-1); "
         "is it a spreadsheet or another binary file with a text extension?"
     )
+
+
+def _decodes(path: Path, encoding: str) -> bool:
+    """True when the whole file decodes as `encoding` without control characters."""
+    decoder = codecs.getincrementaldecoder(encoding)()
+    with open(path, "rb") as handle:
+        try:
+            for block in iter(lambda: handle.read(1 << 22), b""):
+                if _BAD_CONTROL.search(decoder.decode(block)):
+                    return False
+            return not _BAD_CONTROL.search(decoder.decode(b"", final=True))
+        except UnicodeDecodeError:
+            return False
 
 
 def sniff_format(text: str) -> tuple[str, str]:
@@ -208,6 +220,8 @@ def time_cells(series: pd.Series, date_format: str | None = None
             stamps = stamps.tz_localize(None)
         out, outside = _in_nanoseconds(stamps.to_numpy())
         return out, outside, ""
+    if _all_text(series):
+        return _text_times(series, date_format)
     cells = series.to_numpy(dtype=object)
     texts: list[str | None] = []
     fixed: dict[int, pd.Timestamp] = {}
@@ -233,8 +247,45 @@ def time_cells(series: pd.Series, date_format: str | None = None
     return out, bad, note
 
 
+def _text_times(series: pd.Series, date_format: str | None
+                ) -> tuple[np.ndarray, np.ndarray, str]:
+    """`time_cells` of a column holding text only, with pandas' string methods."""
+    stripped = series.str.strip()
+    missing = missing_cells(series)
+    bad = ~missing & (stripped.str.fullmatch(_NUMBER.pattern).fillna(False).to_numpy(bool)
+                      | ~stripped.str.contains(r"\d").fillna(False).to_numpy(bool))
+    texts = stripped.str.replace(_UTC_OFFSET.pattern, r"\1", regex=True).where(~(missing | bad))
+    del stripped
+    parsed, note = _parse_texts(texts, date_format)
+    out, outside = _in_nanoseconds(parsed.to_numpy().astype("datetime64[us]"))
+    bad |= outside | (texts.notna().to_numpy() & np.isnat(out))
+    return out, bad, note
+
+
+def missing_cells(series: pd.Series) -> np.ndarray:
+    """`is_missing_cell` of every cell, vectorised for numbers, dates and text columns."""
+    if (pd.api.types.is_numeric_dtype(series.dtype)
+            or pd.api.types.is_datetime64_any_dtype(series.dtype)):
+        return series.isna().to_numpy(dtype=bool)
+    if _all_text(series):
+        stripped = series.str.strip()
+        short = stripped.where(stripped.str.len() <= max(map(len, MISSING_TEXTS)))
+        return (series.isna() | short.str.lower().isin(MISSING_TEXTS)).to_numpy(dtype=bool)
+    return np.array([is_missing_cell(c) for c in series.to_numpy(dtype=object)], dtype=bool)
+
+
+def _all_text(series: pd.Series) -> bool:
+    """True for a column whose cells are all text or empty (pandas' string methods apply)."""
+    return (isinstance(series.dtype, pd.StringDtype)
+            or (series.dtype == object and pd.api.types.infer_dtype(series) == "string"))
+
+
 def utc_offsets(series: pd.Series) -> np.ndarray:
     """Minutes east of UTC written with each time (+02:00, -0500, Z); NaN where none."""
+    if _all_text(series):
+        written = series.str.strip().str.extract(_OFFSET.pattern, expand=False)
+        found = written.dropna().unique()
+        return written.map({w: _offset_minutes(w) for w in found}).to_numpy(dtype=float)
     if pd.api.types.is_datetime64_any_dtype(series.dtype):
         stamps = pd.DatetimeIndex(series)
         if stamps.tz is None:
@@ -308,25 +359,22 @@ def refuse_repeated_names(header: list[str], name: str) -> None:
         seen[column] = position
 
 
-def _read_text(raw: bytes, name: str, columns: Iterable[str] | None = None) -> pd.DataFrame:
-    text = decode_text(raw, name)
-    del raw
-    skipped = 0
-    start = 0
-    while True:  # leading blank lines, without splitting the whole text into lines
-        end = text.find("\n", start)
-        line = text[start:] if end < 0 else text[start:end + 1]
-        if line.strip() or end < 0:
-            break
-        skipped, start = skipped + 1, end + 1
-    if start:
-        text = text[start:]
-    if not text.strip():
-        raise DataError(f"{name}: the file is empty")
-    delim, decimal = sniff_format(text[:1 << 20])
-    header = next(csv.reader(io.StringIO(text[:1 << 20], newline=""), delimiter=delim), [])
+def _read_text(path: Path, name: str, columns: Iterable[str] | None = None) -> pd.DataFrame:
+    """Delimited text, read by pandas straight from the file (never held as one string)."""
+    encoding = text_encoding(path, name)
+    with open(path, encoding=encoding, newline="") as handle:
+        skipped = 0
+        for line in handle:  # leading blank lines
+            if line.strip():
+                break
+            skipped += 1
+        else:
+            raise DataError(f"{name}: the file is empty")
+        head = line + handle.read(1 << 20)
+    delim, decimal = sniff_format(head)
+    header = next(csv.reader(io.StringIO(head, newline=""), delimiter=delim), [])
     refuse_repeated_names(header, name)
-    _check_row_widths(text, delim, name, skipped)
+    _check_row_widths(path, encoding, delim, name, skipped)
     wanted = None if columns is None else set(columns)
     names = [c.strip() for c in header]
     usecols = None
@@ -335,8 +383,9 @@ def _read_text(raw: bytes, name: str, columns: Iterable[str] | None = None) -> p
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", pd.errors.ParserWarning)
-            frame = pd.read_csv(io.StringIO(text), sep=delim, decimal=decimal, index_col=False,
-                                skip_blank_lines=False, usecols=usecols)
+            frame = pd.read_csv(path, encoding=encoding, skiprows=skipped, sep=delim,
+                                decimal=decimal, index_col=False, skip_blank_lines=False,
+                                usecols=usecols)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError) as error:
         detail = _pandas_message(error, skipped)
         raise DataError(f"{name}: cannot read the table: {detail}") from error
@@ -344,22 +393,24 @@ def _read_text(raw: bytes, name: str, columns: Iterable[str] | None = None) -> p
     return frame
 
 
-def _check_row_widths(text: str, delim: str, name: str, skipped: int) -> None:
+def _check_row_widths(path: Path, encoding: str, delim: str, name: str, skipped: int) -> None:
     """A row with more (non-empty) cells than the header has columns is an error."""
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delim)
     width = None
     record = 0
-    try:
-        for record, row in enumerate(reader, start=1 + skipped):
-            if width is None:
-                width = len(row)
-            elif len(row) > width and any(c.strip() for c in row[width:]):
-                raise DataError(
-                    f"{name}: row {record} (counting the header as row 1) has {len(row)} cells "
-                    f"but the header has {width} columns ({DELIMITER_NAMES[delim]}-separated)"
-                )
-    except csv.Error as error:
-        raise DataError(f"{name}: cannot read row {record + 1}: {error}") from error
+    with open(path, encoding=encoding, newline="") as handle:
+        for _ in range(skipped):
+            handle.readline()
+        try:
+            for record, row in enumerate(csv.reader(handle, delimiter=delim), start=1 + skipped):
+                if width is None:
+                    width = len(row)
+                elif len(row) > width and any(c.strip() for c in row[width:]):
+                    raise DataError(
+                        f"{name}: row {record} (counting the header as row 1) has {len(row)} "
+                        f"cells but the header has {width} columns "
+                        f"({DELIMITER_NAMES[delim]}-separated)")
+        except csv.Error as error:
+            raise DataError(f"{name}: cannot read row {record + 1}: {error}") from error
 
 
 def _pandas_message(error: Exception, skipped: int) -> str:
@@ -391,10 +442,16 @@ def _tidy(frame: pd.DataFrame, name: str) -> pd.DataFrame:
     frame.columns = [str(c).strip() for c in frame.columns]
     if frame.shape[1] == 0:
         raise DataError(f"{name}: the file has no columns")
-    frame = frame.loc[~frame.isna().all(axis=1)]
+    frame = drop_empty_rows(frame)
     if len(frame) == 0:
         raise DataError(f"{name}: the file has a header but no data rows")
     return frame
+
+
+def drop_empty_rows(frame: pd.DataFrame) -> pd.DataFrame:
+    """The rows of `frame` holding some value (the same frame, not a copy, when all do)."""
+    empty = frame.isna().all(axis=1).to_numpy()
+    return frame.loc[~empty] if empty.any() else frame
 
 
 def _split_lines(lines: list[str], delim: str) -> list[list[str]]:
@@ -470,7 +527,7 @@ def _parse_texts(texts: pd.Series, date_format: str | None) -> tuple[pd.Series, 
     formats: list[str] = ["ISO8601"]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        for sample in present.drop_duplicates().iloc[:20]:
+        for sample in present.iloc[:1000].drop_duplicates().iloc[:20]:
             for dayfirst in (False, True):
                 guessed = guess_datetime_format(sample, dayfirst=dayfirst)
                 if guessed and guessed not in formats and not _year_day_month(guessed):

@@ -26,8 +26,9 @@ import pandas as pd
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import DataError
 from lagwise.models.readers import (
-    is_missing_cell,
+    drop_empty_rows,
     looks_like_dates,
+    missing_cells,
     numeric_cells,
     show_cell,
     time_cells,
@@ -52,7 +53,7 @@ def diary_from_frame(
     label = source or "the table"
     missing_codes = tuple(missing_codes)
     frame = frame.set_axis([str(c) for c in frame.columns], axis=1)
-    frame = frame.loc[~frame.isna().all(axis=1)]
+    frame = drop_empty_rows(frame)
     if len(frame) == 0:
         raise DataError(f"{label}: there are no data rows")
     for column in time.columns():
@@ -224,7 +225,9 @@ def _place_by_time(frame, values, time: TimeSettings, label):
     if shared:
         notes.append(f"{shared} prompts have the same time as the prompt before them")
     labels = [str(d) for d in unique_dates]
-    return (values[order], segment.astype(np.int64), day.astype(np.int64), labels,
+    in_order = bool((order[1:] > order[:-1]).all())  # a sorted file needs no copy
+    return (values if in_order else values[order], segment.astype(np.int64),
+            day.astype(np.int64), labels,
             prompt.astype(float), stamps, notes)
 
 
@@ -307,9 +310,10 @@ def _utc(frame: pd.DataFrame, column: str, stamps: np.ndarray, label: str) -> np
 
 
 def _refuse_empty(frame, series, column, label, what) -> None:
-    for pos, cell in enumerate(series.to_numpy(dtype=object)):
-        if is_missing_cell(cell):
-            raise DataError(f"{label}, column '{column}', {where(frame, pos)}: {what}")
+    empty = missing_cells(series)
+    if empty.any():
+        pos = int(np.flatnonzero(empty)[0])
+        raise DataError(f"{label}, column '{column}', {where(frame, pos)}: {what}")
 
 
 def _refuse_duplicates(frame, slot, day_of_row, prompt_of_row, day_labels, label) -> None:
