@@ -38,6 +38,7 @@ SUPPORTED_SUFFIXES = TEXT_SUFFIXES + EXCEL_SUFFIXES + SPSS_SUFFIXES + STATA_SUFF
 DELIMITERS = ("\t", ";", "|", ",")  # preference order when several split the file equally well
 DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", "|": "bar"}
 SNIFF_LINES = 200
+CHUNK_ROWS = 250_000  # rows pandas reads at a time
 
 # Cell texts read as "no answer" (compared after stripping spaces, case-insensitive).
 MISSING_TEXTS = frozenset({"", "na", "n/a", "nan", "null", "none", "#n/a", "."})
@@ -47,6 +48,7 @@ _DECIMAL_COMMA = re.compile(r"[+-]?(?:\d+,\d*|,\d+)(?:[eE][+-]?\d+)?")
 _DATE_SHAPE = re.compile(r"\d{1,4}[-./]\d{1,2}[-./]\d{1,4}(?:[ T].*)?")
 _UTC_OFFSET = re.compile(r"(\d{1,2}:\d{2}(?::\d{2}(?:\.\d+)?)?)\s*(?:Z|[+-]\d{2}(?::?\d{2})?)$")
 _OFFSET = re.compile(r"\d{1,2}:\d{2}(?::\d{2}(?:\.\d+)?)?\s*(Z|[+-]\d{2}(?::?\d{2})?)$")
+_ISO_LOCAL = re.compile(r"\d{4}-\d{2}-\d{2}[ T]\d{2}:\d{2}(?::\d{2}(?:\.\d{1,6})?)?")
 _BAD_CONTROL = re.compile(r"[\x00-\x08\x0e-\x1f\x7f]")
 _PANDAS_FIELDS = re.compile(r"Expected (\d+) fields in line (\d+), saw (\d+)")
 _FIRST_TIME = np.datetime64("1678-01-01", "us")
@@ -383,14 +385,31 @@ def _read_text(path: Path, name: str, columns: Iterable[str] | None = None) -> p
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", pd.errors.ParserWarning)
-            frame = pd.read_csv(path, encoding=encoding, skiprows=skipped, sep=delim,
-                                decimal=decimal, index_col=False, skip_blank_lines=False,
-                                usecols=usecols)
+            parts = [_compact_times(chunk) for chunk in pd.read_csv(
+                path, encoding=encoding, skiprows=skipped, sep=delim, decimal=decimal,
+                index_col=False, skip_blank_lines=False, usecols=usecols,
+                chunksize=CHUNK_ROWS)]
+        frame = pd.concat(parts, ignore_index=True) if len(parts) > 1 else parts[0]
     except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError) as error:
         detail = _pandas_message(error, skipped)
         raise DataError(f"{name}: cannot read the table: {detail}") from error
     frame.index = pd.RangeIndex(2 + skipped, 2 + skipped + len(frame), name="row")
     return frame
+
+
+def _compact_times(chunk: pd.DataFrame) -> pd.DataFrame:
+    """Text columns of plain ISO 8601 date-times (no UTC offset) as datetime64: a long diary's
+    time column then never exists as millions of strings at once."""
+    for column in chunk.columns:
+        cells = chunk[column]
+        if not _all_text(cells) or cells.isna().all():
+            continue
+        if cells.dropna().str.fullmatch(_ISO_LOCAL.pattern).all():
+            try:
+                chunk[column] = pd.to_datetime(cells, format="ISO8601")
+            except (ValueError, OverflowError):  # an impossible date: time_cells names it
+                continue
+    return chunk
 
 
 def _check_row_widths(path: Path, encoding: str, delim: str, name: str, skipped: int) -> None:
