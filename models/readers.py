@@ -3,7 +3,9 @@
 Supported files: delimited text (.csv, .tsv, .txt, .dat; the delimiter is detected among
 comma, semicolon, tab and bar, and a decimal comma is detected), Excel workbooks (.xlsx,
 .xlsm; the first sheet), SPSS (.sav, .zsav) and Stata (.dta). Text is decoded as UTF-8,
-UTF-8 with a byte-order mark (or UTF-16 with one), then Latin-1.
+UTF-8 with a byte-order mark (or UTF-16 with one), then Latin-1. Delimited text is read by
+pandas from the file in chunks; a text column of plain ISO 8601 date-times (no UTC offset)
+becomes a datetime column as it is read. A column name given twice is refused.
 
 The table returned by `read_table` is indexed by where each row sits in the file, so that
 messages can point at it: index name "row" means file rows counted the way a spreadsheet
