@@ -8,6 +8,7 @@ parsed, so the same value is refused everywhere with the same words.
 from __future__ import annotations
 
 import math
+import numbers
 from dataclasses import dataclass
 
 from lagwise.models.errors import SpecError
@@ -34,11 +35,10 @@ class Limit:
         return f"{kind} from {low} to {high}{unit}"
 
     def allows(self, value: object) -> bool:
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
+        if not isinstance(value, numbers.Real) or type(value).__name__.startswith("bool"):
             return False
-        if self.whole and not (isinstance(value, int) or float(value).is_integer()):
-            return False
-        if not math.isfinite(value):
+        if not isinstance(value, numbers.Integral) and (
+                not math.isfinite(value) or (self.whole and not float(value).is_integer())):
             return False
         low_ok = value > self.low if self.above else value >= self.low
         return low_ok and value <= self.high
