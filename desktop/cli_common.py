@@ -18,12 +18,14 @@ out of range is a usage error (exit 2) naming the range.
 from __future__ import annotations
 
 import argparse
-from typing import Callable
+from typing import TYPE_CHECKING, Callable
 
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import DataError
 from lagwise.models.limits import MAX_GAP_MINUTES, PROMPTS_PER_DAY, Limit
-from lagwise.models.recipe import DiaryRecipe
+
+if TYPE_CHECKING:  # the readers (pandas) load when a diary is read, not for --help
+    from lagwise.models.recipe import DiaryRecipe
 
 
 def in_range(limit: Limit) -> Callable[[str], int | float]:
@@ -108,6 +110,8 @@ def split_list(text: str | list[str] | None) -> list[str] | None:
 
 def recipe_from_args(args: argparse.Namespace) -> DiaryRecipe:
     """How the options say the data file becomes a diary."""
+    from lagwise.models.recipe import DiaryRecipe
+
     return DiaryRecipe.of(split_list(args.items), time_settings_from_args(args),
                           split_list(args.missing_codes) or (), args.prompts_per_day)
 

@@ -5,7 +5,9 @@ estimator settings (for reproducibility); `--save PROJECT.lagwise` writes the da
 the settings and the result as a project file (models.project).
 
 Exit codes: 0 success, 2 bad input (one line on stderr), 3 the optimiser did not converge
-(the report and JSON are still written, flagged).
+(the report and JSON are still written, flagged). --json and --save are written
+independently: when one cannot be written the other still is, both outcomes are reported
+and the exit code is 2.
 """
 
 from __future__ import annotations
@@ -14,12 +16,12 @@ import argparse
 import json
 import sys
 from dataclasses import replace
-from pathlib import Path
 
 from lagwise.desktop.cli_common import (
     add_diary_arguments, diary_from_args, in_range, recipe_from_args,
 )
-from lagwise.models.errors import ProjectError, SpecError
+from lagwise.models.atomic import write_output
+from lagwise.models.errors import LagwiseError, ProjectError, SpecError
 from lagwise.models.estimate import fit
 from lagwise.models.lag2check import lag2_check
 from lagwise.models.project import (
@@ -165,18 +167,46 @@ def run(args: argparse.Namespace) -> int:
         print()
         print(format_bootstrap(boot))
         doc["bootstrap"] = boot.to_json()
-    if args.json:
-        Path(args.json).write_text(json.dumps(doc, indent=2, allow_nan=False), encoding="utf-8")
-    if args.save is not None:
-        if project is None:
-            project = Project.of_recipe(embed_file(args.data), recipe_from_args(args),
-                                        spec=spec, options=options)
-        save_project(replace(project, result=result), args.save)
-        print(f"\nProject saved to {args.save}")
+    written = write_json(args.json, doc)
+    saved = save_fitted(args, project, spec, options, result)
+    if not (written and saved):
+        return 2
     if not result.converged:
         print("lagwise: the optimiser did not converge; results are flagged", file=sys.stderr)
         return 3
     return 0
+
+
+def write_json(path: str | None, doc: dict) -> bool:
+    """--json: write the results (atomically); a failure is one line on stderr, and False,
+    so that the project is still saved."""
+    if not path:
+        return True
+    try:
+        write_output(path, json.dumps(doc, indent=2, allow_nan=False), "the results")
+    except LagwiseError as error:
+        print(f"lagwise: {error}", file=sys.stderr)
+        return False
+    print(f"\nResults written to {path}")
+    return True
+
+
+def save_fitted(args: argparse.Namespace, project: Project | None, spec: ModelSpec,
+                options: FitOptions, result) -> bool:
+    """--save: the data, model, settings and result as a project (atomically); a failure is
+    one line on stderr, and False, whether or not the JSON was written."""
+    if args.save is None:
+        return True
+    try:
+        if project is None:
+            project = Project.of_recipe(embed_file(args.data), recipe_from_args(args),
+                                        spec=spec, options=options)
+        save_project(replace(project, result=result), args.save)
+    except LagwiseError as error:
+        print(f"lagwise: {error}", file=sys.stderr)
+        return False
+    print(f"\nProject saved to {args.save}")
+    return True
 
 
 def check_bootstrap_arguments(args: argparse.Namespace) -> None:

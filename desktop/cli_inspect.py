@@ -3,6 +3,7 @@
 Prints prompts scheduled and answered, days and compliance per day, lag windows per depth
 (complete and with missing values) and per item the missing count, mean and SD; with
 --json OUT also writes these as JSON (models.summary.diary_summary; '-' writes to stdout).
+The computation is imported when the command runs, so `lagwise inspect --help` is instant.
 """
 
 from __future__ import annotations
@@ -10,12 +11,9 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from pathlib import Path
 
 from lagwise.desktop.cli_common import add_diary_arguments, diary_from_args
-from lagwise.models.errors import DataError
-from lagwise.models.summary import diary_summary, format_summary
-from lagwise.models.screening import format_screening, screen_diary, screening_json
+from lagwise.models.atomic import write_output
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -25,6 +23,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from lagwise.models.screening import format_screening, screen_diary, screening_json
+    from lagwise.models.summary import diary_summary, format_summary
+
     diary = diary_from_args(args)
     summary = diary_summary(diary)
     screening = screen_diary(diary)
@@ -38,9 +39,5 @@ def run(args: argparse.Namespace) -> int:
     print()
     print(format_screening(screening))
     if args.json:
-        out = Path(args.json)
-        try:
-            out.write_text(text + "\n", encoding="utf-8")
-        except OSError as error:
-            raise DataError(f"{out}: cannot write the summary ({error.strerror})") from error
+        write_output(args.json, text + "\n", "the summary")
     return 0

@@ -9,44 +9,56 @@ as the user sees them (the display text of every cell, header row first).
 from __future__ import annotations
 
 import csv
+import io
+import re
 from pathlib import Path
 
-from PySide6.QtCore import QAbstractItemModel, QModelIndex, QPoint, QRectF, QSize, Qt
+from PySide6.QtCore import (
+    QAbstractItemModel, QBuffer, QIODevice, QModelIndex, QPoint, QRectF, QSize, Qt,
+)
 from PySide6.QtGui import QAction, QColor, QGuiApplication, QImage, QPainter
 from PySide6.QtSvg import QSvgGenerator
 from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMenu, QMessageBox, QWidget
+
+from lagwise.models.atomic import write_output
+from lagwise.models.errors import OutputError
 
 Picture = QWidget | QGraphicsScene
 DEFAULT_DPI = 96  # the usual logical resolution of a desktop screen (common practice)
 
 
 def save_widget_png(target: Picture, path: str | Path, scale: float = 2.0) -> Path:
-    """Render a widget, view or scene into a PNG file (`scale` x its size for sharp print)."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
+    """Render a widget, view or scene into a PNG file (`scale` x its size for sharp print).
+
+    The file is replaced in one step (models.atomic); a failure raises one OutputError line.
+    """
+    path = _in_folder(path)
     if isinstance(target, QGraphicsScene):
         image = _scene_image(target, scale)
     else:
         image = _widget_image(target, scale)
-    if not image.save(str(path), "PNG"):
-        raise OSError(f"Could not write the picture to {path}.")
-    return path
+    buffer = QBuffer()
+    buffer.open(QIODevice.OpenModeFlag.WriteOnly)
+    if not image.save(buffer, "PNG"):
+        raise OutputError(f"{path}: could not draw the picture; nothing was written")
+    return write_output(path, bytes(buffer.data()), "the picture")
 
 
 def save_scene_svg(target: Picture, path: str | Path, title: str = "Lagwise") -> Path:
-    """Write a scene, view or widget as a vector SVG picture."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
+    """Write a scene, view or widget as a vector SVG picture (replaced in one step)."""
+    path = _in_folder(path)
     rect = _picture_rect(target)
+    buffer = QBuffer()
+    buffer.open(QIODevice.OpenModeFlag.WriteOnly)
     generator = QSvgGenerator()
-    generator.setFileName(str(path))
+    generator.setOutputDevice(buffer)
     generator.setTitle(title)
     generator.setResolution(svg_resolution(target))
     generator.setSize(QSize(max(1, round(rect.width())), max(1, round(rect.height()))))
     generator.setViewBox(QRectF(0, 0, rect.width(), rect.height()))
     painter = QPainter()
     if not painter.begin(generator):
-        raise OSError(f"Could not write the picture to {path}.")
+        raise OutputError(f"{path}: could not draw the picture; nothing was written")
     try:
         painter.setRenderHint(QPainter.RenderHint.Antialiasing)
         if isinstance(target, QGraphicsScene):
@@ -55,9 +67,7 @@ def save_scene_svg(target: Picture, path: str | Path, title: str = "Lagwise") ->
             QWidget.render(target, painter, QPoint())
     finally:
         painter.end()
-    if not path.exists():
-        raise OSError(f"Could not write the picture to {path}.")
-    return path
+    return write_output(path, bytes(buffer.data()), "the picture")
 
 
 def svg_resolution(target: Picture | None = None) -> int:
@@ -98,12 +108,24 @@ def table_rows(model: QAbstractItemModel) -> list[list[str]]:
 
 
 def save_table_csv(model: QAbstractItemModel, path: str | Path) -> Path:
-    """Write a table model (as displayed, header first) to a UTF-8 CSV file."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    with path.open("w", newline="", encoding="utf-8") as handle:
-        csv.writer(handle).writerows(table_rows(model))
-    return path
+    """Write a table model (as displayed, header first) to a UTF-8 CSV file, every cell made
+    inert for spreadsheets (`inert_cell`); replaced in one step (models.atomic)."""
+    path = _in_folder(path)
+    text = io.StringIO()
+    csv.writer(text).writerows([[inert_cell(cell) for cell in row] for row in table_rows(model)])
+    return write_output(path, text.getvalue(), "the table")
+
+
+def inert_cell(text: str) -> str:
+    """`text` with a leading apostrophe when a spreadsheet would run it as a formula.
+
+    Spreadsheets treat a cell beginning with =, +, -, @ (or a tab or carriage return before
+    one) as a formula; the usual defence is a leading apostrophe, which they show as text
+    (common practice for CSV export). A plain number such as -0.25 stays a number.
+    """
+    if text[:1] in _FORMULA_STARTS and not _NUMBER.fullmatch(text):
+        return "'" + text
+    return text
 
 
 def export_menu(parent: QWidget, picture: Picture | None = None,
@@ -128,6 +150,8 @@ def export_menu(parent: QWidget, picture: Picture | None = None,
 
 
 # ----- helpers -----------------------------------------------------------------------
+_FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+_NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
 _FILTERS = {"png": "PNG picture (*.png)", "svg": "SVG picture (*.svg)", "csv": "CSV table (*.csv)"}
 
 
@@ -144,8 +168,19 @@ def _ask_and_save(parent: QWidget, target, name: str, kind: str) -> None:
             save_scene_svg(target, path)
         else:
             save_widget_png(target, path)
-    except OSError as exc:
+    except OutputError as exc:
         QMessageBox.warning(parent, "Could not save", str(exc))
+
+
+def _in_folder(path: str | Path) -> Path:
+    """`path`, its folder created when missing (one OutputError line when it cannot be)."""
+    path = Path(path)
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as error:
+        raise OutputError(f"{path.parent}: cannot create the folder "
+                          f"({error.strerror or error}); nothing was written") from error
+    return path
 
 
 def _picture_rect(target: Picture) -> QRectF:

@@ -21,6 +21,7 @@ from PySide6.QtWidgets import QFileDialog, QMessageBox, QWidget
 
 from lagwise.desktop.import_dialog import FILE_FILTER
 from lagwise.desktop.session import Session
+from lagwise.models.atomic import remove_stale_temporaries
 from lagwise.models.errors import LagwiseError, ProjectError
 from lagwise.models.project import (
     SUFFIX, LinkedDataChanged, LinkedDataMissing, Project, Recovery, discard_recovery,
@@ -107,6 +108,7 @@ class ProjectFiles(QObject):
             if not path:
                 return False
         path = Path(path)
+        remove_stale_temporaries(path)  # left beside it by a save that was killed
         try:
             project = open_project(path)
         except ProjectError as exc:

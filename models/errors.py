@@ -28,6 +28,11 @@ class ProjectError(LagwiseError):
     """A project file that cannot be opened or saved."""
 
 
+class OutputError(LagwiseError, OSError):
+    """A file the user asked for (a result, a table, a picture) that could not be written;
+    the previous file, if any, is unchanged (models.atomic.write_output)."""
+
+
 class FieldError(LagwiseError, ValueError):
     """A field of a JSON document with the wrong type, size or shape (models.jsonread).
 

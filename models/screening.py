@@ -8,12 +8,14 @@ Per item (over its answered prompts):
 - autocorrelation at lags 1..5 within segments (see `within_segment_acf`);
 - a linear time trend: OLS of the answers on the occasion index (the occasion's position in
   the diary, 0, 1, 2, ...; a missed prompt keeps its place, so a gap counts as the prompts
-  missed and a night as one step). Slope per occasion, its p-value (statsmodels OLS), the
+  missed and a night as one step). Slope per occasion, its p-value (t test), the
   standardized slope (slope x SD(index) / SD(answers), the correlation with time) and the
   drift over the diary in SDs (slope x index range / SD);
-- the ADF test (statsmodels adfuller, constant, lag length by AIC; null: a unit root) and the
-  KPSS test (statsmodels kpss, level, automatic lags; null: a stable level) on the answered
-  values in time order: gaps (missed prompts, nights) are closed up for these two tests;
+- the ADF test (constant, lag length by AIC up to a bounded maximum; null: a unit root) and
+  the KPSS test (level, automatic lags; null: a stable level), models.unitroot, on one series
+  per item: its answered values in diary order with the segments joined end to end and the
+  gaps (missed prompts, nights) closed up; remembered per series, so screening the same
+  item of the same diary again is free;
 - the within-day profile (mean by prompt number) and the day-of-week profile (when the day
   labels are dates or the diary has timestamps).
 
@@ -25,19 +27,17 @@ from __future__ import annotations
 
 import datetime as dt
 import re
-import warnings
 from dataclasses import asdict, dataclass
 
 import numpy as np
-import statsmodels.api as sm
-from statsmodels.tools.sm_exceptions import InterpolationWarning
-from statsmodels.tsa.stattools import adfuller, kpss
+from scipy.special import stdtr
 
+from lagwise.models.blas import one_blas_thread
 from lagwise.models.diary import Diary
 from lagwise.models.errors import DataError
 from lagwise.models.numbers import fmt, p_phrase
-from lagwise.models.objective import MIN_WINDOWS_PER_PARAMETER
 from lagwise.models.progress import Monitor, checkpoint
+from lagwise.models.unitroot import adf, cached_by_series, kpss_level
 from lagwise.models.windows import lag_windows
 
 ACF_LAGS = 5
@@ -202,14 +202,15 @@ def screen_diary(diary: Diary, scales: dict[str, tuple[float, float]] | None = N
     n_free: free parameters of the current specification (for windows per parameter).
     """
     scales = scales or {}
-    weekday = weekdays(diary)
-    screens = []
-    for j, name in enumerate(diary.items):
-        checkpoint(monitor, j / (diary.n_items + 1), f"Screening item {name}")
-        screens.append(screen_item(name, diary.values[:, j], diary.segment, diary.prompt,
-                                   weekday, scales.get(name)))
-    checkpoint(monitor, diary.n_items / (diary.n_items + 1), "Readiness")
-    return Screening(items=tuple(screens), readiness=readiness(diary, screens, n_free))
+    with one_blas_thread():  # long vector products: threaded BLAS only waits on two cores
+        weekday = weekdays(diary)
+        screens = []
+        for j, name in enumerate(diary.items):
+            checkpoint(monitor, j / (diary.n_items + 1), f"Screening item {name}")
+            screens.append(screen_item(name, diary.values[:, j], diary.segment, diary.prompt,
+                                       weekday, scales.get(name)))
+        checkpoint(monitor, diary.n_items / (diary.n_items + 1), "Readiness")
+        return Screening(items=tuple(screens), readiness=readiness(diary, screens, n_free))
 
 
 def screening_json(screening: Screening) -> dict:
@@ -303,26 +304,33 @@ def within_segment_acf(column: np.ndarray, segment: np.ndarray,
 
 
 def linear_trend(column: np.ndarray) -> Trend:
-    """OLS of the answered values on the occasion index (statsmodels OLS; p for the slope)."""
+    """OLS of the answered values on the occasion index; two-sided t-test p for the slope
+    (common practice: t = slope / se, n - 2 degrees of freedom)."""
     column = np.asarray(column, dtype=float)
     index = np.flatnonzero(~np.isnan(column)).astype(float)
     x = column[~np.isnan(column)]
     none = Trend(None, None, None, None, None)
     if x.size < 3:
         return none
-    fit = sm.OLS(x, sm.add_constant(index, has_constant="add")).fit()
-    intercept, slope = (float(v) for v in fit.params)
+    di, dx = index - index.mean(), x - x.mean()
+    slope = float(di @ dx / (di @ di))
+    intercept = float(x.mean() - slope * index.mean())
     sd_x = float(x.std(ddof=1))
     if sd_x <= 0:
         return Trend(slope, intercept, None, None, None)
-    return Trend(slope=slope, intercept=intercept, p=_finite(fit.pvalues[1]),
+    resid = dx - slope * di
+    se = np.sqrt(float(resid @ resid) / (x.size - 2) / float(di @ di))
+    p = 2.0 * stdtr(x.size - 2, -abs(slope / se)) if se > 0 else 0.0
+    return Trend(slope=slope, intercept=intercept, p=_finite(p),
                  standardized=slope * float(index.std(ddof=1)) / sd_x,
                  drift_sd=slope * float(index[-1] - index[0]) / sd_x)
 
 
+@cached_by_series
 def stationarity_tests(x: np.ndarray) -> tuple[UnitTest, UnitTest]:
     """ADF (constant, AIC lag length) and KPSS (level, automatic lags) on answered values in
-    time order, gaps closed up. Not run with fewer than MIN_TEST_ANSWERS answers or no variation."""
+    time order, gaps closed up (models.unitroot). Not run with fewer than MIN_TEST_ANSWERS
+    answers or no variation."""
     x = np.asarray(x, dtype=float)
     if x.size < MIN_TEST_ANSWERS or np.ptp(x) == 0:
         why = (f"not run: only {x.size} answer{'' if x.size == 1 else 's'} "
@@ -331,30 +339,21 @@ def stationarity_tests(x: np.ndarray) -> tuple[UnitTest, UnitTest]:
         return (UnitTest("ADF", None, None, None, None, why),
                 UnitTest("KPSS", None, None, None, None, why))
     try:
-        with warnings.catch_warnings():  # newer statsmodels announce a change of return type
-            warnings.simplefilter("ignore", FutureWarning)
-            stat, p, lags, *_ = adfuller(x, regression="c", autolag="AIC")
+        stat, p, lags = adf(x)
         rejects = bool(p < ALPHA)
-        adf_test = UnitTest("ADF", float(stat), float(p), int(lags), rejects, (
+        adf_test = UnitTest("ADF", stat, p, lags, rejects, (
             "rejects a unit root: no sign of a random walk" if rejects
             else "cannot rule out a unit root: the level may wander like a random walk"))
-    except (ValueError, np.linalg.LinAlgError) as error:
+    except ValueError as error:  # too short, or collinear regressors
         adf_test = UnitTest("ADF", None, None, None, None, f"not run: {error}")
-    try:
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("ignore", FutureWarning)
-            warnings.simplefilter("always", InterpolationWarning)
-            stat, p, lags, _ = kpss(x, regression="c", nlags="auto")
-        bounded = any(issubclass(w.category, InterpolationWarning) for w in caught)
-        rejects = bool(p < ALPHA)
-        words = ("rejects a stable level: the level seems to drift or shift" if rejects
-                 else "no evidence against a stable level")
-        if bounded:
-            words += (f"; p is at the edge of the test's table (the true p is "
-                      f"{'smaller' if p <= 0.01 else 'larger'} than {p:.2f})")
-        kpss_test = UnitTest("KPSS", float(stat), float(p), int(lags), rejects, words, bounded)
-    except (ValueError, np.linalg.LinAlgError) as error:
-        kpss_test = UnitTest("KPSS", None, None, None, None, f"not run: {error}")
+    stat, p, lags, bounded = kpss_level(x)
+    rejects = bool(p < ALPHA)
+    words = ("rejects a stable level: the level seems to drift or shift" if rejects
+             else "no evidence against a stable level")
+    if bounded:
+        words += (f"; p is at the edge of the test's table (the true p is "
+                  f"{'smaller' if p <= 0.01 else 'larger'} than {p:.2f})")
+    kpss_test = UnitTest("KPSS", stat, p, lags, rejects, words, bounded)
     return adf_test, kpss_test
 
 
@@ -388,11 +387,12 @@ def weekdays(diary: Diary) -> np.ndarray | None:
                 pass
     if diary.time is not None:
         stamps = np.asarray(diary.time, dtype="datetime64[ns]")
-        for d in np.flatnonzero(per_day < 0):
-            known = stamps[(diary.day == d) & ~np.isnat(stamps)]
-            if known.size:
-                day = known[0].astype("datetime64[D]").astype(object)
-                per_day[d] = day.weekday()
+        known = np.flatnonzero(~np.isnat(stamps))
+        days, first = np.unique(np.asarray(diary.day)[known], return_index=True)
+        monday = np.datetime64("1970-01-05", "D")  # weekday counted from a known Monday
+        weekday = (stamps[known[first]].astype("datetime64[D]") - monday).astype(np.int64) % 7
+        open_days = per_day[days] < 0
+        per_day[days[open_days]] = weekday[open_days]
     if (per_day < 0).all():
         return None
     return per_day[np.asarray(diary.day)]
@@ -407,15 +407,18 @@ def compliance_by_week(diary: Diary) -> tuple[WeekCompliance, ...]:
     else:
         week_of_day = np.arange(diary.n_days) // 7
     week = week_of_day[np.asarray(diary.day)]
-    answered = diary.answered
+    scheduled = np.bincount(week, minlength=week_of_day.max() + 1)
+    answered = np.bincount(week, weights=diary.answered, minlength=scheduled.size)
+    first = np.full(scheduled.size, diary.n_days)
+    np.minimum.at(first, week_of_day, np.arange(diary.n_days))
+    last = np.full(scheduled.size, -1)
+    np.maximum.at(last, week_of_day, np.arange(diary.n_days))
     out = []
-    for w in np.unique(week):
-        days = np.flatnonzero(week_of_day == w)
-        here = week == w
-        scheduled, done = int(here.sum()), int(answered[here].sum())
-        out.append(WeekCompliance(week=int(w) + 1, first_day=diary.day_labels[days[0]],
-                                  last_day=diary.day_labels[days[-1]], scheduled=scheduled,
-                                  answered=done, fraction=done / scheduled if scheduled else None))
+    for w in np.flatnonzero(scheduled):
+        total, done = int(scheduled[w]), int(answered[w])
+        out.append(WeekCompliance(week=int(w) + 1, first_day=diary.day_labels[first[w]],
+                                  last_day=diary.day_labels[last[w]], scheduled=total,
+                                  answered=done, fraction=done / total))
     return tuple(out)
 
 
@@ -434,6 +437,8 @@ def readiness(diary: Diary, screens: list[ItemScreen] | tuple[ItemScreen, ...],
         notes.append(f"Only {complete} complete lag windows (pairs of consecutive prompts in one "
                      f"segment with every item answered); about {MIN_WINDOWS} or more is a usual "
                      "minimum even for a small model.")
+    if per_parameter is not None:  # the estimators' rule; loaded only when a model is known
+        from lagwise.models.objective import MIN_WINDOWS_PER_PARAMETER
     if per_parameter is not None and per_parameter < MIN_WINDOWS_PER_PARAMETER:
         notes.append(f"{per_parameter:.1f} complete lag windows per free parameter ({complete} for "
                      f"{n_free}); fewer than about {MIN_WINDOWS_PER_PARAMETER:g} gives unstable "

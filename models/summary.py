@@ -39,11 +39,11 @@ def diary_summary(diary: Diary) -> dict:
             "mean": _number(answers.mean()) if answers.size else None,
             "sd": _number(answers.std(ddof=1)) if answers.size > 1 else None,
         }
+    per_day = np.bincount(diary.day, minlength=diary.n_days)       # one pass, not one per day
+    answered_per_day = np.bincount(diary.day, weights=answered, minlength=diary.n_days)
     compliance = []
     for d, day_label in enumerate(diary.day_labels):
-        on_day = diary.day == d
-        scheduled = int(on_day.sum())
-        done = int(answered[on_day].sum())
+        scheduled, done = int(per_day[d]), int(answered_per_day[d])
         compliance.append({
             "day": day_label, "scheduled": scheduled, "answered": done,
             "fraction": _number(done / scheduled) if scheduled else None,

@@ -7,6 +7,9 @@ linear trend, its autocorrelations, and its within-day and weekday profiles, as 
 and after the chosen preparation steps (models.preparation). Ticking a step emits
 `steps_changed(tuple_of_steps)`; the owner records the steps and may call `set_diary` again.
 Every picture can be saved as PNG/SVG and every table as CSV. No statistics here.
+A diary of up to WORKER_OCCASIONS prompts is screened at once (a few hundredths of a second);
+a longer one in a worker thread (desktop.worker) with its progress shown, so the window stays
+responsive; both deliver through `_show`.
 """
 
 from __future__ import annotations
@@ -24,6 +27,7 @@ from PySide6.QtWidgets import (
 
 from lagwise.desktop import style
 from lagwise.desktop.export import export_menu
+from lagwise.desktop.worker import Worker
 from lagwise.models.diary import Diary
 from lagwise.models.errors import DataError
 from lagwise.models.preparation import STEP_LABELS, STEP_NAMES, Step, apply_steps, describe, usual_order
@@ -31,6 +35,7 @@ from lagwise.models.numbers import fmt, p_phrase
 from lagwise.models.screening import ItemScreen, Profile, Screening, screen_diary, weekdays
 
 PLOT_ROW_HEIGHT = 190   # pixels per row of item plots
+WORKER_OCCASIONS = 5000  # longer diaries are screened in the worker
 MAX_DAY_TICKS = 6
 PLOT_ROWS = ("series", "acf", "within_day", "weekday")
 ITEM_COLUMNS = ("Item", "Answered", "Missed %", "Mean", "SD", "Floor %", "Ceiling %", "Skew",
@@ -58,7 +63,15 @@ class ScreeningView(QWidget):
         self._item = 0
         self._records: list[list[str]] = []
         self._export_buttons: dict[str, QToolButton] = {}
+        self._worker = Worker(self)
         self._build()
+        self._worker.started.connect(self.progress_label.show)
+        self._worker.progress.connect(
+            lambda fraction, message: self.progress_label.setText(f"{message} ({fraction:.0%})"))
+        self._worker.done.connect(self._show)
+        self._worker.error.connect(lambda message, _details: self.progress_label.setText(
+            f"<span style='color:{style.WARNING}'>⚠ {escape(message)}</span>"))
+        self._worker.cancelled.connect(lambda _message: self.progress_label.hide())
         self._show_empty()
 
     # ----- public --------------------------------------------------------------------
@@ -72,13 +85,17 @@ class ScreeningView(QWidget):
             return
         self._n_free, self._scales = n_free, scales
         if not same_data or self._before is None:
-            self._diary = diary
-            self._before = None if diary is None else screen_diary(diary, scales, n_free)
+            self._diary, self._before = diary, None
             self._item = min(self._item, diary.n_items - 1) if diary is not None else 0
         self._set_checks(steps)
         self._steps = steps
         self._prepare()
-        self._refresh()
+        self._screen()
+
+    @property
+    def busy(self) -> bool:
+        """A long diary is being screened in the worker."""
+        return self._worker.busy
 
     def steps(self) -> tuple[Step, ...]:
         """The preparation steps currently chosen."""
@@ -177,6 +194,10 @@ class ScreeningView(QWidget):
         self._hint = pg.LabelItem("Tick a preparation step above<br>to compare before and after.",
                                   color=style.MUTED, size="9pt")
         self._shown_columns = 0
+        self.progress_label = QLabel()
+        self.progress_label.setObjectName("screeningProgress")
+        self.progress_label.hide()
+        bottom_layout.addWidget(self.progress_label)
         self.plot_scroll = QScrollArea()
         self.plot_scroll.setWidgetResizable(True)
         self.plot_scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
@@ -252,9 +273,10 @@ class ScreeningView(QWidget):
             self._steps = previous
             self._set_checks(previous)
             self._prepare()
+            self._screen()
             self.steps_label.setText(refusal)
             return
-        self._refresh()
+        self._screen()
         self.steps_changed.emit(steps)
 
     def _prepare(self) -> bool:
@@ -269,10 +291,31 @@ class ScreeningView(QWidget):
             self.steps_label.setText(f"<span style='color:{style.WARNING}'>⚠ Not applied: "
                                      f"{escape(str(error))}</span>")
             return False
-        self._after = screen_diary(self._prepared, None, self._n_free)
         self.steps_label.setText("Applied in this order before estimation: "
                                  f"{escape(describe(self._steps))}.")
         return True
+
+    # ----- screening -----------------------------------------------------------------
+    def _screen(self) -> None:
+        """Screen the diary (unless already done) and the prepared diary, then show them."""
+        job = (self._diary, self._before, self._prepared, self._scales, self._n_free)
+        if self._diary is None or self._diary.n_occasions <= WORKER_OCCASIONS:
+            self._worker.cancel()
+            self._show(screen_versions(*job))
+            return
+        self.progress_label.setText("Screening…")
+        if self._before is None:
+            self.readiness_label.setText("Screening the diary…")
+        self._worker.start(screen_versions, *job, job="screening")
+
+    def _show(self, screened: tuple) -> None:
+        """Show the screenings of `screen_versions` if they belong to the current diary."""
+        diary, prepared, before, after = screened
+        if diary is not self._diary or prepared is not self._prepared:
+            return  # a run for inputs that have changed since
+        self.progress_label.hide()
+        self._before, self._after = before, after
+        self._refresh()
 
     # ----- drawing -------------------------------------------------------------------
     def _show_empty(self) -> None:
@@ -511,6 +554,16 @@ class ScreeningView(QWidget):
         self._records.append([plot, version, str(position), label,
                               "" if value is None or not np.isfinite(value) else f"{value:.6g}",
                               "" if count is None else str(count)])
+
+
+def screen_versions(diary: Diary | None, before: Screening | None, prepared: Diary | None,
+                    scales: dict | None, n_free: int | None, monitor=None) -> tuple:
+    """(diary, prepared, screening as answered, screening after preparation or None); the
+    screening as answered is reused when given."""
+    if diary is not None and before is None:
+        before = screen_diary(diary, scales, n_free, monitor)
+    after = None if prepared is None else screen_diary(prepared, None, n_free, monitor)
+    return diary, prepared, before, after
 
 
 class RowsModel(QAbstractTableModel):

@@ -11,12 +11,17 @@ Sections (each module's docstring says what it times and why that peer):
 - exact.py: the exact estimator against statsmodels' DynamicFactor, and its evaluation cost
   per prompt as diaries grow, with days and as one segment;
 - memory.py: peak memory of one fit of a long diary, and of reading a long diary file, in a
-  fresh process.
+  fresh process;
+- commandline.py: start-up of `lagwise --help` and `lagwise inspect` of the demo, the demo's
+  reading and screening, and `lagwise inspect` of a diary of a million prompts.
 Targets (cases.py), reported as PASS/MISS lines (report.py), never as timed tests: semopy's
 covariance-only fit + inspect takes at least 2x the Lagwise first-copy-free time on both speed
 diaries; stationary within 1.5x of first-copy-free; statsmodels takes at least 5x the Lagwise
 exact time; exact gradient time growing at most as T^1.1 on both layouts; peak memory under
-1 GiB; reading a diary file under 4x its size. The refit has no target: its speed-up is reported as a fact.
+1 GiB; reading a diary file under 4x its size; `lagwise --help` under 0.5 s, `lagwise inspect`
+of the demo under 2 s (its reading and screening under 1 s) and of a million prompts under
+30 s (absolute: start-up has no peer). The refit has no target: its speed-up is reported as a
+fact.
 """
 
 from __future__ import annotations
@@ -25,11 +30,13 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
 from lagwise.models.bench.cases import (
-    EXACT_CASE, EXACT_MEMORY_CASE, EXACT_SIZES, MEMORY_CASE, MEMORY_TARGET_BYTES,
-    QUICK_EXACT_CASE, QUICK_EXACT_MEMORY_CASE, QUICK_EXACT_SIZES, QUICK_MEMORY_CASE,
-    QUICK_READ_ROWS, QUICK_REFIT_REPLICATES, READ_ROWS, QUICK_SPEED_CASES, REFIT_REPLICATES, SPEED_CASES, SPEED_TARGET, Case,
+    EXACT_CASE, EXACT_MEMORY_CASE, EXACT_SIZES, INSPECT_CASE, MEMORY_CASE, MEMORY_TARGET_BYTES,
+    QUICK_EXACT_CASE, QUICK_INSPECT_CASE, QUICK_EXACT_MEMORY_CASE, QUICK_EXACT_SIZES, QUICK_MEMORY_CASE,
+    QUICK_READ_ROWS, QUICK_REFIT_REPLICATES, QUICK_SPEED_CASES, READ_ROWS, REFIT_REPLICATES,
+    SPEED_CASES, SPEED_TARGET, Case,
     bench_diary, bench_model,
 )
+from lagwise.models.bench.commandline import CommandTimes, measure_commands
 from lagwise.models.bench.exact import (
     ExactEvaluation, ExactSpeedResult, growth_exponent, measure_exact_evaluation,
     measure_exact_speed,
@@ -67,16 +74,17 @@ class BenchReport:
     exact_segment_evaluations: list[ExactEvaluation] = field(default_factory=list)  # one segment
     exact_memory: MemoryResult | None = None
     read_memory: ReadMemoryResult | None = None
+    commands: CommandTimes | None = None
 
 
 def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bool = False,
                   memory: bool = True, semopy_threads: str = "1", windows: bool = True,
-                  exact: bool = True, refit: bool = True, monitor: Monitor | None = None
-                  ) -> BenchReport:
+                  exact: bool = True, refit: bool = True, commands: bool = True,
+                  monitor: Monitor | None = None) -> BenchReport:
     """All measurements; `quick` uses the small cases only, fewer refit replicates and
     10,000-prompt memory runs; `windows` / `exact` choose the sections (window estimators
     against semopy, with the refit unless `refit` is False; the exact estimator against
-    statsmodels)."""
+    statsmodels; `commands` the start-up and screening of the command line)."""
     from lagwise.models.bench.memory import measure_memory, measure_read_memory
 
     repeats = (1 if quick else 3) if repeats is None else repeats
@@ -84,7 +92,7 @@ def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bo
     cases = (QUICK_SPEED_CASES if quick else SPEED_CASES) if windows else ()
     refit_cases = cases if refit else ()
     parts = (len(cases) + len(refit_cases) + 2 * int(windows and memory)
-             + (3 + int(memory) if exact else 0))
+             + (3 + int(memory) if exact else 0) + int(commands))
     done = 0
     for case in cases:
         checkpoint(monitor, done / parts, f"Timing {case.label}")
@@ -116,14 +124,20 @@ def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bo
             checkpoint(monitor, (done + 3) / parts, "Exact estimator: peak memory of a long diary")
             report.exact_memory = measure_memory(
                 QUICK_EXACT_MEMORY_CASE if quick else EXACT_MEMORY_CASE, estimator="exact")
+        done += 3 + int(memory)
+    if commands:
+        checkpoint(monitor, done / parts, "Command line: start-up and screening")
+        report.commands = measure_commands(QUICK_INSPECT_CASE if quick else INSPECT_CASE,
+                                           repeats)
     checkpoint(monitor, 1.0, "Done")
     return report
 
 
 __all__ = [
-    "BenchReport", "Case", "EXACT_CASE", "EXACT_MEMORY_CASE", "EXACT_SIZES", "ExactEvaluation",
+    "BenchReport", "Case", "CommandTimes", "INSPECT_CASE", "EXACT_CASE", "EXACT_MEMORY_CASE", "EXACT_SIZES", "ExactEvaluation",
     "ExactSpeedResult", "MEMORY_CASE", "MEMORY_TARGET_BYTES", "MemoryResult", "PeerTime",
     "REFIT_REPLICATES", "ReadMemoryResult", "RefitResult", "SPEED_CASES", "SPEED_TARGET", "SpeedResult",
     "bench_diary", "bench_model", "format_report", "growth_exponent", "measure_exact_evaluation",
-    "measure_exact_speed", "measure_memory", "measure_read_memory", "measure_refit", "measure_speed", "run_benchmark",
+    "measure_commands", "measure_exact_speed", "measure_memory", "measure_read_memory",
+    "measure_refit", "measure_speed", "run_benchmark",
 ]

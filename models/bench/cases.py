@@ -29,6 +29,10 @@ MEMORY_TARGET_BYTES = 1024 ** 3
 READ_TARGET_RATIO = 4.0       # reading a diary file: peak memory under 4x the file's size
 EXACT_SPEED_TARGET = 5.0      # statsmodels DynamicFactor takes at least 5x Lagwise exact
 EXACT_GROWTH_TARGET = 1.1     # exact gradient time grows at most as T^1.1
+HELP_TARGET = 0.5             # seconds, `lagwise --help` as a whole process
+INSPECT_DEMO_TARGET = 2.0     # seconds, `lagwise inspect` of the demo as a whole process
+SCREEN_DEMO_TARGET = 1.0      # seconds, reading and screening the demo inside the process
+INSPECT_LONG_TARGET = 30.0    # seconds, `lagwise inspect` of the long diary, whole process
 
 # semopy's ModelMeans works on the raw rows at every step (its gradient loops over the
 # parameters with row-sized products): one fit of the 6 x 5, T = 2,000 diary took about 2
@@ -68,6 +72,8 @@ EXACT_SIZES = (1_000, 10_000, 100_000)
 QUICK_EXACT_SIZES = (1_000, 10_000)
 EXACT_MEMORY_CASE = Case(3, 3, 100_000, prompts=8)
 QUICK_EXACT_MEMORY_CASE = Case(3, 3, 10_000, prompts=8)
+INSPECT_CASE = Case(3, 3, 1_000_000)          # 9 items, a million prompts
+QUICK_INSPECT_CASE = Case(3, 3, 100_000)
 
 
 def bench_model(states: int, items: int) -> tuple[ModelSpec, dict]:

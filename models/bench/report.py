@@ -6,13 +6,17 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from lagwise.models.bench.cases import (
-    EXACT_CASE, EXACT_GROWTH_TARGET, EXACT_SPEED_TARGET, MEMORY_TARGET_BYTES, READ_TARGET_RATIO,
+    EXACT_CASE, EXACT_GROWTH_TARGET, EXACT_SPEED_TARGET, HELP_TARGET, INSPECT_CASE,
+    INSPECT_DEMO_TARGET, INSPECT_LONG_TARGET, MEMORY_TARGET_BYTES, READ_TARGET_RATIO,
+    SCREEN_DEMO_TARGET,
     SPEED_TARGET, STATIONARY_TARGET,
 )
+from lagwise.models.bench.commandline import TESTS_CASE
 from lagwise.models.bench.exact import ExactEvaluation, growth_exponent
 
 if TYPE_CHECKING:
     from lagwise.models.bench import BenchReport
+    from lagwise.models.bench.commandline import CommandTimes
     from lagwise.models.bench.memory import MemoryResult, ReadMemoryResult
     from lagwise.models.bench.refit import RefitResult
     from lagwise.models.bench.windows import SpeedResult
@@ -40,6 +44,9 @@ def format_report(report: BenchReport) -> str:
             or report.exact_segment_evaluations or report.exact_memory):
         lines += ["", "Exact estimator (Kalman filter)"]
         _exact_lines(report, lines, verdicts)
+    if report.commands is not None:
+        lines += ["", "Command line"]
+        _command_lines(report.commands, report.repeats, lines, verdicts)
     lines += [""] + verdicts
     lines.append("The ratios compare runs in the same process on this machine; other work on "
                  "the machine moves them.")
@@ -180,3 +187,31 @@ def _evaluation_lines(evals: list[ExactEvaluation], layout: str, short: str, run
                         f"gradient time grows as T^{b:.2f} from T = {evals[-2].occasions:,} to "
                         f"{evals[-1].occasions:,} (target: linear, exponent at most "
                         f"{EXACT_GROWTH_TARGET:g})")
+
+
+def _command_lines(c: CommandTimes, repeats: int, lines: list[str], verdicts: list[str]) -> None:
+    """Start-up and screening times against their absolute targets."""
+    long = (f"lagwise inspect, {c.long_case.label} ({c.long_case.states * c.long_case.items} "
+            f"items, {c.long_answered:,} answered)")
+    rows = (("lagwise --help", c.help_seconds, HELP_TARGET),
+            ("lagwise inspect DEMO", c.inspect_demo_seconds, INSPECT_DEMO_TARGET),
+            ("reading and screening the demo, in process", c.screen_demo_seconds,
+             SCREEN_DEMO_TARGET),
+            (long, c.inspect_long_seconds, INSPECT_LONG_TARGET))
+    head = f"{'what':<78}{'seconds':>9}{'target':>9}"
+    lines += [f"Whole processes (python -m lagwise.desktop.cli), best of {repeats} after a "
+              "warm-up run; the long diary once, written as CSV first (not timed);",
+              "in process: best of the same runs, the screening's memory of series emptied "
+              "before each.", "", head, "-" * len(head)]
+    for what, seconds, target in rows:
+        if what == long and c.long_case != INSPECT_CASE:  # the target is for a million prompts
+            lines.append(f"{what:<78}{seconds:>9.3f}{'-':>9}")
+            continue
+        lines.append(f"{what:<78}{seconds:>9.3f}{target:>9g}")
+        verdicts.append(f"{_verdict(seconds < target)}  {what}: {seconds:.2f} s "
+                        f"(target under {target:g} s)")
+    lines += ["", f"ADF and KPSS of the 9 items of {TESTS_CASE.label} (20% missed), best of "
+              f"{repeats} interleaved runs, one BLAS thread:",
+              f"  Lagwise (lags searched up to 24) {c.tests_seconds:.3f} s; statsmodels adfuller "
+              f"(its default lag rule) + kpss {c.peer_tests_seconds:.3f} s: "
+              f"{c.tests_ratio:.1f}x (reference, no target)"]

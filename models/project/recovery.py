@@ -14,6 +14,7 @@ import sys
 from dataclasses import dataclass, replace
 from pathlib import Path
 
+from lagwise.models.atomic import remove_stale_temporaries
 from lagwise.models.errors import ProjectError
 from lagwise.models.project.document import SUFFIX, Project, reason
 from lagwise.models.project.reader import read_project
@@ -92,11 +93,14 @@ def find_recovery(project_file: str | Path | None, base: str | Path | None = Non
 def find_recoveries(base: str | Path | None = None) -> list[Recovery]:
     """Every readable autosave in the recovery folder, newest first (offer them at start-up).
 
-    Unreadable files are left alone and not listed.
+    Unreadable files are left alone and not listed; temporaries of autosaves killed while
+    being written (models.atomic) are removed.
     """
     folder = recovery_dir(base)
     if not folder.is_dir():
         return []
+    for temporary in folder.glob(f".*{SUFFIX}.*.tmp"):  # autosaves killed while writing
+        remove_stale_temporaries(folder / temporary.name[1:].rsplit(".", 2)[0])
     found = [_recovery(path) for path in sorted(folder.glob(f"*{SUFFIX}"))]
     return sorted((r for r in found if r is not None), key=lambda r: r.modified, reverse=True)
 

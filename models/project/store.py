@@ -17,10 +17,10 @@ from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
-from lagwise.models.atomic import write_atomic
+from lagwise.models.atomic import failure_reason, write_atomic
 from lagwise.models.errors import ProjectError
 from lagwise.models.project.document import (
-    FORMAT, FORMAT_VERSION, Project, ProjectData, lagwise_version, reason, utc_now,
+    FORMAT, FORMAT_VERSION, Project, ProjectData, lagwise_version, utc_now,
 )
 from lagwise.models.project.reader import project_from_bytes
 from lagwise.models.project.table import table_to_json
@@ -62,7 +62,7 @@ def write_project(project: Project, target: Path, recovery_of: Path | None) -> P
         write_atomic(target, data)
     except OSError as error:
         kept = "the previous file is unchanged" if target.exists() else "nothing was written"
-        raise ProjectError(f"{target}: could not save the project ({reason(error)}); "
+        raise ProjectError(f"{target}: could not save the project ({failure_reason(error)}); "
                            f"{kept}") from error
     return saved
 
