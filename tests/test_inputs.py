@@ -131,6 +131,9 @@ def test_max_gap_of_inspect_runs_or_is_refused(timed, capsys, number):
 
 
 def test_the_same_ranges_hold_for_project_files_and_settings():
+    assert FitOptions(depth=np.int64(2)).depth == 2  # numbers from numpy are numbers too
+    with pytest.raises(SpecError, match="window depth"):
+        FitOptions(depth=True)
     assert FitOptions.from_json({**FitOptions().to_json(), "max_iter": 1}).max_iter == 1
     for key, value in (("max_iter", 0), ("depth", 51)):
         with pytest.raises(FieldError):
@@ -249,6 +252,19 @@ def test_day_first_dates_up_to_the_12th_are_refused_then_read_as_told(tmp_path, 
     assert diary.day_labels[1] == "2026-03-02"  # the 2nd of March, not the 3rd of February
 
 
+def test_a_day_column_of_ambiguous_dates_is_refused_then_read_as_told():
+    frame = pd.DataFrame({"day": ["02/01/2026", "02/01/2026", "01/02/2026", "01/02/2026"],
+                          "prompt": [1, 2, 1, 2], "x": [1.0, 2.0, 3.0, 4.0], "y": 1.0})
+    grid = TimeSettings(mode="grid", day="day", prompt="prompt")
+    with pytest.raises(DataError, match="column 'day'.*day or the month first"):
+        diary_from_frame(frame, ["x", "y"], grid)
+    told = diary_from_frame(frame, ["x", "y"], TimeSettings(
+        mode="grid", day="day", prompt="prompt", date_format="%d/%m/%Y"))
+    # read day first, 2 January (x = 1, 2) comes before 1 February (x = 3, 4)
+    assert told.day_labels == ("2026-01-02", "2026-02-01")
+    assert told.values[:, 0].tolist() == [1.0, 2.0, 3.0, 4.0]
+
+
 def test_date_format_is_kept_and_old_settings_still_read():
     settings_ = TimeSettings(mode="timestamp", time="time", date_format="%d/%m/%Y %H:%M")
     assert TimeSettings.from_json(settings_.to_json()) == settings_
@@ -302,11 +318,11 @@ def test_item_names_with_commas_come_from_a_file(tmp_path, capsys):
         cli_fit.parse_states([f"t=@{tmp_path / 'none.txt'}"])
 
 
-def test_fit_prints_the_diary_notes(tmp_path, capsys):
-    table = pd.read_csv(DEMO)
-    table["flat"] = 3  # the same answer every time: the diary notes it
-    path = tmp_path / "constant.csv"
+def test_fit_prints_the_diary_notes(timed, tmp_path, capsys):
+    table = pd.read_csv(timed)
+    table.loc[5, "time"] = table.loc[4, "time"]  # two prompts at one time: the diary notes it
+    path = tmp_path / "same_time.csv"
     table.to_csv(path, index=False)
-    main(["fit", str(path), "--day", "day", "--prompt", "prompt", *STATES])
+    assert main(["fit", str(path), "--time", "time", *STATES]) == 0
     err = capsys.readouterr().err
-    assert "lagwise: note: item 'flat' has the same answer (3)" in err
+    assert "lagwise: note: 1 prompts have the same time as the prompt before them" in err
