@@ -40,7 +40,7 @@ SUPPORTED_SUFFIXES = TEXT_SUFFIXES + EXCEL_SUFFIXES + SPSS_SUFFIXES + STATA_SUFF
 DELIMITERS = ("\t", ";", "|", ",")  # preference order when several split the file equally well
 DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", "|": "bar"}
 SNIFF_LINES = 200
-CHUNK_ROWS = 250_000  # rows pandas reads at a time
+CHUNK_ROWS = 100_000  # rows pandas reads at a time
 
 # Cell texts read as "no answer" (compared after stripping spaces, case-insensitive).
 MISSING_TEXTS = frozenset({"", "na", "n/a", "nan", "null", "none", "#n/a", "."})
