@@ -213,6 +213,26 @@ def test_only_the_recipe_columns_are_read(timed):
     np.testing.assert_array_equal(table["tense"].to_numpy(), full["tense"].to_numpy())
 
 
+def test_reading_in_chunks_keeps_cells_and_rows(tmp_path, monkeypatch):
+    from lagwise.models import readers
+
+    monkeypatch.setattr(readers, "CHUNK_ROWS", 3)  # seven rows: three chunks
+    stamps = [f"2026-03-0{d} 0{h}:00" for d in (1, 2) for h in (8, 9, 7)] + ["2026-03-03 08:00"]
+    path = tmp_path / "chunks.csv"
+    pd.DataFrame({"time": stamps, "x": np.arange(7) / 4, "note": list("abcdefg")}).to_csv(
+        path, index=False)
+    table = read_table(path)
+    plain = pd.read_csv(path)  # pandas reading the file in one go
+    np.testing.assert_array_equal(table["x"].to_numpy(), plain["x"].to_numpy())
+    assert table["note"].tolist() == plain["note"].tolist()
+    assert table["time"].tolist() == pd.to_datetime(plain["time"]).tolist()
+    assert table.index.tolist() == list(range(2, 9))  # file rows, the header being row 1
+    stamps[5] = "2026-03-02 25:00"  # an impossible hour in the second chunk
+    pd.DataFrame({"time": stamps, "x": 1.0, "y": 2.0}).to_csv(path, index=False)
+    with pytest.raises(DataError, match="row 7 .*'2026-03-02 25:00' is not a date and time"):
+        DiaryRecipe.of(["x", "y"], TimeSettings(mode="timestamp", time="time")).read(path)
+
+
 # ------------------------------------------------------------------------ time stamps
 
 def test_clocks_going_back_keep_utc_order():
@@ -250,6 +270,11 @@ def test_day_first_dates_up_to_the_12th_are_refused_then_read_as_told(tmp_path, 
     diary = diary_from_frame(frame, ["x", "y"], TimeSettings(
         mode="timestamp", time="time", date_format="%d/%m/%Y %H:%M"))
     assert diary.day_labels[1] == "2026-03-02"  # the 2nd of March, not the 3rd of February
+    project = tmp_path / "dayfirst.lagwise"  # the format is kept with a saved project
+    assert main(["fit", str(path), "--time", "time", "--date-format", "%d/%m/%Y %H:%M",
+                 "--state", "s=x,y", "--save", str(project)]) in (0, 3)
+    assert main(["fit", str(project)]) in (0, 3)
+    assert "day or the month" not in capsys.readouterr().err
 
 
 def test_a_day_column_of_ambiguous_dates_is_refused_then_read_as_told():
