@@ -207,8 +207,8 @@ def numeric_cells(series: pd.Series,
 
 
 def time_cells(series: pd.Series, date_format: str | None = None
-               ) -> tuple[np.ndarray, np.ndarray, str]:
-    """(times, bad, note): a column as datetime64[ns] wall-clock times (NaT = empty).
+               ) -> tuple[np.ndarray, np.ndarray]:
+    """(times, bad): a column as datetime64[ns] wall-clock times (NaT = empty).
 
     With `date_format` (a strftime format) text is read with that format only. Otherwise text
     is tried as ISO 8601 and in the formats guessed from its first cells (month-first and
@@ -223,7 +223,7 @@ def time_cells(series: pd.Series, date_format: str | None = None
         if stamps.tz is not None:
             stamps = stamps.tz_localize(None)
         out, outside = _in_nanoseconds(stamps.to_numpy())
-        return out, outside, ""
+        return out, outside
     if _all_text(series):
         return _text_times(series, date_format)
     cells = series.to_numpy(dtype=object)
@@ -242,17 +242,16 @@ def time_cells(series: pd.Series, date_format: str | None = None
         else:
             texts.append(None)
             bad[i] = True
-    parsed, note = _parse_texts(pd.Series(texts, dtype=object), date_format)
+    parsed = _parse_texts(pd.Series(texts, dtype=object), date_format)
     micro = parsed.to_numpy().astype("datetime64[us]")
     for i, stamp in fixed.items():
         micro[i] = stamp.to_datetime64()
     out, outside = _in_nanoseconds(micro)
     bad |= outside | (np.array([t is not None for t in texts]) & np.isnat(out))
-    return out, bad, note
+    return out, bad
 
 
-def _text_times(series: pd.Series, date_format: str | None
-                ) -> tuple[np.ndarray, np.ndarray, str]:
+def _text_times(series: pd.Series, date_format: str | None) -> tuple[np.ndarray, np.ndarray]:
     """`time_cells` of a column holding text only, with pandas' string methods."""
     stripped = series.str.strip()
     missing = missing_cells(series)
@@ -260,10 +259,10 @@ def _text_times(series: pd.Series, date_format: str | None
                       | ~stripped.str.contains(r"\d").fillna(False).to_numpy(bool))
     texts = stripped.str.replace(_UTC_OFFSET.pattern, r"\1", regex=True).where(~(missing | bad))
     del stripped
-    parsed, note = _parse_texts(texts, date_format)
+    parsed = _parse_texts(texts, date_format)
     out, outside = _in_nanoseconds(parsed.to_numpy().astype("datetime64[us]"))
     bad |= outside | (texts.notna().to_numpy() & np.isnat(out))
-    return out, bad, note
+    return out, bad
 
 
 def missing_cells(series: pd.Series) -> np.ndarray:
@@ -530,19 +529,19 @@ def _could_be_time(cell: object) -> bool:
             and _NUMBER.fullmatch(cell.strip()) is None)
 
 
-def _parse_texts(texts: pd.Series, date_format: str | None) -> tuple[pd.Series, str]:
+def _parse_texts(texts: pd.Series, date_format: str | None) -> pd.Series:
     """Parse date/time texts with `date_format`, or with the reading that fails least (see
     `time_cells`)."""
     present = texts.dropna()
     empty = pd.Series(pd.NaT, index=texts.index, dtype="datetime64[ns]")
     if present.empty:
-        return empty, ""
+        return empty
     if date_format:
         fmt = date_format.replace("%z", "").replace("%Z", "").strip()
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
-                return pd.to_datetime(texts, format=fmt, errors="coerce"), ""
+                return pd.to_datetime(texts, format=fmt, errors="coerce")
         except (ValueError, TypeError, OverflowError) as error:
             raise DataError(f"the date format {date_format!r} cannot be used ({error})") from None
     formats: list[str] = ["ISO8601"]
@@ -564,7 +563,7 @@ def _parse_texts(texts: pd.Series, date_format: str | None) -> tuple[pd.Series, 
         failures = int(parsed[present.index].isna().sum())
         readings.append((failures, fmt, parsed))
     if not readings:
-        return empty, ""
+        return empty
     fewest = min(r[0] for r in readings)
     best = [r for r in readings if r[0] == fewest]
     distinct = [r for r in best if not r[2].equals(best[0][2])]
@@ -572,7 +571,7 @@ def _parse_texts(texts: pd.Series, date_format: str | None) -> tuple[pd.Series, 
         shown = " or ".join(repr(f) for f in dict.fromkeys(r[1] for r in best if r[1] != "ISO8601"))
         raise DataError(f"dates such as {show_cell(present.iloc[0])} could be read with the day "
                         f"or the month first; give the date format ({shown})")
-    return best[0][2], ""
+    return best[0][2]
 
 
 def _year_day_month(fmt: str) -> bool:

@@ -165,7 +165,7 @@ def _item_notes(names: list[str], values: np.ndarray, label: str) -> list[str]:
 def _place_grid(frame, values, time: TimeSettings, label, prompts_per_day):
     if not (time.day and time.prompt):
         raise DataError("a grid of prompts needs both a day column and a prompt-number column")
-    day_of_row, day_labels, notes = _days(frame, time.day, label, time.date_format)
+    day_of_row, day_labels = _days(frame, time.day, label, time.date_format)
     prompt_of_row = _prompt_numbers(frame, time.prompt, label)
     first = 0 if prompt_of_row.min() == 0 else 1
     last = int(prompt_of_row.max())
@@ -193,17 +193,17 @@ def _place_grid(frame, values, time: TimeSettings, label, prompts_per_day):
     prompt = np.tile(np.arange(first, last + 1, dtype=float), n_days)
     stamps = None
     if time.time:
-        row_times, time_notes = _times(frame, time.time, label, True, time.date_format)
+        row_times = _times(frame, time.time, label, True, time.date_format)
         stamps = np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
         stamps[slot] = row_times
-        notes += time_notes
-    return grid_values, segment, day, day_labels, prompt, stamps, notes
+    return grid_values, segment, day, day_labels, prompt, stamps, []
 
 
 def _place_by_time(frame, values, time: TimeSettings, label):
     if not time.time:
         raise DataError("placing prompts by time needs a time column")
-    row_times, notes = _times(frame, time.time, label, False, time.date_format)
+    row_times = _times(frame, time.time, label, False, time.date_format)
+    notes = []
     instants = _utc(frame, time.time, row_times, label)
     order = np.argsort(instants, kind="stable")
     stamps, instants = row_times[order], instants[order]
@@ -240,26 +240,26 @@ def _place_in_order(values):
 # ---------------------------------------------------------------------------- time columns
 
 def _days(frame: pd.DataFrame, column: str, label: str, date_format: str | None = None
-          ) -> tuple[np.ndarray, list[str], list[str]]:
-    """Day index per row (0 = first day after sorting), day labels, notes."""
+          ) -> tuple[np.ndarray, list[str]]:
+    """Day index per row (0 = first day after sorting) and day labels."""
     series = frame[column]
     _refuse_empty(frame, series, column, label, "no day")
     numbers, bad = numeric_cells(series)
     if not bad.any():
         unique, index = np.unique(numbers, return_inverse=True)
-        return index, [_number_label(u) for u in unique], []
+        return index, [_number_label(u) for u in unique]
     if date_format or looks_like_dates(series):
-        stamps, bad, note = _read_times(series, column, label, date_format)
+        stamps, bad = _read_times(series, column, label, date_format)
         if bad.any():
             pos = int(np.flatnonzero(bad)[0])
             raise DataError(f"{label}, column '{column}', {where(frame, pos)}: "
                             f"{show_cell(series.iloc[pos])} is not a date")
         unique, index = np.unique(stamps.astype("datetime64[D]"), return_inverse=True)
-        return index, [str(u) for u in unique], [f"column '{column}': {note}"] if note else []
+        return index, [str(u) for u in unique]
     texts = [str(cell).strip() for cell in series.to_numpy(dtype=object)]
     labels = list(dict.fromkeys(texts))
     position = {text: i for i, text in enumerate(labels)}
-    return np.array([position[t] for t in texts], dtype=np.int64), labels, []
+    return np.array([position[t] for t in texts], dtype=np.int64), labels
 
 
 def _prompt_numbers(frame: pd.DataFrame, column: str, label: str) -> np.ndarray:
@@ -279,13 +279,13 @@ def _times(frame: pd.DataFrame, column: str, label: str, allow_empty: bool,
     series = frame[column]
     if not allow_empty:
         _refuse_empty(frame, series, column, label, "no time")
-    stamps, bad, note = _read_times(series, column, label, date_format)
+    stamps, bad = _read_times(series, column, label, date_format)
     if bad.any():
         pos = int(np.flatnonzero(bad)[0])
         shape = f" in the format {date_format!r}" if date_format else ""
         raise DataError(f"{label}, column '{column}', {where(frame, pos)}: "
                         f"{show_cell(series.iloc[pos])} is not a date and time{shape}")
-    return stamps, [f"column '{column}': {note}"] if note else []
+    return stamps
 
 
 def _read_times(series: pd.Series, column: str, label: str, date_format: str | None):
