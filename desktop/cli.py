@@ -22,6 +22,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from lagwise.models.errors import LagwiseError
+from lagwise.models.names import shown
 
 
 @dataclass(frozen=True)
@@ -132,7 +133,8 @@ def _join_code_lists(argv: list[str]) -> list[str]:
 
 
 def _one_line(error: BaseException) -> str:
-    return " ".join(str(error).split()) or type(error).__name__
+    """The message on one line, any control character in it shown as its code."""
+    return shown(" ".join(str(error).split()), limit=100_000) or type(error).__name__
 
 
 def _version() -> str:

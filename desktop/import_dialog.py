@@ -252,6 +252,7 @@ class ImportDialog(QDialog):
         self.error_label = QLabel("")
         self.error_label.setObjectName("importError")
         self.error_label.setWordWrap(True)
+        self.error_label.setTextFormat(Qt.TextFormat.PlainText)  # it may quote column names
         self.error_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.error_label.setStyleSheet(f"color: {style.WARNING}; font-weight: bold;")
         preview_layout.addWidget(self.error_label)
@@ -372,7 +373,7 @@ class ImportDialog(QDialog):
             f"{counted(answered, 'prompt', True)} answered ({occasions - answered} missed) · "
             f"{counted(windows, 'lag window', True)} of two consecutive prompts "
             f"({summary['windows']['1']} complete)<br>Prompts are placed by {mode}.")
-        self.notes_label.setText("<br>".join(f"Note: {w}" for w in summary["warnings"]))
+        self.notes_label.setText(style.plain("\n".join(f"Note: {w}" for w in summary["warnings"])))
         self.error_label.setText("")
         self._set_ok(True)
         self.previewChanged.emit()

@@ -14,6 +14,7 @@ splitter layout are remembered between runs (QSettings).
 
 from __future__ import annotations
 
+from html import escape
 from pathlib import Path
 
 import shiboken6
@@ -336,7 +337,7 @@ class MainWindow(QMainWindow):
         try:
             load_demo(self.session)
         except LagwiseError as exc:
-            QMessageBox.warning(self, "Could not open the demo", str(exc))
+            QMessageBox.warning(self, "Could not open the demo", style.plain(str(exc)))
             return
         self.files.discard_recoveries()
         self.statusBar().showMessage("Opened the demo diary (an invented person).", 8000)
@@ -384,7 +385,7 @@ class MainWindow(QMainWindow):
         try:
             snapshot = self.session.snapshot()
         except LagwiseError as exc:  # a preparation step that does not fit the diary
-            QMessageBox.warning(self, title, str(exc))
+            QMessageBox.warning(self, title, style.plain(str(exc)))
             return None
         if snapshot is None:
             QMessageBox.information(self, "Nothing to estimate",
@@ -392,7 +393,7 @@ class MainWindow(QMainWindow):
             return None
         _, problem = self.session.validation()
         if problem:
-            QMessageBox.warning(self, title, problem)
+            QMessageBox.warning(self, title, style.plain(problem))
             return None
         return snapshot
 
@@ -456,6 +457,7 @@ class MainWindow(QMainWindow):
                           QMessageBox.StandardButton.Ok, self)
         if details:
             box.setDetailedText(details)
+        box.setTextFormat(Qt.TextFormat.PlainText)  # the message may quote the user's names
         box.setObjectName("estimationErrorBox")
         box.open()
 
@@ -495,7 +497,7 @@ class MainWindow(QMainWindow):
             parts.append(f"<span style='color:{style.WARNING}'><b>The model or data changed "
                          f"since this estimate.</b> Press Estimate (Ctrl+E) to update.</span>")
         verdict = ("the estimation converged" if result.converged else
-                   f"<b>the estimation did not converge</b> ({result.message})")
+                   f"<b>the estimation did not converge</b> ({escape(result.message)})")
         parts.append(f"Estimator: {result.estimator}; {result.data_used} from "
                      f"{result.n_occasions} prompts; {verdict}.")
         self.result_note.setText(" ".join(parts))
@@ -533,7 +535,7 @@ class MainWindow(QMainWindow):
         try:
             spec = adopt(self.session.spec, kind, from_, to)
         except (LagwiseError, ValueError) as exc:
-            QMessageBox.warning(self, "The path cannot be adopted", str(exc))
+            QMessageBox.warning(self, "The path cannot be adopted", style.plain(str(exc)))
             return
         self.session.edit_spec(spec, text)
         self.statusBar().showMessage(f"{text}. Press Estimate to fit the extended model "

@@ -7,6 +7,7 @@ else is quiet greys so the effects stand out.
 
 from __future__ import annotations
 
+from PySide6 import QtGui
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor, QFont, QPalette, QPen
 from PySide6.QtWidgets import QApplication
@@ -82,3 +83,10 @@ def heading_font(base: QFont, step: float = 3.0) -> QFont:
     font.setPointSizeF(base.pointSizeF() + step)
     font.setBold(True)
     return font
+
+
+def plain(text: str) -> str:
+    """`text` for a place where Qt reads markup-looking text as rich text (tooltips, message
+    boxes, labels in the automatic format): converted so it shows as written, markup and all
+    (unchanged when Qt would show it as plain text anyway)."""
+    return QtGui.Qt.convertFromPlainText(text) if QtGui.Qt.mightBeRichText(text) else text

@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from lagwise.models.itemcheck import answered_moments
 from lagwise.models.diary import Diary
 from lagwise.models.errors import EstimationError
 from lagwise.models.fitindices import fit_indices
@@ -52,7 +53,7 @@ class ExactObjective:
         self.values, self.segment = values, segment
         self.plan = filter_plan(values, segment)
         self.n_rows = int((~np.isnan(values)).any(axis=1).sum())
-        self.item_var = np.nanvar(values, axis=0)
+        self.item_var = answered_moments(values)[1]
         self.layout = ParameterLayout(spec, self.item_var)
         self.autocorrelated = np.array([it in spec.unique_autocorrelation for it in spec.items])
         self.start_loglik: float | None = None
@@ -64,6 +65,15 @@ class ExactObjective:
 
     def matrices(self, theta: np.ndarray) -> Matrices:
         return self.layout.unpack(theta)
+
+    @property
+    def item_values(self) -> np.ndarray:
+        """The answers, prompts as rows (with the nights' blank prompts when days are joined)."""
+        return self.values
+
+    def answers_per_item(self) -> np.ndarray:
+        """How often the likelihood counts an answer of each item."""
+        return (~np.isnan(self.values)).sum(axis=0)
 
     def _args(self, theta: np.ndarray) -> tuple:
         m = self.layout.unpack(theta)

@@ -4,9 +4,10 @@
   NaN and Infinity, numbers beyond 64-bit integers or finite floats, a key twice in one
   object, lists and objects nested more than MAX_DEPTH deep, texts over MAX_TEXT and keys
   over MAX_NAME characters.
-- Readers check one value and return it as Python wants it: `obj`, `array`, `text`,
-  `integer`, `number`, `number_or_nan`, `boolean`, `choice`, `tuple_of`, `mapping`,
-  `matrix`. Each takes the value and `where`, the value's path in the document
+- Readers check one value and return it as Python wants it: `obj`, `array`, `text` (no
+  control character but line breaks and tabs: models.names), `name` (none at all),
+  `integer`, `number`, `number_or_nan`, `boolean`, `choice`, `tuple_of`, `mapping` (keys
+  as names), `matrix`. Each takes the value and `where`, the value's path in the document
   ("results.parameters[3].se"), and raises FieldError(where, problem) for anything else.
 - `field` and `read_fields` describe an object declaratively, one line per field (key,
   reader, default, reader options); the values' `from_json` methods (ModelSpec, FitOptions,
@@ -22,6 +23,7 @@ from typing import Any, Callable, Iterable, Mapping
 
 import numpy as np
 
+from lagwise.models import names
 from lagwise.models.errors import FieldError
 
 # Bounds (a document beyond them is refused).
@@ -71,7 +73,7 @@ def _unique_keys(pairs: list[tuple[str, Any]]) -> dict:
     out = {}
     for key, value in pairs:
         if key in out:
-            raise FieldError("", f"names the field '{key[:60]}' twice in one object")
+            raise FieldError("", f"names the field '{names.shown(key)}' twice in one object")
         out[key] = value
     return out
 
@@ -176,7 +178,7 @@ def obj(value: Any, where: str, required: Iterable[str] = (), optional: Iterable
         known = set(required) | set(optional)
         unknown = [key for key in value if key not in known]
         if unknown:
-            raise FieldError(where, f"has an unknown field '{unknown[0][:60]}'")
+            raise FieldError(where, f"has an unknown field '{names.shown(unknown[0])}'")
     return value
 
 
@@ -197,21 +199,37 @@ def tuple_of(value: Any, where: str, item: Reader, limit: int = MAX_LIST) -> tup
 
 
 def mapping(value: Any, where: str, item: Reader | None = None) -> dict:
-    """A JSON object of any keys, each value read with `item` (None: kept as it is)."""
+    """A JSON object of any keys (names: no control character), each value read with `item`
+    (None: kept as it is)."""
     doc = obj(value, where, closed=False)
+    for key in doc:
+        refused = names.problem(key)
+        if refused:
+            raise FieldError(where, f"has a field name that {refused}")
     if item is None:
         return dict(doc)
     return {key: item(v, at(where, key)) for key, v in doc.items()}
 
 
-def text(value: Any, where: str, limit: int = MAX_NAME, null: bool = False) -> str | None:
+def text(value: Any, where: str, limit: int = MAX_NAME, null: bool = False,
+         allowed: str = names.LINE_BREAKS) -> str | None:
+    """A text of at most `limit` characters with no control character but those in
+    `allowed` (models.names)."""
     if value is None and null:
         return None
     if not isinstance(value, str):
         raise FieldError(where, f"should be text, not {kind(value)}")
     if len(value) > limit:
         raise FieldError(where, f"is longer than {limit} characters")
+    refused = names.problem(value, allowed)
+    if refused:
+        raise FieldError(where, refused)
     return value
+
+
+def name(value: Any, where: str, null: bool = False) -> str | None:
+    """A name (item, state, column): text on one line, no control character at all."""
+    return text(value, where, MAX_NAME, null, allowed="")
 
 
 def integer(value: Any, where: str, low: int = -MAX_INTEGER, high: int = MAX_INTEGER,

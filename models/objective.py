@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from lagwise.models import flags as warn
+from lagwise.models.itemcheck import answered_moments
 from lagwise.models.errors import EstimationError, SpecError
 from lagwise.models.fitindices import fit_indices, scaled_fit
 from lagwise.models.flags import Flag
@@ -60,7 +61,7 @@ class WindowObjective:
         self.joined = windows.days_joined or np.unique(self.segment).size < MIN_CLUSTERS
         self.order = np.argsort(np.asarray(windows.occasion)[keep][self.data.kept], kind="stable")
         p = len(spec.items)
-        self.item_var = np.nanvar(rows[:, :p], axis=0) if rows.size else np.ones(p)
+        self.item_var = answered_moments(rows[:, :p])[1] if rows.size else np.ones(p)
         self.layout = ParameterLayout(spec, self.item_var, self.free_first_copies)
         self._jacobian: tuple[bytes, Implied, Projection] | None = None
         self._scores: tuple[bytes, WindowScores, np.ndarray | None] | None = None
@@ -74,6 +75,16 @@ class WindowObjective:
     @property
     def n_rows(self) -> int:
         return self.data.n_rows
+
+    @property
+    def item_values(self) -> np.ndarray:
+        """The newest prompt of each window row (items as columns)."""
+        return self.rows[:, :len(self.spec.items)]
+
+    def answers_per_item(self) -> np.ndarray:
+        """How often the likelihood counts an answer of each item (over all window copies)."""
+        per_column = self.data.counts @ self.data.observed
+        return per_column.reshape(self.depth + 1, -1).sum(axis=0)
 
     # ----- the likelihood ---------------------------------------------------------------
     def matrices(self, theta: np.ndarray) -> Matrices:
@@ -135,9 +146,12 @@ class WindowObjective:
     def preflight(self) -> list[Flag]:
         """Refuse what cannot be estimated; warn when the windows are few."""
         n, n_free, width = self.n_rows, self.layout.n_free, self.data.width
-        if n < 2:
-            raise EstimationError("Too few usable lag windows to estimate the model "
-                                  f"({n}; check the time settings and missing prompts).")
+        complete = int(self.data.counts[self.data.observed.all(axis=1)].sum())
+        if complete <= width:   # fewer: the data's window covariance is singular
+            raise EstimationError(
+                f"Too few complete lag windows ({complete}) for {len(self.spec.items)} items in "
+                f"windows of {self.depth + 1} prompts: need at least {width + 1} (check the time "
+                "settings and missed prompts, or use fewer items).")
         moments = width * (width + 3) // 2
         if n_free > moments:
             raise SpecError(f"The model has {n_free} free parameters but the lag windows give only "

@@ -18,7 +18,6 @@ from typing import Protocol
 import numpy as np
 from scipy.optimize import minimize
 
-from lagwise.models.errors import EstimationError
 from lagwise.models.implied import NotAdmissible
 from lagwise.models.parameters import ParameterLayout
 from lagwise.models.progress import Monitor, checkpoint
@@ -69,9 +68,8 @@ def maximise(objective: Likelihood, theta0: np.ndarray, sizes: np.ndarray, max_i
     theta = res.x * sizes
     try:
         objective.loglik(theta)
-    except NotAdmissible:
-        raise EstimationError("The optimiser ended outside the admissible region; try fewer free "
-                              "paths or the other estimator.") from None
+    except NotAdmissible:   # its likely cause is named by models.conditioning
+        raise NotAdmissible("the optimiser ended outside the admissible region") from None
     ok = bool(res.success) or "ABNORMAL" in str(res.message).upper()
     return theta, ok, str(res.message), int(res.nit)
 

@@ -16,7 +16,9 @@ from pathlib import Path
 
 import pandas as pd
 
+from lagwise.models import names
 from lagwise.models.diary import Diary, TimeSettings
+from lagwise.models.errors import DataError
 from lagwise.models.readers import read_table
 from lagwise.models.timegrid import diary_from_frame
 
@@ -36,9 +38,15 @@ class DiaryRecipe:
                    tuple(missing_codes), prompts_per_day)  # type: ignore[arg-type]
 
     def diary(self, table: pd.DataFrame, source: str = "") -> Diary:
-        """The diary of `table`; DataError naming the column and row when it cannot be one."""
-        return diary_from_frame(table, self.items, self.time, self.missing_codes, source=source,
-                                prompts_per_day=self.prompts_per_day)
+        """The diary of `table`; DataError naming the column and row when it cannot be one, or
+        an item column whose name holds a control character (models.names)."""
+        diary = diary_from_frame(table, self.items, self.time, self.missing_codes, source=source,
+                                 prompts_per_day=self.prompts_per_day)
+        for item in diary.items:
+            refused = names.problem(str(item))
+            if refused:
+                raise DataError(f"The name of an item column {refused}.")
+        return diary
 
     def columns(self) -> tuple[str, ...] | None:
         """The file columns the recipe uses (None: every column, when the items are not named)."""

@@ -9,6 +9,7 @@ from lagwise.models.lag2check import Lag2Check
 from lagwise.models.numbers import fmt
 from lagwise.models.responses import Responses
 from lagwise.models.results import FitResult
+from lagwise.models.texttable import table
 
 def format_result(result: FitResult) -> str:
     lines = []
@@ -26,12 +27,11 @@ def format_result(result: FitResult) -> str:
             continue
         lines.append("")
         lines.append(kind.title)
-        lines.append(f"  {'from':<14}{'to':<14}{'estimate':>10}{'SE':>9}{'p':>8}{'std':>9}   95% interval")
-        for p in rows:
-            ci = "" if p.ci is None else f"[{fmt(p.ci[0])}, {fmt(p.ci[1])}]"
-            mark = "" if p.free else "  (fixed)"
-            lines.append(f"  {p.from_:<14.14}{p.to:<14.14}{fmt(p.estimate):>10}{fmt(p.se):>9}"
-                         f"{fmt(p.p, 'p'):>8}{fmt(p.standardized):>9}   {ci}{mark}")
+        cells = [[p.from_, p.to, fmt(p.estimate), fmt(p.se), fmt(p.p, 'p'), fmt(p.standardized),
+                  ("" if p.ci is None else f"[{fmt(p.ci[0])}, {fmt(p.ci[1])}]")
+                  + ("" if p.free else "  (fixed)")] for p in rows]
+        lines += table(["from", "to", "estimate", "SE", "p", "std", " 95% interval"], cells,
+                       "<<>>>><")
     f = result.fit
     lines.append("")
     label = "exact likelihood of the series" if f.exact else "window pseudo-likelihood"
@@ -70,12 +70,12 @@ def format_lag2(check: Lag2Check) -> str:
     lines = ["Is lag 1 enough? (lag-2 check on depth-2 windows)",
              f"  {check.verdict}",
              f"  likelihood-ratio test: chi-square {fmt(check.lr_chi2, digits=2)} on {check.lr_df} df, "
-             f"p {fmt(check.lr_p, 'p')}",
-             f"  {'test':<26}{'from':<14}{'to':<14}{'score':>8}{'p':>8}{'Holm p':>8}{'EPC':>9}{'std EPC':>9}"]
-    for t in sorted(check.paths, key=lambda t: -t.score):
-        label = "lag-2 path" if t.kind == Kind.LAG2 else "unique autocorrelation"
-        lines.append(f"  {label:<26}{t.from_:<14.14}{t.to:<14.14}{fmt(t.score, digits=2):>8}{fmt(t.p, 'p'):>8}"
-                     f"{fmt(t.p_holm, 'p'):>8}{fmt(t.epc):>9}{fmt(t.std_epc):>9}")
+             f"p {fmt(check.lr_p, 'p')}"]
+    cells = [["lag-2 path" if t.kind == Kind.LAG2 else "unique autocorrelation", t.from_, t.to,
+              fmt(t.score, digits=2), fmt(t.p, 'p'), fmt(t.p_holm, 'p'), fmt(t.epc),
+              fmt(t.std_epc)] for t in sorted(check.paths, key=lambda t: -t.score)]
+    lines += table(["test", "from", "to", "score", "p", "Holm p", "EPC", "std EPC"], cells,
+                   "<<<>>>>>")
     lines += [f"  * {c}" for c in check.cautions]
     return "\n".join(lines)
 
@@ -85,13 +85,12 @@ def format_bootstrap(boot: Bootstrap) -> str:
     how = ("whole days" if boot.block_length is None else
            f"stationary blocks of {fmt(boot.block_length, digits=1)} prompts on average")
     lines = [f"Stability of the lagged paths (bootstrap: {boot.replicates} replicates resampling "
-             f"{how}, seed {boot.seed})",
-             f"  {'path':<24}{'from':<14}{'to':<14}{'estimate':>10}{'same sign':>11}   "
-             f"95% interval (percentile)   excludes 0"]
-    for s in boot.stability():
-        interval = f"[{fmt(s.lower)}, {fmt(s.upper)}]"
-        lines.append(f"  {Kind(s.kind).label:<24.24}{s.from_:<14.14}{s.to:<14.14}{fmt(s.estimate):>10}"
-                     f"{fmt(s.same_sign):>11}   {interval:<28}{'yes' if s.excludes_zero else 'no'}")
+             f"{how}, seed {boot.seed})"]
+    cells = [[Kind(s.kind).label, s.from_, s.to, fmt(s.estimate), fmt(s.same_sign),
+              f" [{fmt(s.lower)}, {fmt(s.upper)}]", "yes" if s.excludes_zero else "no"]
+             for s in boot.stability()]
+    lines += table(["path", "from", "to", "estimate", "same sign", " 95% interval (percentile)",
+                    "excludes 0"], cells, "<<<>><<")
     if boot.warning:
         lines.append(f"  ! {boot.warning}")
     lines.append("  * Same sign: the share of replicates whose estimate has the sign of this "
@@ -108,19 +107,19 @@ def format_responses(responses: Responses) -> str:
     band = bands.get(responses.interval)
     head = f"; {100 * responses.level:g}% bands: {band}" if band else "; no bands"
     lines = [f"Responses to a rise of 1 in each state (unit innovations, the states' own units{head})"]
-    width = 24 if band else 11
     for j, shock in enumerate(responses.states):
         lines.append(f"  after a rise of 1 in {shock}")
-        names = "".join(f"{s[:width - 2]:<{width}}" for s in responses.states)
-        lines.append(f"    {'prompts':>7}  {names}".rstrip())
+        cells = []
         for h in range(1, responses.horizon + 1):
-            cells = []
+            row = [str(h)]
             for i in range(len(responses.states)):
                 text = fmt(curve.estimate[h, i, j])
                 if band:
                     text += f" [{fmt(curve.lower[h, i, j])}, {fmt(curve.upper[h, i, j])}]"
-                cells.append(f"{text:<{width}}")
-            lines.append(f"    {h:>7}  {''.join(cells)}".rstrip())
+                row.append(text)
+            cells.append(row)
+        lines += table(["prompts", *responses.states], cells,
+                       ">" + "<" * len(responses.states), indent="    ")
     halves = [f"{s} {'more than ' + str(responses.horizon) if h is None else h}"
               for s, h in zip(responses.states, responses.half_life)]
     lines.append("  half-life (prompts until a state's own response falls below half): " + ", ".join(halves))

@@ -33,6 +33,7 @@ import numpy as np
 from scipy.special import stdtr
 
 from lagwise.models.blas import one_blas_thread
+from lagwise.models.itemcheck import item_problem
 from lagwise.models.diary import Diary
 from lagwise.models.errors import DataError
 from lagwise.models.numbers import fmt, p_phrase
@@ -264,7 +265,8 @@ def skewness(x: np.ndarray) -> float | None:
     n = x.size
     if n < 3 or np.ptp(x) == 0:
         return None
-    dev = x - x.mean()
+    dev = x / np.max(np.abs(x))       # G1 does not change with the scale: no underflow
+    dev = dev - dev.mean()
     m2, m3 = np.mean(dev ** 2), np.mean(dev ** 3)
     return float(np.sqrt(n * (n - 1)) / (n - 2) * m3 / m2 ** 1.5)
 
@@ -330,9 +332,14 @@ def linear_trend(column: np.ndarray) -> Trend:
 def stationarity_tests(x: np.ndarray) -> tuple[UnitTest, UnitTest]:
     """ADF (constant, AIC lag length) and KPSS (level, automatic lags) on answered values in
     time order, gaps closed up (models.unitroot). Not run with fewer than MIN_TEST_ANSWERS
-    answers or no variation."""
+    answers or no variation. Both statistics are unchanged by a change of scale, so the series
+    is standardized first (values near the ends of floating point stay computable)."""
     x = np.asarray(x, dtype=float)
-    if x.size < MIN_TEST_ANSWERS or np.ptp(x) == 0:
+    top = float(np.max(np.abs(x))) if x.size else 0.0
+    if top > 0 and np.isfinite(top):
+        x = x / top
+        x = (x - x.mean()) / (x.std() or 1.0)
+    if x.size < MIN_TEST_ANSWERS or not np.isfinite(top) or np.ptp(x) == 0:
         why = (f"not run: only {x.size} answer{'' if x.size == 1 else 's'} "
                f"(needs {MIN_TEST_ANSWERS})"
                if x.size < MIN_TEST_ANSWERS else "not run: the item does not vary")
@@ -452,6 +459,10 @@ def readiness(diary: Diary, screens: list[ItemScreen] | tuple[ItemScreen, ...],
         notes.append(f"Fewer than half of the prompts were answered in week {listed}.")
     for s in screens:
         notes += [sentence for _, sentence in _item_findings(s)]
+    for j, name in enumerate(diary.items):   # what fit would refuse (models.conditioning)
+        problem = item_problem(name, diary.values[:, j])
+        if problem:
+            notes.append(f"{problem[0].upper()}{problem[1:]}.")
     return Readiness(occasions=diary.n_occasions, answered=answered, complete_windows=complete,
                      partial_windows=windows.n_partial, n_free=n_free,
                      windows_per_parameter=per_parameter, compliance_by_week=weeks,

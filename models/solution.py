@@ -20,6 +20,7 @@ import numpy as np
 
 from lagwise.models import flags as warn
 from lagwise.models.blocks import Scales
+from lagwise.models.conditioning import numerical_failures
 from lagwise.models.estimators import FitOptions
 from lagwise.models.flags import Flag
 from lagwise.models.kinds import Kind
@@ -44,8 +45,11 @@ class Objective(Protocol):
     item_var: np.ndarray
     n_rows: int
     n_occasions: int
+    item_values: np.ndarray   # (prompts or windows, items): the answers, for failure messages
 
     def loglik(self, theta: np.ndarray) -> float: ...
+
+    def answers_per_item(self) -> np.ndarray: ...
 
     def loglik_and_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]: ...
 
@@ -121,7 +125,14 @@ def start_scale(start: Start, layout: ParameterLayout, sizes: np.ndarray) -> np.
 def solve(objective: Objective, notes: list[str], monitor: Monitor | None = None, *,
           standard_errors: bool = True, start: Start = None) -> FitResult:
     """Maximise `objective` and build its FitResult (see the module docstring).
-    standard_errors=False skips the observed information (and the Newton polish that uses it)."""
+    standard_errors=False skips the observed information (and the Newton polish that uses it).
+    A numerical failure raises EstimationError naming its likely cause (models.conditioning)."""
+    with numerical_failures(objective.item_values, objective.spec):
+        return _solve(objective, notes, monitor, standard_errors, start)
+
+
+def _solve(objective: Objective, notes: list[str], monitor: Monitor | None,
+           standard_errors: bool, start: Start) -> FitResult:
     started = time.perf_counter()
     layout, options = objective.layout, objective.options
     flags = list(objective.preflight())

@@ -18,6 +18,7 @@ import numpy as np
 
 from lagwise.models import blocks
 from lagwise.models import jsonread as jr
+from lagwise.models import names as name_rules
 from lagwise.models.blocks import Entry
 from lagwise.models.errors import FieldError, SpecError
 from lagwise.models.estimators import estimator
@@ -50,9 +51,9 @@ class State:
     def from_json(cls, doc: object, where: str = "") -> "State":
         """A state from `to_json` output; FieldError names a malformed field."""
         return cls(**jr.read_fields(doc, where, (
-            jr.field("name", jr.text),
-            jr.field("items", jr.tuple_of, item=jr.text, limit=jr.MAX_ITEMS),
-            jr.field("marker", jr.text, None, null=True),
+            jr.field("name", jr.name),
+            jr.field("items", jr.tuple_of, item=jr.name, limit=jr.MAX_ITEMS),
+            jr.field("marker", jr.name, None, null=True),
         )))
 
 
@@ -222,6 +223,7 @@ class ModelSpec:
         notes: list[str] = []
         if not self.states:
             raise SpecError("The model has no states: add a state and give it items.")
+        _check_names(self)
         names = self.state_names
         if len(set(names)) != len(names):
             raise SpecError("Two states share a name: give each state its own name.")
@@ -305,7 +307,7 @@ class ModelSpec:
             jr.field("innovations", jr.choice, "free", choices=INNOVATION_FORMS),
             jr.field("partial_zeros", jr.tuple_of, [], item=_state_pair),
             jr.field("reliability", _reliability, {}),
-            jr.field("unique_autocorrelation", jr.tuple_of, [], item=jr.text,
+            jr.field("unique_autocorrelation", jr.tuple_of, [], item=jr.name,
                      limit=jr.MAX_ITEMS),
         ))
         if fields["paths"] is not None:  # their shape follows the lag order and the states
@@ -335,7 +337,7 @@ def _masks(masks: list, where: str, lags: int, k: int) -> tuple[PathMask, ...]:
 
 
 def _state_pair(value: object, where: str) -> tuple[str, str]:
-    pair = jr.tuple_of(value, where, jr.text, 2)
+    pair = jr.tuple_of(value, where, jr.name, 2)
     if len(pair) != 2:
         raise FieldError(where, "should name two states")
     return pair
@@ -343,6 +345,22 @@ def _state_pair(value: object, where: str) -> tuple[str, str]:
 
 def _reliability(value: object, where: str) -> tuple[tuple[str, float], ...]:
     return tuple(jr.mapping(value, where, jr.number).items())
+
+
+def _check_names(spec: ModelSpec) -> None:
+    """SpecError for a state or item name with a control character (models.names); the
+    other checks may then quote the names as they are."""
+    named = [("State name", s.name) for s in spec.states]
+    named += [(f"An item of state '{s.name}'", it) for s in spec.states for it in s.items]
+    named += [(f"The marker of state '{s.name}'", s.marker) for s in spec.states
+              if s.marker is not None]
+    named += [("A reliability's item", it) for it, _ in spec.reliability]
+    named += [("A unique autocorrelation's item", it) for it in spec.unique_autocorrelation]
+    named += [("A partial-correlation zero", name) for pair in spec.partial_zeros for name in pair]
+    for what, name in named:
+        refused = name_rules.problem(name)
+        if refused:
+            raise SpecError(f"{what} {refused}.")
 
 
 def _as_mask(m: np.ndarray) -> PathMask:

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from lagwise.models.itemcheck import answered_moments
 from lagwise.models.kinds import Kind
 from lagwise.models.lyapunov import companion_covariance, spectral_radius
 from lagwise.models.parameters import Matrices, ParameterLayout
@@ -40,8 +41,7 @@ def start_matrices(layout: ParameterLayout, data: np.ndarray, depth: int) -> Mat
     s0 = pairwise_cross_cov(blocks[0], blocks[0])
     s0 = 0.5 * (s0 + s0.T)
     var = np.maximum(np.diag(s0), 1e-8)
-    nu = np.nanmean(blocks[0], axis=0)
-    nu = np.where(np.isnan(nu), 0.0, nu)
+    nu = answered_moments(blocks[0])[0]
     mask = spec.loading_mask()
     fixed_theta = {e.index[0]: value for e, value in zip(layout.entries, layout.fixed_values)
                    if e.kind == Kind.UNIQUE and not e.free}

@@ -10,6 +10,7 @@ from __future__ import annotations
 import numpy as np
 
 from lagwise.models.diary import Diary
+from lagwise.models.texttable import pad, width
 from lagwise.models.windows import lag_windows
 
 WINDOW_DEPTHS = (1, 2)
@@ -78,16 +79,16 @@ def format_summary(summary: dict) -> str:
     for depth, complete in summary["windows"].items():
         partial = summary["partial_windows"].get(depth, 0)
         lines.append(f"    depth {depth:<8} {complete:>8}    {partial:>8}")
-    width = max(8, *(len(name) for name in summary["items"]))
-    lines += ["", f"  {'item':<{width}}  answered  missing      mean        sd"]
+    columns = max(8, *(width(name) for name in summary["items"]))
+    lines += ["", f"  {'item':<{columns}}  answered  missing      mean        sd"]
     for name, stats in summary["items"].items():
-        lines.append(f"  {name:<{width}}  {stats['answered']:>8}  {stats['missing']:>7}"
+        lines.append(f"  {pad(name, columns)}  {stats['answered']:>8}  {stats['missing']:>7}"
                      f"  {_fixed(stats['mean'])}  {_fixed(stats['sd'])}")
     lines += ["", "  compliance per day"]
-    day_width = max(3, *(len(day["day"]) for day in summary["compliance"]))
+    day_width = max(3, *(width(day["day"]) for day in summary["compliance"]))
     for day in summary["compliance"]:
         share = _percent(day["answered"], day["scheduled"])
-        lines.append(f"    day {day['day']:<{day_width}}  {day['answered']:>3} of "
+        lines.append(f"    day {pad(day['day'], day_width)}  {day['answered']:>3} of "
                      f"{day['scheduled']} answered ({share})")
     if summary["warnings"]:
         lines += ["", "  warnings"]

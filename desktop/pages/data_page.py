@@ -223,13 +223,13 @@ class DataPage(QWidget):
         share = f" ({100 * answered / occasions:.0f}%)" if occasions else ""
         windows = summary["windows"]["1"] + summary["partial_windows"]["1"]
         source = Path(summary["source"]).name if summary["source"] else "Diary"
-        text = (f"<b>{source}</b>: {counted(len(summary['items']), 'item')}, "
+        text = (f"<b>{escape(source)}</b>: {counted(len(summary['items']), 'item')}, "
                 f"{counted(occasions, 'prompt')} over {counted(summary['days'], 'day')}, "
                 f"{answered} answered{share}; {counted(summary['segments'], 'segment')}, "
                 f"{counted(windows, 'lag window')} of two consecutive prompts "
                 f"({summary['windows']['1']} complete).")
         if summary["warnings"]:
-            text += "<br>" + "<br>".join(f"Note: {w}" for w in summary["warnings"])
+            text += "<br>" + "<br>".join(f"Note: {escape(w)}" for w in summary["warnings"])
         steps = self._session.preparation
         if steps:
             text += (f"<br>Before estimation: {escape(describe(steps))} (see Screening). The series "
@@ -257,7 +257,7 @@ class DataPage(QWidget):
             plot.setMenuEnabled(False)
             plot.hideButtons()
             plot.setMouseEnabled(x=True, y=False)
-            plot.setLabel("left", name)
+            plot.setLabel("left", escape(name))  # axis labels are HTML
             plot.getAxis("left").setWidth(64)
             plot.getAxis("bottom").setTicks([ticks, []])
             if row < len(names) - 1:

@@ -13,6 +13,7 @@ is one undoable edit of the session.
 from __future__ import annotations
 
 from dataclasses import replace
+from html import escape
 
 import numpy as np
 from PySide6.QtCore import Qt, QTimer
@@ -100,7 +101,7 @@ class PathGrid(QGroupBox):
                 cell.setData(CELL, (i, j))
                 what = (f"inertia of {to}" if inertia else
                         f"effect of {fr} at t-{self.lag} on {to} at t")
-                cell.setToolTip(what[0].upper() + what[1:])
+                cell.setToolTip(style.plain(what[0].upper() + what[1:]))
                 self.table.setItem(i, j, cell)
         self.table.setFixedHeight(self.table.horizontalHeader().height()
                                   + sum(self.table.rowHeight(r) for r in range(len(names))) + 6)
@@ -315,7 +316,7 @@ class DynamicsPage(QWidget):
             self.problem_label.setText(
                 "" if problem is None or self._session.diary is None else
                 f"<span style='color:{style.WARNING}'><b>To fix before estimating:</b> "
-                f"{problem}</span>")
+                f"{escape(problem)}</span>")
         finally:
             self._syncing = False
 
@@ -360,7 +361,7 @@ class DynamicsPage(QWidget):
                           "prompt of the next day (common practice).")
         if self._night_error:
             self.night_note.setText(f"<span style='color:{style.WARNING}'>"
-                                    f"{self._night_error}</span>")
+                                    f"{escape(self._night_error)}</span>")
             self._night_error = ""
         elif settings is not None and settings.time.mode == "order":
             self.night_note.setText("The diary has no day or time column: all prompts "

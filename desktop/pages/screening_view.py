@@ -414,7 +414,7 @@ class ScreeningView(QWidget):
             self.plot_model.set_rows(records)
             return
         name = self._diary.items[self._item]
-        self.plot_caption.setText(f"<b>{name}</b>: series with linear trend, autocorrelation, "
+        self.plot_caption.setText(f"<b>{escape(name)}</b>: series with linear trend, autocorrelation, "
                                   "within-day and weekday profiles")
         versions = [("as answered", self._diary, self._before.items[self._item], BEFORE)]
         if self._after is not None:

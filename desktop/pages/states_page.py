@@ -315,8 +315,8 @@ class StatesPage(QWidget):
                 cell.setCheckState(Qt.CheckState.Checked if it in s.items
                                    else Qt.CheckState.Unchecked)
                 cell.setData(NAME_ROLE, (s.name, it))
-                cell.setToolTip(f"{s.name} is measured by {it}" if it in s.items
-                                else f"Tick to let {s.name} be measured by {it}")
+                cell.setToolTip(style.plain(f"{s.name} is measured by {it}" if it in s.items
+                                            else f"Tick to let {s.name} be measured by {it}"))
                 self.grid.setItem(r, c, cell)
         if states:
             row = len(items)

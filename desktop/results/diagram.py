@@ -19,7 +19,7 @@ from PySide6.QtWidgets import (QGraphicsEllipseItem, QGraphicsItem, QGraphicsPat
                                QGraphicsView)
 
 from lagwise.desktop.results.palette import LABEL_FILL, NEGATIVE, NEUTRAL, NODE_FILL, POSITIVE, effect_pen, line_width
-from lagwise.desktop.style import INK
+from lagwise.desktop.style import INK, plain
 from lagwise.models.results import Parameter
 
 NODE_GAP = 340.0          # distance between neighbouring states on the circle
@@ -62,7 +62,7 @@ class LinkItem(QGraphicsPathItem):
         super().__init__()
         self.link = link
         self.setPen(effect_pen(link.value, link.size))
-        self.setToolTip(link.tooltip)
+        self.setToolTip(plain(link.tooltip))
         self.setZValue(1)
         self.label_item: QGraphicsRectItem | None = None
 
@@ -180,7 +180,7 @@ class DiagramScene(QGraphicsScene):
         circle.setBrush(QBrush(QColor(NODE_FILL)))
         circle.setPen(QPen(QColor(INK), 1.6))
         circle.setZValue(2)
-        circle.setToolTip(node.tooltip or node.name)
+        circle.setToolTip(plain(node.tooltip or node.name))
         self.addItem(circle)
         name = self._text(node.name, bold=True, scale=1.15)
         name.setParentItem(circle)
@@ -231,7 +231,7 @@ class DiagramScene(QGraphicsScene):
             at = at + outward * (reach + item.pen().widthF() / 2 + 3)
         box.setPos(at)
         box.setZValue(3)
-        box.setToolTip(item.link.tooltip)
+        box.setToolTip(plain(item.link.tooltip))
         text.setParentItem(box)
         text.setPos(-tr.width() / 2, -tr.height() / 2)
         self.addItem(box)

@@ -26,7 +26,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QHBoxLay
 from lagwise.desktop.results.charts import style_plot
 from lagwise.desktop.results.tables import Column, RecordsModel
 from lagwise.desktop.results.widgets import ResultsPanel, fit_height, note_label, section_label, table_view
-from lagwise.desktop.style import INK, MUTED, NEGATIVE, POSITIVE, RULE
+from lagwise.desktop.style import INK, MUTED, NEGATIVE, POSITIVE, RULE, plain
 from lagwise.models.responses import (DEFAULT_HORIZON, MAX_HORIZON, Replicates, ResponseChoice,
                                       Responses, impulse_responses)
 from lagwise.models.results import FitResult
@@ -364,8 +364,8 @@ class ResponsesPanel(ResultsPanel):
                                    for i in range(len(responses.states))
                                    for h in range(responses.horizon + 1)])
         self._update_legend(responses)
-        _set_text(self.explain, EXPLAIN[(form, "standardized" if standardized else "own")].format(shock=shock)
-                  + (CUMULATIVE if cumulative else ""))
+        _set_text(self.explain, plain(EXPLAIN[(form, "standardized" if standardized else "own")]
+                                      .format(shock=shock) + (CUMULATIVE if cumulative else "")))
         sentences = responses.sentences(standardized)
         _set_text(self.words, "<br>".join((f"<b>{html.escape(s)}</b>" if n == j else html.escape(s))
                                           for n, s in enumerate(sentences)))

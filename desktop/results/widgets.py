@@ -11,6 +11,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QFileDialog, QHBoxLayout, QHea
                                QVBoxLayout, QWidget)
 
 from lagwise.desktop.export import Picture, save_scene_svg, save_table_csv, save_widget_png
+from lagwise.desktop.style import plain
 from lagwise.models.results import FitResult
 
 _FILTERS = {"png": "PNG picture (*.png)", "svg": "SVG picture (*.svg)", "csv": "CSV table (*.csv)"}
@@ -87,7 +88,7 @@ class ResultsPanel(QWidget):
         try:
             save(target, path)
         except OSError as exc:
-            QMessageBox.warning(self, "Could not save", str(exc))
+            QMessageBox.warning(self, "Could not save", plain(str(exc)))
 
 
 def save(target, path: str | Path) -> Path:
