@@ -177,12 +177,15 @@ def test_a_window_depth_needing_huge_arrays_is_refused():
 
 # ------------------------------------------------------------------------ column names
 
-@pytest.mark.parametrize("header, positions", [
-    ("a,a,b", "columns 1 and 2"), ("b,a,x,a ", "columns 2 and 4"),
+@pytest.mark.parametrize("header, positions, suffix", [
+    ("a,a,b", "columns 1 and 2", ".csv"), ("b,a,x,a ", "columns 2 and 4", ".csv"),
+    ("a\tb\ta", "columns 1 and 3", ".tsv"), ("a;a", "columns 1 and 2", ".txt"),
 ])
-def test_repeated_column_names_are_refused_with_positions(tmp_path, header, positions):
-    path = tmp_path / "twice.csv"
-    path.write_text(header + "\n" + ",".join(["1"] * header.count(",")) + ",1\n")
+def test_repeated_column_names_are_refused_with_positions(tmp_path, header, positions, suffix):
+    path = tmp_path / f"twice{suffix}"
+    delim = "\t" if "\t" in header else (";" if ";" in header else ",")
+    width = len(header.split(delim))
+    path.write_text(header + "\n" + delim.join(["1"] * width) + "\n")
     with pytest.raises(DataError, match=positions):
         read_table(path)
 
