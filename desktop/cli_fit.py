@@ -17,7 +17,9 @@ import json
 import sys
 from dataclasses import replace
 
-from lagwise.desktop.cli_common import add_diary_arguments, diary_from_args, recipe_from_args
+from lagwise.desktop.cli_common import (
+    add_diary_arguments, diary_from_args, in_range, recipe_from_args,
+)
 from lagwise.models.atomic import write_output
 from lagwise.models.errors import LagwiseError, ProjectError, SpecError
 from lagwise.models.estimate import fit
@@ -25,19 +27,27 @@ from lagwise.models.lag2check import lag2_check
 from lagwise.models.project import (
     Project, embed_file, is_project_file, open_project, project_diary, save_project,
 )
-from lagwise.models.bootstrap import Bootstrap, bootstrap
+from lagwise.models.bootstrap import MAX_REPLICATES, Bootstrap, bootstrap
 from lagwise.models.report import format_bootstrap, format_lag2, format_responses, format_result
 from lagwise.models.responses import DEFAULT_HORIZON, MAX_HORIZON, check_horizon, impulse_responses
 from lagwise.models.results import _finite
 from lagwise.models.estimators import ERRORS, ESTIMATORS, MISSING, FitOptions
+from lagwise.models.limits import DEPTH, JOBS, MAX_ITER, NIGHT_GAP, SEED, Limit
 from lagwise.models.spec import ModelSpec, State, full_mask, inertia_mask
+
+
+HORIZON = Limit("horizon", 1, MAX_HORIZON, "prompts")
+REPLICATES = Limit("number of bootstrap replicates", 1, MAX_REPLICATES)
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_diary_arguments(parser)
     model = parser.add_argument_group("model")
     model.add_argument("--state", action="append", metavar="NAME=ITEM,ITEM,...",
-                       help="a latent state and its items (repeat for each state; the first item is the marker)")
+                       help="a latent state and its items (repeat for each state; the first "
+                            "item is the marker); quote it when a name holds spaces, and write "
+                            "NAME=@FILE to read the items from FILE, one per line (for item "
+                            "names holding a comma)")
     model.add_argument("--lags", type=int, choices=(1, 2), default=1, help="lag order (default 1)")
     model.add_argument("--paths", choices=("all", "inertia"), default="all",
                        help="free lagged paths: all (default) or inertia only")
@@ -51,24 +61,25 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     est.add_argument("--se", choices=tuple(ERRORS),
                      help="standard errors: robust (sandwich; the default for lag windows) or "
                           "model (inverse information; the exact estimator's)")
-    est.add_argument("--depth", type=int, help="window depth (default: the lag order)")
-    est.add_argument("--night-gap", type=int, metavar="N",
+    est.add_argument("--depth", type=in_range(DEPTH), help="window depth (default: the lag order)")
+    est.add_argument("--night-gap", type=in_range(NIGHT_GAP), metavar="N",
                      help="exact estimator: join the days with N missed prompts between them "
                           "instead of restarting each day")
-    est.add_argument("--max-iter", type=int, default=FitOptions.max_iter, metavar="N",
+    est.add_argument("--max-iter", type=in_range(MAX_ITER), default=FitOptions.max_iter,
+                     metavar="N",
                      help=f"optimiser iterations at most (default {FitOptions.max_iter})")
     parser.add_argument("--lag2-check", action="store_true",
                         help="test whether lag 1 is enough (lag-2 paths and autocorrelated unique parts)")
-    parser.add_argument("--horizon", type=int, default=DEFAULT_HORIZON, metavar="H",
+    parser.add_argument("--horizon", type=in_range(HORIZON), default=DEFAULT_HORIZON, metavar="H",
                         help=f"impulse responses over H prompts (1 to {MAX_HORIZON}, default 10): "
                              "printed, and written to the JSON as \"responses\"")
     boot = parser.add_argument_group("bootstrap")
-    boot.add_argument("--bootstrap", type=int, metavar="N",
+    boot.add_argument("--bootstrap", type=in_range(REPLICATES), metavar="N",
                       help="check the stability of the estimates with N bootstrap replicates "
                            "(resampled days, or stationary blocks when days are joined)")
-    boot.add_argument("--seed", type=int, default=0, metavar="S",
+    boot.add_argument("--seed", type=in_range(SEED), default=0, metavar="S",
                       help="seed of the bootstrap (default 0): the same seed, the same answer")
-    boot.add_argument("--jobs", type=int, metavar="J",
+    boot.add_argument("--jobs", type=in_range(JOBS), metavar="J",
                       help="worker processes for the bootstrap (default: every core)")
     parser.add_argument("--json", metavar="OUT", help="write the result as JSON to OUT")
     parser.add_argument("--save", metavar="PROJECT.lagwise",
@@ -82,18 +93,33 @@ PROJECT_RUN_OPTIONS = ("data", "json", "save", "lag2_check", "horizon", "bootstr
 
 
 def parse_states(texts: list[str] | None) -> tuple[State, ...]:
+    """States of the --state options: NAME=ITEM,ITEM,... or NAME=@FILE (one item a line)."""
     if not texts:
         raise SpecError("give at least one --state NAME=ITEM,ITEM,...")
     states = []
     for text in texts:
         name, sep, items = text.partition("=")
         if not sep or not name.strip():
-            raise SpecError(f"--state '{text}' is not NAME=ITEM,ITEM,...")
-        parts = tuple(i.strip() for i in items.split(",") if i.strip())
+            raise SpecError(f"--state '{text}' is not NAME=ITEM,ITEM,... or NAME=@FILE")
+        if items.startswith("@"):
+            parts = _item_file(items[1:], name.strip())
+        else:
+            parts = tuple(i.strip() for i in items.split(",") if i.strip())
         if not parts:
             raise SpecError(f"--state '{name.strip()}' lists no items")
         states.append(State(name.strip(), parts))
     return tuple(states)
+
+
+def _item_file(path: str, state: str) -> tuple[str, ...]:
+    """The item names in `path`, one a line (blank lines skipped)."""
+    try:
+        with open(path, encoding="utf-8-sig") as handle:
+            text = handle.read(1 << 20)
+    except (OSError, UnicodeDecodeError) as error:
+        detail = getattr(error, "strerror", None) or "not UTF-8 text"
+        raise SpecError(f"--state {state}=@{path}: cannot read the file ({detail})") from None
+    return tuple(line.strip() for line in text.splitlines() if line.strip())
 
 
 def spec_from_args(args: argparse.Namespace) -> ModelSpec:
@@ -118,10 +144,12 @@ def run(args: argparse.Namespace) -> int:
     else:
         spec = spec_from_args(args)
         if args.items is None:
-            args.items = ",".join(spec.items)
+            args.items = list(spec.items)
         diary = diary_from_args(args)
         options = FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth,
                              night_gap=args.night_gap, max_iter=args.max_iter, se=args.se)
+    for note in diary.warnings:  # as `lagwise inspect` lists them
+        print(f"lagwise: note: {note}", file=sys.stderr)
     result = fit(diary, spec, options)
     print(format_result(result))
     responses = impulse_responses(result, args.horizon)
@@ -182,13 +210,8 @@ def save_fitted(args: argparse.Namespace, project: Project | None, spec: ModelSp
 
 
 def check_bootstrap_arguments(args: argparse.Namespace) -> None:
-    """Refuse impossible bootstrap options before anything is fitted."""
-    if args.bootstrap is not None and args.bootstrap < 1:
-        raise SpecError("--bootstrap needs a number of replicates of 1 or more")
-    if args.jobs is not None and args.jobs < 1:
-        raise SpecError("--jobs needs 1 or more worker processes")
-    if args.seed < 0:
-        raise SpecError("--seed needs a whole number of 0 or more")
+    """Refuse bootstrap options without a bootstrap before anything is fitted (their ranges
+    are checked when they are parsed)."""
     if args.bootstrap is None and (args.jobs is not None or args.seed != 0):
         raise SpecError("--seed and --jobs go with --bootstrap N")
 

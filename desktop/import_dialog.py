@@ -31,6 +31,17 @@ SINGLE_ROLES = ("day", "prompt number", "timestamp")  # at most one column each
 FILE_FILTER = ("Diary files (" + " ".join(f"*{s}" for s in SUPPORTED_SUFFIXES) + ");;"
                "All files (*)")
 PREVIEW_ROWS = 8
+# The date format choice: (shown, strftime format or None for "recognise from the data").
+DATE_FORMATS: tuple[tuple[str, str | None], ...] = (
+    ("recognise from the data", None),
+    ("day/month/year  31/12/2026 18:30", "%d/%m/%Y %H:%M"),
+    ("month/day/year  12/31/2026 18:30", "%m/%d/%Y %H:%M"),
+    ("day.month.year  31.12.2026 18:30", "%d.%m.%Y %H:%M"),
+    ("day-month-year  31-12-2026 18:30", "%d-%m-%Y %H:%M"),
+    ("day/month/year (date only)", "%d/%m/%Y"),
+    ("month/day/year (date only)", "%m/%d/%Y"),
+    ("day.month.year (date only)", "%d.%m.%Y"),
+)
 
 TIME_WORDS = frozenset({"time", "timestamp", "datetime", "clock", "moment"})
 DAY_WORDS = frozenset({"day", "date", "days", "dag", "datum"})
@@ -75,19 +86,20 @@ def counted(n: int, noun: str, bold: bool = False) -> str:
 
 
 def time_settings(roles: dict[str, str], days_independent: bool = True,
-                  max_gap_minutes: float | None = None) -> TimeSettings:
+                  max_gap_minutes: float | None = None,
+                  date_format: str | None = None) -> TimeSettings:
     """Time settings that follow from the roles: day + prompt -> grid, timestamp -> by time."""
     pick = {role: name for name, role in roles.items() if role in SINGLE_ROLES}
     day, prompt, stamp = pick.get("day"), pick.get("prompt number"), pick.get("timestamp")
     if day or prompt:
         if stamp and not (day and prompt):
             return TimeSettings(mode="timestamp", time=stamp, days_independent=days_independent,
-                                max_gap_minutes=max_gap_minutes)
+                                max_gap_minutes=max_gap_minutes, date_format=date_format)
         return TimeSettings(mode="grid", day=day, prompt=prompt, time=stamp,
-                            days_independent=days_independent)
+                            days_independent=days_independent, date_format=date_format)
     if stamp:
         return TimeSettings(mode="timestamp", time=stamp, days_independent=days_independent,
-                            max_gap_minutes=max_gap_minutes)
+                            max_gap_minutes=max_gap_minutes, date_format=date_format)
     return TimeSettings(mode="order", days_independent=days_independent)
 
 
@@ -217,6 +229,14 @@ class ImportDialog(QDialog):
                                  "a new segment (no lag window spans it).")
         self.gap_spin.valueChanged.connect(self.update_preview)
         form.addRow("Longest &gap in a segment:", self.gap_spin)
+        self.date_format_box = QComboBox()
+        for shown, fmt in DATE_FORMATS:
+            self.date_format_box.addItem(shown, fmt)
+        self.date_format_box.setToolTip("How the dates of the day or timestamp column are "
+                                        "written. Needed when no day is above 12, so the day "
+                                        "and the month cannot be told apart.")
+        self.date_format_box.currentIndexChanged.connect(self.update_preview)
+        form.addRow("&Date format:", self.date_format_box)
         right_layout.addWidget(options)
 
         preview = QGroupBox("Preview of the diary")
@@ -296,6 +316,13 @@ class ImportDialog(QDialog):
     def set_role(self, column: str, role: str) -> None:
         self._boxes[column].setCurrentText(role)
 
+    def date_format(self) -> str | None:
+        """The chosen strftime date format (None: recognised from the data)."""
+        return self.date_format_box.currentData()
+
+    def set_date_format(self, fmt: str | None) -> None:
+        self.date_format_box.setCurrentIndex(max(0, self.date_format_box.findData(fmt)))
+
     def missing_codes(self) -> tuple[str, ...]:
         return tuple(c.strip() for c in self.missing_edit.text().split(",") if c.strip())
 
@@ -319,7 +346,8 @@ class ImportDialog(QDialog):
         roles = self.roles()
         items = tuple(name for name, role in roles.items() if role == "item")
         gap = self.gap_spin.value() or None
-        time = time_settings(roles, self._days_independent, float(gap) if gap else None)
+        time = time_settings(roles, self._days_independent, float(gap) if gap else None,
+                             self.date_format())
         per_day = self.per_day_spin.value() or None
         codes = self.missing_codes()
         if len(items) < 2:

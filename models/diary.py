@@ -14,7 +14,8 @@ from typing import Literal
 import numpy as np
 
 from lagwise.models import jsonread as jr
-from lagwise.models.errors import FieldError
+from lagwise.models.errors import DataError, FieldError
+from lagwise.models.limits import MAX_GAP_MINUTES
 
 TimeMode = Literal["grid", "timestamp", "order"]
 TIME_MODES: tuple[str, ...] = ("grid", "timestamp", "order")
@@ -29,6 +30,8 @@ class TimeSettings:
     occasions; a new segment starts at a calendar-date change or after a gap longer than
     `max_gap_minutes`. mode "order": rows in file order, one segment.
     `days_independent=False` joins all days into one segment (windows may then span nights).
+    `date_format`: a strftime format (e.g. "%d/%m/%Y %H:%M") for the time or day column, needed
+    when the data cannot tell whether the day or the month comes first (None: recognised).
     """
 
     mode: TimeMode = "order"
@@ -37,6 +40,11 @@ class TimeSettings:
     time: str | None = None
     max_gap_minutes: float | None = None
     days_independent: bool = True
+    date_format: str | None = None
+
+    def __post_init__(self) -> None:
+        if self.max_gap_minutes is not None:
+            MAX_GAP_MINUTES.check(self.max_gap_minutes, DataError)
 
     def columns(self) -> tuple[str, ...]:
         """The file columns this setting uses as time columns."""
@@ -45,13 +53,14 @@ class TimeSettings:
     def to_json(self) -> dict:
         return {"mode": self.mode, "day": self.day, "prompt": self.prompt, "time": self.time,
                 "max_gap_minutes": self.max_gap_minutes,
-                "days_independent": self.days_independent}
+                "days_independent": self.days_independent, "date_format": self.date_format}
 
     @classmethod
     def from_json(cls, doc: object, where: str = "", others: tuple[str, ...] = ()
                   ) -> "TimeSettings":
-        """Settings from `to_json` output; FieldError names a malformed field. Every field is
-        required, and the object may hold no other keys but `others` (read by the caller)."""
+        """Settings from `to_json` output; FieldError names a malformed field. Every field but
+        `date_format` (absent from older files) is required, and the object may hold no other
+        keys but `others` (read by the caller)."""
         return cls(**jr.read_fields(doc, where, (
             jr.field("mode", jr.choice, choices=TIME_MODES),
             jr.field("day", jr.text, null=True),
@@ -59,13 +68,14 @@ class TimeSettings:
             jr.field("time", jr.text, null=True),
             jr.field("max_gap_minutes", _gap_minutes),
             jr.field("days_independent", jr.boolean),
+            jr.field("date_format", jr.text, None, null=True),
         ), closed=True, others=others))
 
 
 def _gap_minutes(value: object, where: str) -> float | None:
     gap = jr.number(value, where, null=True)
-    if gap is not None and not 0 < gap <= 1e8:
-        raise FieldError(where, "should be more than 0 and at most 1e8 minutes")
+    if gap is not None and not MAX_GAP_MINUTES.allows(gap):
+        raise FieldError(where, f"should be {MAX_GAP_MINUTES.describe()}")
     return gap
 
 

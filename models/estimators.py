@@ -14,8 +14,11 @@ import importlib
 from dataclasses import dataclass, fields, replace
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
+
 from lagwise.models import jsonread as jr
 from lagwise.models.errors import FieldError, SpecError
+from lagwise.models.limits import DEPTH, MAX_ITER, MEMORY_BUDGET_BYTES, NIGHT_GAP
 
 if TYPE_CHECKING:  # type hints only: these modules import this one
     from lagwise.models.diary import Diary
@@ -56,7 +59,9 @@ class Estimator:
 
     def build(self, diary: "Diary", spec: "ModelSpec", options: "FitOptions",
               monitor: "Monitor | None" = None) -> Any:
-        """The objective of this estimator for `diary` and `spec`."""
+        """The objective of this estimator for `diary` and `spec`; SpecError, before anything
+        is allocated, when its arrays would need more than MEMORY_BUDGET_BYTES."""
+        check_memory(diary, spec, options)
         module, name = self.objective.split(":")
         return getattr(importlib.import_module(module), name).build(diary, spec, options, monitor)
 
@@ -115,6 +120,53 @@ def _error_choice(value: object, where: str) -> str | None:
     return None if value is None else jr.choice(value, where, tuple(ERRORS))
 
 
+def working_bytes(diary: "Diary", spec: "ModelSpec", options: "FitOptions"
+                  ) -> tuple[int, str, str]:
+    """(bytes, what grows, the setting to lower): an estimate of the largest arrays a fit of `diary` builds.
+
+    Lag windows: the window table (windows x width) and a covariance (width x width) per
+    missingness pattern of the windows, each held a few times over. Exact: per filtered
+    occasion (the night gap adds `night_gap` empty ones between days) the filter's state and
+    answer covariances (state size k x lags + autocorrelated items).
+    """
+    p, n = len(spec.items), diary.n_occasions
+    segment = np.asarray(diary.segment)
+    if options.method.uses_windows:
+        depth = options.depth if options.depth is not None else spec.lags
+        width = (depth + 1) * p
+        rows = np.arange(depth, n)
+        if depth:
+            rows = rows[segment[rows - depth] == segment[rows]]
+        row_pattern = _row_ids(~np.isnan(diary.select(spec.items).values))
+        shapes = np.column_stack([row_pattern[rows - j] for j in range(depth + 1)])
+        patterns = int(_row_ids(shapes).max()) + 1 if rows.size else 0
+        size = 8 * (4 * rows.size * width + 3 * patterns * width * width)
+        return (size, f"a window depth of {depth}: {rows.size:,} windows of {width} values",
+                "a smaller window depth")
+    breaks = int((segment[1:] != segment[:-1]).sum()) if n else 0
+    occasions = n + breaks * (options.night_gap or 0)
+    m = len(spec.states) * spec.lags + len(spec.unique_autocorrelation)
+    size = 8 * occasions * (5 * m * m + p * p + 2 * p * m + 4 * (m + p))
+    gap = f"a night gap of {options.night_gap} prompts, " if options.night_gap else ""
+    return size, f"{gap}{occasions:,} filtered occasions", "a smaller night gap"
+
+
+def _row_ids(table: np.ndarray) -> np.ndarray:
+    """An id per row of a 2-d array, equal for equal rows."""
+    rows = np.ascontiguousarray(table)
+    keys = rows.view(np.dtype((np.void, rows.dtype.itemsize * rows.shape[1]))).ravel()
+    return np.unique(keys, return_inverse=True)[1].ravel()
+
+
+def check_memory(diary: "Diary", spec: "ModelSpec", options: "FitOptions") -> None:
+    """SpecError in one line when `working_bytes` exceeds MEMORY_BUDGET_BYTES."""
+    size, what, lower = working_bytes(diary, spec, options)
+    if size > MEMORY_BUDGET_BYTES:
+        raise SpecError(f"The {options.method.short} estimator would need about "
+                        f"{size / 2 ** 30:.1f} GiB of memory for this diary ({what}); at most "
+                        f"{MEMORY_BUDGET_BYTES / 2 ** 30:.0f} GiB is allowed: choose {lower}.")
+
+
 @dataclass(frozen=True)
 class FitOptions:
     """Estimator settings, checked against the registry when made.
@@ -153,12 +205,11 @@ class FitOptions:
                 takers = [e.name for e in ESTIMATORS.values() if setting.field in e.settings]
                 raise SpecError(f"The {method.short} estimator does not take {setting.words} "
                                 f"({setting.flag} needs --estimator {' or '.join(takers)}).")
-        if self.depth is not None and not 0 <= self.depth <= 50:
-            raise SpecError(f"Window depth must lie between 0 and 50, not {self.depth}.")
-        if self.night_gap is not None and not 0 <= self.night_gap <= 1000:
-            raise SpecError(f"The night gap must lie between 0 and 1000 prompts, not {self.night_gap}.")
-        if self.max_iter < 1:
-            raise SpecError(f"The optimiser needs at least one iteration, not {self.max_iter}.")
+        if self.depth is not None:
+            DEPTH.check(self.depth)
+        if self.night_gap is not None:
+            NIGHT_GAP.check(self.night_gap)
+        MAX_ITER.check(self.max_iter)
 
     @property
     def method(self) -> Estimator:
@@ -193,9 +244,10 @@ class FitOptions:
         fields = jr.read_fields(doc, where, (
             jr.field("estimator", jr.choice, choices=tuple(ESTIMATORS)),
             jr.field("missing", jr.choice, choices=tuple(MISSING)),
-            jr.field("depth", jr.integer, None, low=0, high=50, null=True),
-            jr.field("max_iter", jr.integer, 2000, low=1, high=10_000_000),
-            jr.field("night_gap", jr.integer, None, low=0, high=1000, null=True),
+            jr.field("depth", jr.integer, None, low=DEPTH.low, high=DEPTH.high, null=True),
+            jr.field("max_iter", jr.integer, 2000, low=MAX_ITER.low, high=MAX_ITER.high),
+            jr.field("night_gap", jr.integer, None, low=NIGHT_GAP.low, high=NIGHT_GAP.high,
+                     null=True),
             jr.field("se", _error_choice, None),
         ))
         try:

@@ -3,7 +3,9 @@
 Supported files: delimited text (.csv, .tsv, .txt, .dat; the delimiter is detected among
 comma, semicolon, tab and bar, and a decimal comma is detected), Excel workbooks (.xlsx,
 .xlsm; the first sheet), SPSS (.sav, .zsav) and Stata (.dta). Text is decoded as UTF-8,
-UTF-8 with a byte-order mark (or UTF-16 with one), then Latin-1.
+UTF-8 with a byte-order mark (or UTF-16 with one), then Latin-1. Delimited text is read by
+pandas from the file in chunks; a text column of plain ISO 8601 date-times (no UTC offset)
+becomes a datetime column as it is read. A column name given twice is refused.
 
 The table returned by `read_table` is indexed by where each row sits in the file, so that
 messages can point at it: index name "row" means file rows counted the way a spreadsheet
@@ -13,6 +15,7 @@ shows them (the header is row 1, the first data row is row 2); "case" means case
 
 from __future__ import annotations
 
+import codecs
 import csv
 import datetime as dt
 import io
@@ -37,6 +40,7 @@ SUPPORTED_SUFFIXES = TEXT_SUFFIXES + EXCEL_SUFFIXES + SPSS_SUFFIXES + STATA_SUFF
 DELIMITERS = ("\t", ";", "|", ",")  # preference order when several split the file equally well
 DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", "|": "bar"}
 SNIFF_LINES = 200
+CHUNK_ROWS = 100_000  # rows pandas reads at a time
 
 # Cell texts read as "no answer" (compared after stripping spaces, case-insensitive).
 MISSING_TEXTS = frozenset({"", "na", "n/a", "nan", "null", "none", "#n/a", "."})
@@ -45,6 +49,8 @@ _NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
 _DECIMAL_COMMA = re.compile(r"[+-]?(?:\d+,\d*|,\d+)(?:[eE][+-]?\d+)?")
 _DATE_SHAPE = re.compile(r"\d{1,4}[-./]\d{1,2}[-./]\d{1,4}(?:[ T].*)?")
 _UTC_OFFSET = re.compile(r"(\d{1,2}:\d{2}(?::\d{2}(?:\.\d+)?)?)\s*(?:Z|[+-]\d{2}(?::?\d{2})?)$")
+_OFFSET = re.compile(r"\d{1,2}:\d{2}(?::\d{2}(?:\.\d+)?)?\s*(Z|[+-]\d{2}(?::?\d{2})?)$")
+_ISO_LOCAL = re.compile(r"\d{4}-\d{2}-\d{2}[ T]\d{2}:\d{2}(?::\d{2}(?:\.\d{1,6})?)?")
 _BAD_CONTROL = re.compile(r"[\x00-\x08\x0e-\x1f\x7f]")
 _PANDAS_FIELDS = re.compile(r"Expected (\d+) fields in line (\d+), saw (\d+)")
 _FIRST_TIME = np.datetime64("1678-01-01", "us")
@@ -52,8 +58,12 @@ _LAST_TIME = np.datetime64("2261-12-31", "us")
 _PANDAS_QUOTE = re.compile(r"EOF inside string starting at row (\d+)")
 
 
-def read_table(path: str | Path) -> pd.DataFrame:
-    """The raw table of a diary file, indexed by file row ("row") or case number ("case")."""
+def read_table(path: str | Path, columns: Iterable[str] | None = None) -> pd.DataFrame:
+    """The raw table of a diary file, indexed by file row ("row") or case number ("case").
+
+    `columns`: read only these (delimited text; when the header holds them all), which keeps
+    the memory of a long file down. A column name that appears twice is refused.
+    """
     path = Path(path)
     name = str(path)
     if not path.exists():
@@ -66,12 +76,14 @@ def read_table(path: str | Path) -> pd.DataFrame:
             f"{name}: unknown kind of file '{path.suffix or '(no extension)'}'; "
             f"Lagwise reads {', '.join(SUPPORTED_SUFFIXES)}"
         )
-    raw = path.read_bytes()
-    if not raw.strip():
+    if suffix not in TEXT_SUFFIXES and not path.read_bytes().strip():
         raise DataError(f"{name}: the file is empty")
     if suffix in TEXT_SUFFIXES:
-        frame = _read_text(raw, name)
+        frame = _read_text(path, name, columns)
     elif suffix in EXCEL_SUFFIXES:
+        header = _read_binary(path, name, "an Excel workbook", lambda p: pd.read_excel(
+            p, sheet_name=0, engine="openpyxl", header=None, nrows=1))
+        refuse_repeated_names([str(c) for c in header.iloc[0]] if len(header) else [], name)
         frame = _read_binary(path, name, "an Excel workbook",
                              lambda p: pd.read_excel(p, sheet_name=0, engine="openpyxl"))
         frame.index = pd.RangeIndex(2, 2 + len(frame), name="row")
@@ -86,25 +98,37 @@ def read_table(path: str | Path) -> pd.DataFrame:
     return _tidy(frame, name)
 
 
-def decode_text(raw: bytes, name: str) -> str:
-    """Text of a file: UTF-8, UTF-8 with a byte-order mark, then Latin-1 (UTF-16 with a mark)."""
-    if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+def text_encoding(path: Path, name: str) -> str:
+    """The encoding of a text file: UTF-8, UTF-8 with a byte-order mark, then Latin-1 (UTF-16
+    with a mark). The file is checked a block at a time, so a long file is never held whole."""
+    with open(path, "rb") as handle:
+        start = handle.read(3)
+    if start.startswith((b"\xff\xfe", b"\xfe\xff")):
         attempts = ("utf-16",)
-    elif raw.startswith(b"\xef\xbb\xbf"):
+    elif start.startswith(b"\xef\xbb\xbf"):
         attempts = ("utf-8-sig",)
     else:
         attempts = ("utf-8", "latin-1")
     for encoding in attempts:
-        try:
-            text = raw.decode(encoding)
-        except UnicodeDecodeError:
-            continue
-        if not _BAD_CONTROL.search(text):
-            return text
+        if _decodes(path, encoding):
+            return encoding
     raise DataError(
         f"{name}: cannot read the file as text (tried UTF-8, UTF-8 with BOM and Latin-1); "
         "is it a spreadsheet or another binary file with a text extension?"
     )
+
+
+def _decodes(path: Path, encoding: str) -> bool:
+    """True when the whole file decodes as `encoding` without control characters."""
+    decoder = codecs.getincrementaldecoder(encoding)()
+    with open(path, "rb") as handle:
+        try:
+            for block in iter(lambda: handle.read(1 << 22), b""):
+                if _BAD_CONTROL.search(decoder.decode(block)):
+                    return False
+            return not _BAD_CONTROL.search(decoder.decode(b"", final=True))
+        except UnicodeDecodeError:
+            return False
 
 
 def sniff_format(text: str) -> tuple[str, str]:
@@ -182,12 +206,16 @@ def numeric_cells(series: pd.Series,
     return values, bad
 
 
-def time_cells(series: pd.Series) -> tuple[np.ndarray, np.ndarray, str]:
-    """(times, bad, note): a column as datetime64[ns] wall-clock times (NaT = empty).
+def time_cells(series: pd.Series, date_format: str | None = None
+               ) -> tuple[np.ndarray, np.ndarray]:
+    """(times, bad): a column as datetime64[ns] wall-clock times (NaT = empty).
 
-    Text is tried as ISO 8601 and in the formats guessed from its first cells (month-first
-    and day-first); the reading with fewest failures wins. Offsets such as +02:00 are dropped
-    so that times stay local. `note` is a warning when day and month could be swapped.
+    With `date_format` (a strftime format) text is read with that format only. Otherwise text
+    is tried as ISO 8601 and in the formats guessed from its first cells (month-first and
+    day-first); the reading with fewest failures wins, and DataError is raised when a
+    month-first and a day-first reading both fit every cell (the data cannot tell them
+    apart). Offsets such as +02:00 are left out here so that times stay local
+    (`utc_offsets` reads them).
     """
     n = len(series)
     if pd.api.types.is_datetime64_any_dtype(series.dtype):
@@ -195,7 +223,9 @@ def time_cells(series: pd.Series) -> tuple[np.ndarray, np.ndarray, str]:
         if stamps.tz is not None:
             stamps = stamps.tz_localize(None)
         out, outside = _in_nanoseconds(stamps.to_numpy())
-        return out, outside, ""
+        return out, outside
+    if _all_text(series):
+        return _text_times(series, date_format)
     cells = series.to_numpy(dtype=object)
     texts: list[str | None] = []
     fixed: dict[int, pd.Timestamp] = {}
@@ -212,13 +242,77 @@ def time_cells(series: pd.Series) -> tuple[np.ndarray, np.ndarray, str]:
         else:
             texts.append(None)
             bad[i] = True
-    parsed, note = _parse_texts(pd.Series(texts, dtype=object))
+    parsed = _parse_texts(pd.Series(texts, dtype=object), date_format)
     micro = parsed.to_numpy().astype("datetime64[us]")
     for i, stamp in fixed.items():
         micro[i] = stamp.to_datetime64()
     out, outside = _in_nanoseconds(micro)
     bad |= outside | (np.array([t is not None for t in texts]) & np.isnat(out))
-    return out, bad, note
+    return out, bad
+
+
+def _text_times(series: pd.Series, date_format: str | None) -> tuple[np.ndarray, np.ndarray]:
+    """`time_cells` of a column holding text only, with pandas' string methods."""
+    stripped = series.str.strip()
+    missing = missing_cells(series)
+    bad = ~missing & (stripped.str.fullmatch(_NUMBER.pattern).fillna(False).to_numpy(bool)
+                      | ~stripped.str.contains(r"\d").fillna(False).to_numpy(bool))
+    texts = stripped.str.replace(_UTC_OFFSET.pattern, r"\1", regex=True).where(~(missing | bad))
+    del stripped
+    parsed = _parse_texts(texts, date_format)
+    out, outside = _in_nanoseconds(parsed.to_numpy().astype("datetime64[us]"))
+    bad |= outside | (texts.notna().to_numpy() & np.isnat(out))
+    return out, bad
+
+
+def missing_cells(series: pd.Series) -> np.ndarray:
+    """`is_missing_cell` of every cell, vectorised for numbers, dates and text columns."""
+    if (pd.api.types.is_numeric_dtype(series.dtype)
+            or pd.api.types.is_datetime64_any_dtype(series.dtype)):
+        return series.isna().to_numpy(dtype=bool)
+    if _all_text(series):
+        stripped = series.str.strip()
+        short = stripped.where(stripped.str.len() <= max(map(len, MISSING_TEXTS)))
+        return (series.isna() | short.str.lower().isin(MISSING_TEXTS)).to_numpy(dtype=bool)
+    return np.array([is_missing_cell(c) for c in series.to_numpy(dtype=object)], dtype=bool)
+
+
+def _all_text(series: pd.Series) -> bool:
+    """True for a column whose cells are all text or empty (pandas' string methods apply)."""
+    return (isinstance(series.dtype, pd.StringDtype)
+            or (series.dtype == object and pd.api.types.infer_dtype(series) == "string"))
+
+
+def utc_offsets(series: pd.Series) -> np.ndarray:
+    """Minutes east of UTC written with each time (+02:00, -0500, Z); NaN where none."""
+    if _all_text(series):
+        written = series.str.strip().str.extract(_OFFSET.pattern, expand=False)
+        found = written.dropna().unique()
+        return written.map({w: _offset_minutes(w) for w in found}).to_numpy(dtype=float)
+    if pd.api.types.is_datetime64_any_dtype(series.dtype):
+        stamps = pd.DatetimeIndex(series)
+        if stamps.tz is None:
+            return np.full(len(series), np.nan)
+        local = stamps.tz_localize(None).to_numpy()
+        instant = stamps.tz_convert("UTC").tz_localize(None).to_numpy()
+        return ((local - instant) / np.timedelta64(1, "m")).astype(float)
+    out = np.full(len(series), np.nan)
+    for i, cell in enumerate(series.to_numpy(dtype=object)):
+        if isinstance(cell, str):
+            match = _OFFSET.search(cell.strip())
+            if match:
+                out[i] = _offset_minutes(match.group(1))
+        elif isinstance(cell, dt.datetime) and cell.utcoffset() is not None:
+            out[i] = cell.utcoffset().total_seconds() / 60
+    return out
+
+
+def _offset_minutes(text: str) -> float:
+    if text == "Z":
+        return 0.0
+    digits = text[1:].replace(":", "")
+    minutes = int(digits[:2]) * 60 + int(digits[2:] or 0)
+    return float(-minutes if text[0] == "-" else minutes)
 
 
 def looks_like_dates(series: pd.Series) -> bool:
@@ -257,22 +351,46 @@ def show_cell(cell: object) -> str:
 
 # ----------------------------------------------------------------------------------------
 
-def _read_text(raw: bytes, name: str) -> pd.DataFrame:
-    text = decode_text(raw, name)
-    lines = text.splitlines(keepends=True)
-    skipped = 0
-    while skipped < len(lines) and not lines[skipped].strip():
-        skipped += 1
-    text = "".join(lines[skipped:])
-    if not text.strip():
-        raise DataError(f"{name}: the file is empty")
-    delim, decimal = sniff_format(text)
-    _check_row_widths(text, delim, name, skipped)
+def refuse_repeated_names(header: list[str], name: str) -> None:
+    """DataError naming the positions (1 = first column) of a column name given twice."""
+    seen: dict[str, int] = {}
+    for position, column in enumerate(header, start=1):
+        column = str(column).strip()
+        if column in seen:
+            raise DataError(f"{name}: the column name '{column}' appears twice in the header "
+                            f"(columns {seen[column]} and {position}); rename one of them")
+        seen[column] = position
+
+
+def _read_text(path: Path, name: str, columns: Iterable[str] | None = None) -> pd.DataFrame:
+    """Delimited text, read by pandas straight from the file (never held as one string)."""
+    encoding = text_encoding(path, name)
+    with open(path, encoding=encoding, newline="") as handle:
+        skipped = 0
+        for line in handle:  # leading blank lines
+            if line.strip():
+                break
+            skipped += 1
+        else:
+            raise DataError(f"{name}: the file is empty")
+        head = line + handle.read(1 << 20)
+    delim, decimal = sniff_format(head)
+    header = next(csv.reader(io.StringIO(head, newline=""), delimiter=delim), [])
+    refuse_repeated_names(header, name)
+    _check_row_widths(path, encoding, delim, name, skipped)
+    wanted = None if columns is None else set(columns)
+    names = [c.strip() for c in header]
+    usecols = None
+    if wanted is not None and wanted <= set(names):
+        usecols = [i for i, c in enumerate(names) if c in wanted]
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", pd.errors.ParserWarning)
-            frame = pd.read_csv(io.StringIO(text), sep=delim, decimal=decimal, index_col=False,
-                                skip_blank_lines=False)
+            parts = [_compact_times(chunk) for chunk in pd.read_csv(
+                path, encoding=encoding, skiprows=skipped, sep=delim, decimal=decimal,
+                index_col=False, skip_blank_lines=False, usecols=usecols,
+                chunksize=CHUNK_ROWS)]
+        frame = pd.concat(parts, ignore_index=True) if len(parts) > 1 else parts[0]
     except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError) as error:
         detail = _pandas_message(error, skipped)
         raise DataError(f"{name}: cannot read the table: {detail}") from error
@@ -280,22 +398,39 @@ def _read_text(raw: bytes, name: str) -> pd.DataFrame:
     return frame
 
 
-def _check_row_widths(text: str, delim: str, name: str, skipped: int) -> None:
+def _compact_times(chunk: pd.DataFrame) -> pd.DataFrame:
+    """Text columns of plain ISO 8601 date-times (no UTC offset) as datetime64: a long diary's
+    time column then never exists as millions of strings at once."""
+    for column in chunk.columns:
+        cells = chunk[column]
+        if not _all_text(cells) or cells.isna().all():
+            continue
+        if cells.dropna().str.fullmatch(_ISO_LOCAL.pattern).all():
+            try:
+                chunk[column] = pd.to_datetime(cells, format="ISO8601")
+            except (ValueError, OverflowError):  # an impossible date: time_cells names it
+                continue
+    return chunk
+
+
+def _check_row_widths(path: Path, encoding: str, delim: str, name: str, skipped: int) -> None:
     """A row with more (non-empty) cells than the header has columns is an error."""
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delim)
     width = None
     record = 0
-    try:
-        for record, row in enumerate(reader, start=1 + skipped):
-            if width is None:
-                width = len(row)
-            elif len(row) > width and any(c.strip() for c in row[width:]):
-                raise DataError(
-                    f"{name}: row {record} (counting the header as row 1) has {len(row)} cells "
-                    f"but the header has {width} columns ({DELIMITER_NAMES[delim]}-separated)"
-                )
-    except csv.Error as error:
-        raise DataError(f"{name}: cannot read row {record + 1}: {error}") from error
+    with open(path, encoding=encoding, newline="") as handle:
+        for _ in range(skipped):
+            handle.readline()
+        try:
+            for record, row in enumerate(csv.reader(handle, delimiter=delim), start=1 + skipped):
+                if width is None:
+                    width = len(row)
+                elif len(row) > width and any(c.strip() for c in row[width:]):
+                    raise DataError(
+                        f"{name}: row {record} (counting the header as row 1) has {len(row)} "
+                        f"cells but the header has {width} columns "
+                        f"({DELIMITER_NAMES[delim]}-separated)")
+        except csv.Error as error:
+            raise DataError(f"{name}: cannot read row {record + 1}: {error}") from error
 
 
 def _pandas_message(error: Exception, skipped: int) -> str:
@@ -323,18 +458,20 @@ def _read_binary(path: Path, name: str, kind: str, reader) -> pd.DataFrame:
 
 
 def _tidy(frame: pd.DataFrame, name: str) -> pd.DataFrame:
+    refuse_repeated_names(list(frame.columns), name)
     frame.columns = [str(c).strip() for c in frame.columns]
-    seen: set[str] = set()
-    for column in frame.columns:
-        if column in seen:
-            raise DataError(f"{name}: the column name '{column}' appears twice in the header")
-        seen.add(column)
     if frame.shape[1] == 0:
         raise DataError(f"{name}: the file has no columns")
-    frame = frame.loc[~frame.isna().all(axis=1)]
+    frame = drop_empty_rows(frame)
     if len(frame) == 0:
         raise DataError(f"{name}: the file has a header but no data rows")
     return frame
+
+
+def drop_empty_rows(frame: pd.DataFrame) -> pd.DataFrame:
+    """The rows of `frame` holding some value (the same frame, not a copy, when all do)."""
+    empty = frame.isna().all(axis=1).to_numpy()
+    return frame.loc[~empty] if empty.any() else frame
 
 
 def _split_lines(lines: list[str], delim: str) -> list[list[str]]:
@@ -392,19 +529,28 @@ def _could_be_time(cell: object) -> bool:
             and _NUMBER.fullmatch(cell.strip()) is None)
 
 
-def _parse_texts(texts: pd.Series) -> tuple[pd.Series, str]:
-    """Parse date/time texts with the reading that fails least (see `time_cells`)."""
+def _parse_texts(texts: pd.Series, date_format: str | None) -> pd.Series:
+    """Parse date/time texts with `date_format`, or with the reading that fails least (see
+    `time_cells`)."""
     present = texts.dropna()
     empty = pd.Series(pd.NaT, index=texts.index, dtype="datetime64[ns]")
     if present.empty:
-        return empty, ""
+        return empty
+    if date_format:
+        fmt = date_format.replace("%z", "").replace("%Z", "").strip()
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                return pd.to_datetime(texts, format=fmt, errors="coerce")
+        except (ValueError, TypeError, OverflowError) as error:
+            raise DataError(f"the date format {date_format!r} cannot be used ({error})") from None
     formats: list[str] = ["ISO8601"]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        for sample in present.drop_duplicates().iloc[:20]:
+        for sample in present.iloc[:1000].drop_duplicates().iloc[:20]:
             for dayfirst in (False, True):
                 guessed = guess_datetime_format(sample, dayfirst=dayfirst)
-                if guessed and guessed not in formats:
+                if guessed and guessed not in formats and not _year_day_month(guessed):
                     formats.append(guessed)
     readings = []
     for fmt in formats:
@@ -417,20 +563,20 @@ def _parse_texts(texts: pd.Series) -> tuple[pd.Series, str]:
         failures = int(parsed[present.index].isna().sum())
         readings.append((failures, fmt, parsed))
     if not readings:
-        return empty, ""
+        return empty
     fewest = min(r[0] for r in readings)
     best = [r for r in readings if r[0] == fewest]
-    chosen = best[0]
-    note = ""
     distinct = [r for r in best if not r[2].equals(best[0][2])]
     if distinct:
-        day_first = [r for r in best if _day_first(r[1])]
-        dotted = any("." in s for s in present.iloc[:20])
-        if dotted and day_first:
-            chosen = day_first[0]
-        order = "day before month" if _day_first(chosen[1]) else "month before day"
-        note = f"dates could be read with day or month first; read as {order}"
-    return chosen[2], note
+        shown = " or ".join(repr(f) for f in dict.fromkeys(r[1] for r in best if r[1] != "ISO8601"))
+        raise DataError(f"dates such as {show_cell(present.iloc[0])} could be read with the day "
+                        f"or the month first; give the date format ({shown})")
+    return best[0][2]
+
+
+def _year_day_month(fmt: str) -> bool:
+    """A guessed format with the year first and the day before the month: never used."""
+    return fmt.startswith("%Y") and _day_first(fmt)
 
 
 def _day_first(fmt: str) -> bool:

@@ -48,9 +48,16 @@ class DiaryRecipe:
                 raise DataError(f"The name of an item column {refused}.")
         return diary
 
+    def columns(self) -> tuple[str, ...] | None:
+        """The file columns the recipe uses (None: every column, when the items are not named)."""
+        if self.items is None:
+            return None
+        return tuple(dict.fromkeys(self.items + self.time.columns()))
+
     def read(self, path: str | Path) -> Diary:
-        """Read a diary file (CSV/TSV/XLSX/SAV/DTA) and apply the recipe."""
-        return self.diary(read_table(path), source=str(path))
+        """Read a diary file (CSV/TSV/XLSX/SAV/DTA), only the columns it uses, and apply the
+        recipe."""
+        return self.diary(read_table(path, self.columns()), source=str(path))
 
 
 def load_diary(path: str | Path, items: Sequence[str] | None = None,

@@ -7,7 +7,9 @@ Three ways to place rows in time (models.diary.TimeSettings):
   absent from the file become unanswered occasions. Days are sorted: numbers numerically,
   dates chronologically, other labels in order of first appearance.
 - timestamp: occasions sorted by time; a new segment starts at a change of calendar date
-  (unless days are joined) and after a gap longer than `max_gap_minutes`.
+  (unless days are joined) and after a gap longer than `max_gap_minutes`. Times written with
+  a UTC offset (+02:00) are ordered and their gaps measured in UTC, so the hour repeated when
+  clocks go back stays in order; the diary keeps the local wall time (dates, prompt ranks).
 - order: rows in file order, one day, one segment.
 By default each day is its own segment; `days_independent=False` joins the days into one
 segment (a gap longer than `max_gap_minutes` still starts a new one).
@@ -24,13 +26,16 @@ import pandas as pd
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import DataError
 from lagwise.models.readers import (
-    is_missing_cell,
+    drop_empty_rows,
     looks_like_dates,
+    missing_cells,
     numeric_cells,
     show_cell,
     time_cells,
+    utc_offsets,
     where,
 )
+from lagwise.models.limits import PROMPTS_PER_DAY
 
 FEW_ANSWERS = 10  # an item with fewer answers than this gets a warning
 MAX_OCCASIONS = 5_000_000
@@ -48,7 +53,7 @@ def diary_from_frame(
     label = source or "the table"
     missing_codes = tuple(missing_codes)
     frame = frame.set_axis([str(c) for c in frame.columns], axis=1)
-    frame = frame.loc[~frame.isna().all(axis=1)]
+    frame = drop_empty_rows(frame)
     if len(frame) == 0:
         raise DataError(f"{label}: there are no data rows")
     for column in time.columns():
@@ -160,13 +165,12 @@ def _item_notes(names: list[str], values: np.ndarray, label: str) -> list[str]:
 def _place_grid(frame, values, time: TimeSettings, label, prompts_per_day):
     if not (time.day and time.prompt):
         raise DataError("a grid of prompts needs both a day column and a prompt-number column")
-    day_of_row, day_labels, notes = _days(frame, time.day, label)
+    day_of_row, day_labels = _days(frame, time.day, label, time.date_format)
     prompt_of_row = _prompt_numbers(frame, time.prompt, label)
     first = 0 if prompt_of_row.min() == 0 else 1
     last = int(prompt_of_row.max())
     if prompts_per_day is not None:
-        if prompts_per_day < 1:
-            raise DataError("the number of prompts per day must be 1 or more")
+        PROMPTS_PER_DAY.check(prompts_per_day, DataError)
         scheduled_last = first + int(prompts_per_day) - 1
         if last > scheduled_last:
             pos = int(np.argmax(prompt_of_row))
@@ -189,36 +193,41 @@ def _place_grid(frame, values, time: TimeSettings, label, prompts_per_day):
     prompt = np.tile(np.arange(first, last + 1, dtype=float), n_days)
     stamps = None
     if time.time:
-        row_times, time_notes = _times(frame, time.time, label, allow_empty=True)
+        row_times = _times(frame, time.time, label, True, time.date_format)
         stamps = np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
         stamps[slot] = row_times
-        notes += time_notes
-    return grid_values, segment, day, day_labels, prompt, stamps, notes
+    return grid_values, segment, day, day_labels, prompt, stamps, []
 
 
 def _place_by_time(frame, values, time: TimeSettings, label):
     if not time.time:
         raise DataError("placing prompts by time needs a time column")
-    row_times, notes = _times(frame, time.time, label, allow_empty=False)
-    order = np.argsort(row_times, kind="stable")
-    stamps = row_times[order]
+    row_times = _times(frame, time.time, label, False, time.date_format)
+    notes = []
+    instants = _utc(frame, time.time, row_times, label)
+    order = np.argsort(instants, kind="stable")
+    stamps, instants = row_times[order], instants[order]
     dates = stamps.astype("datetime64[D]")
+    if (dates[1:] < dates[:-1]).any():
+        pos = int(order[1:][dates[1:] < dates[:-1]][0])
+        raise DataError(f"{label}, column '{time.time}', {where(frame, pos)}: the UTC offsets put "
+                        "this time before the previous day's last prompt")
     unique_dates, day = np.unique(dates, return_inverse=True)
     new = np.zeros(stamps.size, dtype=bool)
     if time.days_independent:
         new[1:] |= dates[1:] != dates[:-1]
     if time.max_gap_minutes is not None:
-        if time.max_gap_minutes <= 0:
-            raise DataError("the longest gap within a segment must be more than 0 minutes")
         gap = np.timedelta64(int(round(time.max_gap_minutes * 60e9)), "ns")
-        new[1:] |= (stamps[1:] - stamps[:-1]) > gap
+        new[1:] |= (instants[1:] - instants[:-1]) > gap
     segment = np.cumsum(new)
     prompt = np.arange(stamps.size) - np.searchsorted(day, day) + 1  # rank within the day
-    shared = int((stamps[1:] == stamps[:-1]).sum())
+    shared = int((instants[1:] == instants[:-1]).sum())
     if shared:
         notes.append(f"{shared} prompts have the same time as the prompt before them")
     labels = [str(d) for d in unique_dates]
-    return (values[order], segment.astype(np.int64), day.astype(np.int64), labels,
+    in_order = bool((order[1:] > order[:-1]).all())  # a sorted file needs no copy
+    return (values if in_order else values[order], segment.astype(np.int64),
+            day.astype(np.int64), labels,
             prompt.astype(float), stamps, notes)
 
 
@@ -230,26 +239,27 @@ def _place_in_order(values):
 
 # ---------------------------------------------------------------------------- time columns
 
-def _days(frame: pd.DataFrame, column: str, label: str) -> tuple[np.ndarray, list[str], list[str]]:
-    """Day index per row (0 = first day after sorting), day labels, notes."""
+def _days(frame: pd.DataFrame, column: str, label: str, date_format: str | None = None
+          ) -> tuple[np.ndarray, list[str]]:
+    """Day index per row (0 = first day after sorting) and day labels."""
     series = frame[column]
     _refuse_empty(frame, series, column, label, "no day")
     numbers, bad = numeric_cells(series)
     if not bad.any():
         unique, index = np.unique(numbers, return_inverse=True)
-        return index, [_number_label(u) for u in unique], []
-    if looks_like_dates(series):
-        stamps, bad, note = time_cells(series)
+        return index, [_number_label(u) for u in unique]
+    if date_format or looks_like_dates(series):
+        stamps, bad = _read_times(series, column, label, date_format)
         if bad.any():
             pos = int(np.flatnonzero(bad)[0])
             raise DataError(f"{label}, column '{column}', {where(frame, pos)}: "
                             f"{show_cell(series.iloc[pos])} is not a date")
         unique, index = np.unique(stamps.astype("datetime64[D]"), return_inverse=True)
-        return index, [str(u) for u in unique], [f"column '{column}': {note}"] if note else []
+        return index, [str(u) for u in unique]
     texts = [str(cell).strip() for cell in series.to_numpy(dtype=object)]
     labels = list(dict.fromkeys(texts))
     position = {text: i for i, text in enumerate(labels)}
-    return np.array([position[t] for t in texts], dtype=np.int64), labels, []
+    return np.array([position[t] for t in texts], dtype=np.int64), labels
 
 
 def _prompt_numbers(frame: pd.DataFrame, column: str, label: str) -> np.ndarray:
@@ -264,22 +274,46 @@ def _prompt_numbers(frame: pd.DataFrame, column: str, label: str) -> np.ndarray:
     return numbers
 
 
-def _times(frame: pd.DataFrame, column: str, label: str, allow_empty: bool):
+def _times(frame: pd.DataFrame, column: str, label: str, allow_empty: bool,
+           date_format: str | None = None):
     series = frame[column]
     if not allow_empty:
         _refuse_empty(frame, series, column, label, "no time")
-    stamps, bad, note = time_cells(series)
+    stamps, bad = _read_times(series, column, label, date_format)
     if bad.any():
         pos = int(np.flatnonzero(bad)[0])
+        shape = f" in the format {date_format!r}" if date_format else ""
         raise DataError(f"{label}, column '{column}', {where(frame, pos)}: "
-                        f"{show_cell(series.iloc[pos])} is not a date and time")
-    return stamps, [f"column '{column}': {note}"] if note else []
+                        f"{show_cell(series.iloc[pos])} is not a date and time{shape}")
+    return stamps
+
+
+def _read_times(series: pd.Series, column: str, label: str, date_format: str | None):
+    """`time_cells` with its DataError (an ambiguous or unusable format) placed in the file."""
+    try:
+        return time_cells(series, date_format)
+    except DataError as error:
+        raise DataError(f"{label}, column '{column}': {error}") from None
+
+
+def _utc(frame: pd.DataFrame, column: str, stamps: np.ndarray, label: str) -> np.ndarray:
+    """The instants of local `stamps`: minus their UTC offsets when the times carry them."""
+    offsets = utc_offsets(frame[column])
+    given = ~np.isnan(offsets)
+    if not given.any():
+        return stamps
+    if not given.all():
+        pos = int(np.flatnonzero(~given)[0])
+        raise DataError(f"{label}, column '{column}', {where(frame, pos)}: this time has no UTC "
+                        "offset while others have one, so their order cannot be told")
+    return stamps - (offsets * 60e9).astype("timedelta64[ns]")
 
 
 def _refuse_empty(frame, series, column, label, what) -> None:
-    for pos, cell in enumerate(series.to_numpy(dtype=object)):
-        if is_missing_cell(cell):
-            raise DataError(f"{label}, column '{column}', {where(frame, pos)}: {what}")
+    empty = missing_cells(series)
+    if empty.any():
+        pos = int(np.flatnonzero(empty)[0])
+        raise DataError(f"{label}, column '{column}', {where(frame, pos)}: {what}")
 
 
 def _refuse_duplicates(frame, slot, day_of_row, prompt_of_row, day_labels, label) -> None:

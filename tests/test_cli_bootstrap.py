@@ -42,9 +42,9 @@ def test_bootstrap_report_json_and_progress(tmp_path, capsys):
 
 
 @pytest.mark.parametrize("args, words", [
-    (["--bootstrap", "0"], "--bootstrap needs"),
+    (["--bootstrap", "0"], "--bootstrap: the number of bootstrap replicates should be"),
     (["--jobs", "2"], "go with --bootstrap"),
-    (["--bootstrap", "5", "--jobs", "0"], "--jobs needs"),
+    (["--bootstrap", "5", "--jobs", "0"], "--jobs: the number of worker processes should be"),
 ])
 def test_bad_bootstrap_options_are_one_line_exit_2(args, words, capsys):
     assert main(["fit", str(DEMO), *GRID, *STATES, *args]) == 2

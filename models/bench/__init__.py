@@ -10,15 +10,18 @@ Sections (each module's docstring says what it times and why that peer):
   parametric-bootstrap diaries, with the default estimator;
 - exact.py: the exact estimator against statsmodels' DynamicFactor, and its evaluation cost
   per prompt as diaries grow, with days and as one segment;
-- memory.py: peak memory of one fit of a long diary, in a fresh process;
+- memory.py: peak memory of one fit of a long diary, and of reading a long diary file, in a
+  fresh process;
 - commandline.py: start-up of `lagwise --help` and `lagwise inspect` of the demo, the demo's
   reading and screening, and `lagwise inspect` of a diary of a million prompts.
 Targets (cases.py), reported as PASS/MISS lines (report.py), never as timed tests: semopy's
 covariance-only fit + inspect takes at least 2x the Lagwise first-copy-free time on both speed
 diaries; stationary within 1.5x of first-copy-free; statsmodels takes at least 5x the Lagwise
 exact time; exact gradient time growing at most as T^1.1 on both layouts; peak memory under
-1 GiB; `lagwise --help` under 0.5 s, `lagwise inspect` of the demo under 2 s (its reading and
-screening under 1 s) and of a million prompts under 30 s (absolute: start-up has no peer). The refit has no target: its speed-up is reported as a fact.
+1 GiB; reading a diary file under 4x its size; `lagwise --help` under 0.5 s, `lagwise inspect`
+of the demo under 2 s (its reading and screening under 1 s) and of a million prompts under
+30 s (absolute: start-up has no peer). The refit has no target: its speed-up is reported as a
+fact.
 """
 
 from __future__ import annotations
@@ -29,7 +32,8 @@ from typing import TYPE_CHECKING
 from lagwise.models.bench.cases import (
     EXACT_CASE, EXACT_MEMORY_CASE, EXACT_SIZES, INSPECT_CASE, MEMORY_CASE, MEMORY_TARGET_BYTES,
     QUICK_EXACT_CASE, QUICK_INSPECT_CASE, QUICK_EXACT_MEMORY_CASE, QUICK_EXACT_SIZES, QUICK_MEMORY_CASE,
-    QUICK_REFIT_REPLICATES, QUICK_SPEED_CASES, REFIT_REPLICATES, SPEED_CASES, SPEED_TARGET, Case,
+    QUICK_READ_ROWS, QUICK_REFIT_REPLICATES, QUICK_SPEED_CASES, READ_ROWS, REFIT_REPLICATES,
+    SPEED_CASES, SPEED_TARGET, Case,
     bench_diary, bench_model,
 )
 from lagwise.models.bench.commandline import CommandTimes, measure_commands
@@ -43,11 +47,11 @@ from lagwise.models.bench.windows import PeerTime, SpeedResult, measure_speed
 from lagwise.models.progress import Monitor, checkpoint
 
 if TYPE_CHECKING:
-    from lagwise.models.bench.memory import MemoryResult
+    from lagwise.models.bench.memory import MemoryResult, ReadMemoryResult
 
 # memory.py also runs as the child program (python -m lagwise.models.bench.memory): it is
 # loaded on first use of these names, so that run does not find it already imported
-_MEMORY_NAMES = ("MemoryResult", "measure_memory")
+_MEMORY_NAMES = ("MemoryResult", "ReadMemoryResult", "measure_memory", "measure_read_memory")
 
 
 def __getattr__(name: str):
@@ -69,6 +73,7 @@ class BenchReport:
     exact_evaluations: list[ExactEvaluation] = field(default_factory=list)
     exact_segment_evaluations: list[ExactEvaluation] = field(default_factory=list)  # one segment
     exact_memory: MemoryResult | None = None
+    read_memory: ReadMemoryResult | None = None
     commands: CommandTimes | None = None
 
 
@@ -80,13 +85,13 @@ def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bo
     10,000-prompt memory runs; `windows` / `exact` choose the sections (window estimators
     against semopy, with the refit unless `refit` is False; the exact estimator against
     statsmodels; `commands` the start-up and screening of the command line)."""
-    from lagwise.models.bench.memory import measure_memory
+    from lagwise.models.bench.memory import measure_memory, measure_read_memory
 
     repeats = (1 if quick else 3) if repeats is None else repeats
     report = BenchReport(repeats=repeats, semopy_threads=semopy_threads)
     cases = (QUICK_SPEED_CASES if quick else SPEED_CASES) if windows else ()
     refit_cases = cases if refit else ()
-    parts = (len(cases) + len(refit_cases) + int(windows and memory)
+    parts = (len(cases) + len(refit_cases) + 2 * int(windows and memory)
              + (3 + int(memory) if exact else 0) + int(commands))
     done = 0
     for case in cases:
@@ -102,7 +107,9 @@ def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bo
     if windows and memory:
         checkpoint(monitor, done / parts, "Peak memory of a long diary")
         report.memory = measure_memory(QUICK_MEMORY_CASE if quick else MEMORY_CASE)
-        done += 1
+        checkpoint(monitor, (done + 1) / parts, "Peak memory of reading a long diary file")
+        report.read_memory = measure_read_memory(QUICK_READ_ROWS if quick else READ_ROWS)
+        done += 2
     if exact:
         case = QUICK_EXACT_CASE if quick else EXACT_CASE
         checkpoint(monitor, done / parts, f"Exact estimator: timing {case.label}")
@@ -129,7 +136,8 @@ def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bo
 __all__ = [
     "BenchReport", "Case", "CommandTimes", "INSPECT_CASE", "EXACT_CASE", "EXACT_MEMORY_CASE", "EXACT_SIZES", "ExactEvaluation",
     "ExactSpeedResult", "MEMORY_CASE", "MEMORY_TARGET_BYTES", "MemoryResult", "PeerTime",
-    "REFIT_REPLICATES", "RefitResult", "SPEED_CASES", "SPEED_TARGET", "SpeedResult",
+    "REFIT_REPLICATES", "ReadMemoryResult", "RefitResult", "SPEED_CASES", "SPEED_TARGET", "SpeedResult",
     "bench_diary", "bench_model", "format_report", "growth_exponent", "measure_exact_evaluation",
-    "measure_commands", "measure_exact_speed", "measure_memory", "measure_refit", "measure_speed", "run_benchmark",
+    "measure_commands", "measure_exact_speed", "measure_memory", "measure_read_memory",
+    "measure_refit", "measure_speed", "run_benchmark",
 ]

@@ -26,6 +26,7 @@ PROMPTS_PER_DAY = 10
 SPEED_TARGET = 2.0            # semopy, covariance only (fit + inspect) takes at least 2x Lagwise
 STATIONARY_TARGET = 1.5       # stationary within 1.5x of first-copy-free
 MEMORY_TARGET_BYTES = 1024 ** 3
+READ_TARGET_RATIO = 4.0       # reading a diary file: peak memory under 4x the file's size
 EXACT_SPEED_TARGET = 5.0      # statsmodels DynamicFactor takes at least 5x Lagwise exact
 EXACT_GROWTH_TARGET = 1.1     # exact gradient time grows at most as T^1.1
 HELP_TARGET = 0.5             # seconds, `lagwise --help` as a whole process
@@ -64,6 +65,7 @@ REFIT_REPLICATES = 5
 QUICK_REFIT_REPLICATES = 3
 MEMORY_CASE = Case(6, 5, 100_000)
 QUICK_MEMORY_CASE = Case(6, 5, 10_000)
+READ_ROWS, QUICK_READ_ROWS, READ_ITEMS = 3_000_000, 1_000_000, 10  # about 200 MB and 70 MB
 EXACT_CASE = Case(3, 3, 1000, prompts=8)
 QUICK_EXACT_CASE = Case(3, 3, 400, prompts=8)
 EXACT_SIZES = (1_000, 10_000, 100_000)

@@ -7,6 +7,12 @@ JSON line. A fresh process makes the peak that run's alone: the peak resident se
 the platform reports it (Linux, macOS), else tracemalloc's peak; the peak after the imports
 is reported beside it. Target: under 1 GiB (cases.MEMORY_TARGET_BYTES).
 
+`measure_read_memory` writes a long diary file (a time column, items and a comment column
+the recipe does not use) and starts `python -m lagwise.models.bench.memory --read FILE`; that
+child reads it into a diary with the items named (models.recipe) and reports its peak the same
+way. Target: the peak above the imports under 4 times the file's size
+(cases.READ_TARGET_RATIO).
+
 The package's __init__ loads this module only when its names are asked for, so running it
 as the child program does not import it twice.
 """
@@ -21,7 +27,7 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from lagwise.models.bench.cases import PROMPTS_PER_DAY, Case, bench_diary
+from lagwise.models.bench.cases import PROMPTS_PER_DAY, READ_ITEMS, Case, bench_diary
 from lagwise.models.estimators import FitOptions
 
 CHILD = "lagwise.models.bench.memory"
@@ -54,6 +60,70 @@ def measure_memory(case: Case, timeout: float = 3600.0, estimator: str = "statio
                         baseline_bytes=int(doc["baseline_bytes"]), method=doc["method"],
                         seconds=float(doc["seconds"]), n_windows=int(doc["n_windows"]),
                         converged=bool(doc["converged"]), estimator=estimator)
+
+
+@dataclass(frozen=True)
+class ReadMemoryResult:
+    rows: int
+    file_bytes: int
+    peak_bytes: int
+    baseline_bytes: int
+    method: str
+    seconds: float
+
+    @property
+    def ratio(self) -> float:
+        """Peak memory above the imports, as a multiple of the file's size."""
+        return (self.peak_bytes - self.baseline_bytes) / self.file_bytes
+
+
+def write_long_diary(path: Path, rows: int, seed: int = 1) -> None:
+    """A diary file of `rows` prompts ten minutes apart: time, READ_ITEMS items, a comment."""
+    import numpy as np
+    import pandas as pd
+
+    rng = np.random.default_rng(seed)
+    start = np.datetime64("2020-01-01T08:00")
+    for first in range(0, rows, 500_000):
+        n = min(500_000, rows - first)
+        frame = pd.DataFrame(np.round(rng.normal(50, 15, (n, READ_ITEMS)), 1),
+                             columns=[f"item{j + 1}" for j in range(READ_ITEMS)])
+        stamps = start + (first + np.arange(n)) * np.timedelta64(10, "m")
+        frame.insert(0, "time", pd.DatetimeIndex(stamps).strftime("%Y-%m-%d %H:%M"))
+        frame["comment"] = "ok"
+        frame.to_csv(path, mode="a" if first else "w", header=not first, index=False)
+
+
+def measure_read_memory(rows: int, timeout: float = 3600.0) -> ReadMemoryResult:
+    """Peak memory of reading a `rows`-prompt diary file in a fresh process."""
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "long_diary.csv"
+        write_long_diary(path, rows)
+        cmd = [sys.executable, "-m", CHILD, "--read", str(path)]
+        done = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, check=False)
+        size = path.stat().st_size
+    if done.returncode != 0:
+        tail = done.stderr.strip().splitlines()[-1:] or ["no message"]
+        raise RuntimeError(f"the reading run failed: {tail[0]}")
+    doc = json.loads(done.stdout.strip().splitlines()[-1])
+    return ReadMemoryResult(rows=rows, file_bytes=size, peak_bytes=int(doc["peak_bytes"]),
+                            baseline_bytes=int(doc["baseline_bytes"]), method=doc["method"],
+                            seconds=float(doc["seconds"]))
+
+
+def _read_child(path: str) -> dict:
+    method, peak = _peak_reader()
+    from lagwise.models.diary import TimeSettings
+    from lagwise.models.recipe import DiaryRecipe
+
+    baseline = peak()
+    start = time.perf_counter()
+    items = [f"item{j + 1}" for j in range(READ_ITEMS)]
+    DiaryRecipe.of(items, TimeSettings(mode="timestamp", time="time")).read(path)
+    return {"peak_bytes": int(peak()), "baseline_bytes": int(baseline), "method": method,
+            "seconds": time.perf_counter() - start}
 
 
 def _peak_reader():
@@ -101,8 +171,12 @@ def _memory_child(states: int, items: int, occasions: int, prompts: int = PROMPT
 
 
 def _main(argv: list[str]) -> int:
-    """Entry point of the child run (`python -m lagwise.models.bench.memory k m T`)."""
+    """Entry point of the child run (`python -m lagwise.models.bench.memory k m T`, or
+    `--read FILE`)."""
     parser = argparse.ArgumentParser(prog=f"python -m {CHILD}")
+    if argv[:1] == ["--read"]:
+        print(json.dumps(_read_child(argv[1])))
+        return 0
     parser.add_argument("size", nargs=3, type=int, metavar=("STATES", "ITEMS", "OCCASIONS"))
     parser.add_argument("--prompts", type=int, default=PROMPTS_PER_DAY)
     parser.add_argument("--estimator", default="stationary")

@@ -7,7 +7,8 @@ from typing import TYPE_CHECKING
 
 from lagwise.models.bench.cases import (
     EXACT_CASE, EXACT_GROWTH_TARGET, EXACT_SPEED_TARGET, HELP_TARGET, INSPECT_CASE,
-    INSPECT_DEMO_TARGET, INSPECT_LONG_TARGET, MEMORY_TARGET_BYTES, SCREEN_DEMO_TARGET,
+    INSPECT_DEMO_TARGET, INSPECT_LONG_TARGET, MEMORY_TARGET_BYTES, READ_TARGET_RATIO,
+    SCREEN_DEMO_TARGET,
     SPEED_TARGET, STATIONARY_TARGET,
 )
 from lagwise.models.bench.commandline import TESTS_CASE
@@ -16,7 +17,7 @@ from lagwise.models.bench.exact import ExactEvaluation, growth_exponent
 if TYPE_CHECKING:
     from lagwise.models.bench import BenchReport
     from lagwise.models.bench.commandline import CommandTimes
-    from lagwise.models.bench.memory import MemoryResult
+    from lagwise.models.bench.memory import MemoryResult, ReadMemoryResult
     from lagwise.models.bench.refit import RefitResult
     from lagwise.models.bench.windows import SpeedResult
 
@@ -37,6 +38,8 @@ def format_report(report: BenchReport) -> str:
     if report.memory is not None:
         lines.append("")
         _memory_lines(report.memory, lines, verdicts)
+    if report.read_memory is not None:
+        _read_memory_lines(report.read_memory, lines, verdicts)
     if (report.exact_speed is not None or report.exact_evaluations
             or report.exact_segment_evaluations or report.exact_memory):
         lines += ["", "Exact estimator (Kalman filter)"]
@@ -117,6 +120,15 @@ def _memory_lines(m: MemoryResult, lines: list[str], verdicts: list[str]) -> Non
     verdicts.append(f"{_verdict(m.peak_bytes < MEMORY_TARGET_BYTES)}  "
                     f"{'exact, ' if exact else ''}{m.case.label}: peak "
                     f"memory {m.peak_bytes / 2 ** 30:.2f} GiB (target under 1 GiB)")
+
+
+def _read_memory_lines(m: ReadMemoryResult, lines: list[str], verdicts: list[str]) -> None:
+    lines.append(f"Peak memory, reading a diary file of {m.rows:,} prompts "
+                 f"({m.file_bytes / 2 ** 20:,.0f} MiB, items named): "
+                 f"{m.peak_bytes / 2 ** 20:,.0f} MiB ({m.baseline_bytes / 2 ** 20:,.0f} MiB after "
+                 f"imports), {m.ratio:.1f}x the file, {m.seconds:.1f} s")
+    verdicts.append(f"{_verdict(m.ratio < READ_TARGET_RATIO)}  reading {m.rows:,} prompts: "
+                    f"{m.ratio:.1f}x the file's size (target under {READ_TARGET_RATIO:g}x)")
 
 
 def _exact_lines(report: BenchReport, lines: list[str], verdicts: list[str]) -> None:
