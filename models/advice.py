@@ -129,14 +129,11 @@ def _lag2_warnings(result: FitResult, check: Lag2Check) -> list[Advice]:
         out.append(Advice(AdviceCode.LAG2_INDICATED, "The lag-2 check: lag 1 may not be enough",
                           f"{check.verdict} The lagged paths of this model may then be biased; "
                           "see the Lag-2 check tab."))
-    shaky = [f"{name}: {flag}" for name, fitted in (("the lag-1 model", check.restricted),
-                                                    ("the model with lag-2 paths", check.extended))
-             for flag in fitted.flags]
-    shaky += [f"{name} did not converge." for name, fitted in (
-        ("The lag-1 model", check.restricted), ("The model with lag-2 paths", check.extended))
-        if not fitted.converged]
+    fits = (("The lag-1 model", check.restricted), ("The model with lag-2 paths", check.extended))
+    shaky = [f"{name}: {flag}" for name, fitted in fits for flag in fitted.flags]
+    shaky += [f"{name} did not converge." for name, fitted in fits if not fitted.converged]
     if shaky:
         out.append(Advice(AdviceCode.LAG2_FITS_FLAGGED, "The lag-2 check's own fits are flagged",
                           "The check refits the model on windows of three prompts, which are "
-                          "fewer: " + " ".join(shaky) + " Read its tests as rough."))
+                          "fewer. " + " ".join(shaky) + " Read its tests as rough."))
     return out

@@ -14,6 +14,7 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QFrame, QHBoxLayout, QLabel, QScrollArea, QSizePolicy, QToolButton, QVBoxLayout
 
 from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
+from lagwise.desktop.style import plain
 from lagwise.models.advice import Advice, caution_line
 from lagwise.models.results import FitResult
 
@@ -53,7 +54,6 @@ class _FoldingLine(QFrame):
         self.scroll.setWidget(self.details)
         self.scroll.setWidgetResizable(True)
         self.scroll.setFrameShape(QFrame.Shape.NoFrame)
-        self.scroll.setMaximumHeight(EXPANDED_HEIGHT)
         self.scroll.setStyleSheet("background: transparent;")
         row = QHBoxLayout()
         row.setContentsMargins(0, 0, 0, 0)
@@ -69,17 +69,25 @@ class _FoldingLine(QFrame):
 
     def _set(self, line: str, details: str, tone: str, foldable: bool = True) -> None:
         self._full = line
-        self.line.setToolTip(line)
+        self.line.setToolTip(plain(line))
         self.details.setText(details)
         self.setStyleSheet(f"#{self.objectName()} {{{_TONES[tone]}}}")
         self.toggle.setVisible(foldable)
         if not foldable:
             self.toggle.setChecked(False)
         self._elide()
+        self._fit_details()
 
     def _fold(self, open_: bool) -> None:
         self.scroll.setVisible(open_)
         self.toggle.setText("Hide" if open_ else "Show all")
+        self._fit_details()
+
+    def _fit_details(self) -> None:
+        """The open text at its full height, up to EXPANDED_HEIGHT (then it scrolls)."""
+        width = self.scroll.viewport().width() or self.width()
+        needed = self.details.heightForWidth(max(100, width)) + 4
+        self.scroll.setFixedHeight(min(EXPANDED_HEIGHT, needed))
 
     @property
     def expanded(self) -> bool:
@@ -96,6 +104,8 @@ class _FoldingLine(QFrame):
     def resizeEvent(self, event) -> None:
         super().resizeEvent(event)
         self._elide()
+        if event.size().width() != event.oldSize().width():
+            self._fit_details()
 
 
 class WarningsStrip(_FoldingLine):
