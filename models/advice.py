@@ -111,6 +111,14 @@ def fit_warnings(result: FitResult, ready: Readiness | None = None,
     return tuple(out)
 
 
+def all_clear(ready: Readiness | None) -> str:
+    """What an empty `fit_warnings` list means, naming only what was checked."""
+    data = ("; the diary has enough prompts and lag windows for the model's free parameters"
+            if ready is not None else "")
+    return ("No warnings about this fit: the estimation converged, no estimate is on a "
+            f"boundary and the lagged paths are stationary{data}.")
+
+
 def caution_line(result: FitResult) -> str:
     """The result's cautions as one line (for exported tables and the window's caution line)."""
     return "Caution: " + " ".join(result.cautions)

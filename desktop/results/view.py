@@ -25,7 +25,7 @@ from lagwise.desktop.results.stability_view import StabilityPanel
 from lagwise.desktop.results.state_scores import StateScoresPanel
 from lagwise.desktop.results.warnings_strip import CautionLine, WarningsStrip
 from lagwise.desktop.results.widgets import ResultsPanel
-from lagwise.models.advice import caution_line, data_readiness, fit_warnings
+from lagwise.models.advice import all_clear, caution_line, data_readiness, fit_warnings
 from lagwise.models.diary import Diary
 from lagwise.models.results import FitResult
 
@@ -132,7 +132,8 @@ class ResultsView(QWidget):
 
     def _show_warnings(self) -> None:
         if self._result is not None:
-            self.warnings.show_warnings(fit_warnings(self._result, self._readiness, self.lag2.check))
+            self.warnings.show_warnings(fit_warnings(self._result, self._readiness, self.lag2.check),
+                                        all_clear(self._readiness))
 
     def show_bootstrap(self, boot, result: FitResult | None = None) -> None:
         """A finished bootstrap (models.bootstrap.Bootstrap) of `result` (default: the shown

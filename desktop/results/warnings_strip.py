@@ -18,8 +18,6 @@ from lagwise.desktop.style import plain
 from lagwise.models.advice import Advice, caution_line
 from lagwise.models.results import FitResult
 
-NO_WARNINGS = ("No warnings: the estimation converged, no estimate is on a boundary, the lagged "
-               "paths are stationary and the diary meets the rules of thumb for this model.")
 _TONES = {"warn": f"background:#fbeee9; border-left:5px solid {NEGATIVE}; color:#3a1d16;",
           "calm": f"background:#e8f3f2; border-left:5px solid {POSITIVE}; color:#12403d;",
           "caution": "background:#f7f3ea; border-left:5px solid #b8a67e; color:#3d3a33;"}
@@ -115,10 +113,11 @@ class WarningsStrip(_FoldingLine):
         super().__init__("warningsStrip", parent)
         self.warnings: tuple[Advice, ...] = ()
 
-    def show_warnings(self, warnings: tuple[Advice, ...]) -> None:
+    def show_warnings(self, warnings: tuple[Advice, ...], all_clear: str) -> None:
+        """The engine's warnings, or its `all_clear` sentence when there are none."""
         self.warnings = tuple(warnings)
         if not warnings:
-            self._set(NO_WARNINGS, "", "calm", foldable=False)
+            self._set(all_clear, "", "calm", foldable=False)
             return
         titles = " · ".join(w.title for w in warnings)
         items = "".join(f"<li style='margin-bottom:4px'><b>{html.escape(w.title)}.</b> "

@@ -19,7 +19,7 @@ from PySide6.QtWidgets import QAbstractItemView, QFileDialog, QLabel
 from lagwise.desktop.app import load_demo
 from lagwise.desktop.mainwindow import PAGES, MainWindow
 from lagwise.desktop.results.warnings_strip import count_words
-from lagwise.models.advice import AdviceCode, data_readiness, fit_warnings
+from lagwise.models.advice import AdviceCode, all_clear, data_readiness, fit_warnings
 from lagwise.models.numbers import fmt
 from lagwise.models.objective import MIN_WINDOWS_PER_PARAMETER
 from lagwise.models.simulate import simulate_diary
@@ -136,7 +136,14 @@ def test_the_lag2_checks_verdict_joins_the_strip(qtbot, lagwise_app, tmp_path, m
     import_file(qtbot, window, path)
     window.session.edit_spec(spec, "Build the model")
     estimate(qtbot, window)
-    before = len(window.results.warnings.warnings)
+    strip = window.results.warnings
+    ready = data_readiness(window.session.diary, window.session.result)
+    # every prompt answered: 30 days x 9 complete lag windows = 270 for the model's 23 free
+    # parameters, above the rule of about 5 per parameter (common practice); stationary truth
+    assert ready.complete_windows == 270 and window.session.result.fit.n_free == 23
+    assert strip.warnings == engine_warnings(window) == ()
+    assert strip.full_text() == all_clear(ready) and not strip.toggle.isVisible()
+    before = len(strip.warnings)
     lag2 = window.results.lag2
     qtbot.mouseClick(lag2.run_button, Qt.MouseButton.LeftButton)
     qtbot.waitUntil(lambda: not window.worker.busy and lag2.check is not None, timeout=TIMEOUT_MS)
