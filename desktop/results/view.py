@@ -117,8 +117,9 @@ class ResultsView(QWidget):
             self.caution.hide()
             return
         self._readiness = data_readiness(self._diary, result)
+        caution = caution_line(result)
         for panel in (*self.all_panels(), self.stability):
-            panel.caution = caution_line(result)
+            panel.caution = caution
         for panel in self.all_panels():
             panel.show_result(result)
         self.caution.show_result(result)

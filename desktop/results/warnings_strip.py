@@ -1,4 +1,4 @@
-"""The two lines above every results tab: the warnings strip and the caution line.
+"""The two lines around every results tab: the warnings strip above, the caution line below.
 
 `WarningsStrip` shows the engine's list of warnings about the shown fit
 (models.advice.fit_warnings): collapsed, one line with the count and the titles; expanded,
