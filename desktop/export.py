@@ -3,7 +3,9 @@
 Every view that shows numbers can export them and every picture can be saved
 (DEVELOPERS.md, "Look"). A "picture" is any QWidget (pyqtgraph plots are QWidgets too),
 a QGraphicsView or a QGraphicsScene. Tables are saved from their Qt item model exactly
-as the user sees them (the display text of every cell, header row first).
+as the user sees them (the display text of every cell, header row first); a table of results
+ends with one comment line, "# Caution: ...", the fit's cautions (read the file with
+`comment="#"` in pandas, or skip the last line).
 """
 
 from __future__ import annotations
@@ -108,12 +110,16 @@ def table_rows(model: QAbstractItemModel) -> list[list[str]]:
     return rows
 
 
-def save_table_csv(model: QAbstractItemModel, path: str | Path) -> Path:
+def save_table_csv(model: QAbstractItemModel, path: str | Path, caution: str = "") -> Path:
     """Write a table model (as displayed, header first) to a UTF-8 CSV file, every cell made
-    inert for spreadsheets (`inert_cell`); replaced in one step (models.atomic)."""
+    inert for spreadsheets (`inert_cell`), then `caution` (if any) as one unquoted line
+    starting with "#", which CSV readers with a comment character skip; replaced in one step
+    (models.atomic)."""
     path = _in_folder(path)
     text = io.StringIO()
     csv.writer(text).writerows([[inert_cell(cell) for cell in row] for row in table_rows(model)])
+    if caution:
+        text.write("# " + " ".join(caution.split()) + "\r\n")
     return write_output(path, text.getvalue(), "the table")
 
 

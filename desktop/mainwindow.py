@@ -498,7 +498,7 @@ class MainWindow(QMainWindow):
                          f"since this estimate.</b> Press Estimate (Ctrl+E) to update.</span>")
         verdict = ("the estimation converged" if result.converged else
                    f"<b>the estimation did not converge</b> ({escape(result.message)})")
-        parts.append(f"Estimator: {result.estimator}; {result.data_used} from "
+        parts.append(f"Estimator: {result.options.method.short}; {result.data_used} from "
                      f"{result.n_occasions} prompts; {verdict}.")
         self.result_note.setText(" ".join(parts))
 

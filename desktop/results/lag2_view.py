@@ -114,6 +114,7 @@ class Lag2View(ResultsPanel):
     name = "lag-2 check"
     adopt_requested = Signal(str, str, str)
     run_requested = Signal()
+    check_changed = Signal()   # a check was shown or cleared
 
     def __init__(self, parent=None):
         super().__init__("Is lag 1 enough? The lag-2 check", parent)
@@ -192,6 +193,7 @@ class Lag2View(ResultsPanel):
         """Show a finished check, or (None) the empty state with an optional message."""
         self._check = check
         self.model.set_check(check)
+        self.check_changed.emit()
         if check is None:
             self._banner(html.escape(message or EMPTY_TEXT), "quiet")
             for label in (self.lr_line, self.problems, self.multiplicity, self.cautions):

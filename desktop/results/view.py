@@ -3,7 +3,10 @@
 Besides the five tabs over the estimate, "Responses" (what follows a rise in one state, beside
 "Dynamics"), "State scores" (exact estimator only), "Lag-2 check" (a Lag2View, exposed as
 `lag2`, whose signals the window wires) and "Stability" (the bootstrap: a StabilityPanel
-exposed as `stability`, wired the same way).
+exposed as `stability`, wired the same way). Above the tabs, on every one of them, the warnings
+strip lists everything to check about the shown fit (models.advice: the fit's flags, the
+diary's readiness for this model, the lag-2 check of its lag-1 model); below them, the caution
+line carries the fit's cautions, which every exported table repeats.
 """
 
 from __future__ import annotations
@@ -20,7 +23,9 @@ from lagwise.desktop.results.parameters import ParametersPanel
 from lagwise.desktop.results.responses_view import ResponsesPanel
 from lagwise.desktop.results.stability_view import StabilityPanel
 from lagwise.desktop.results.state_scores import StateScoresPanel
+from lagwise.desktop.results.warnings_strip import CautionLine, WarningsStrip
 from lagwise.desktop.results.widgets import ResultsPanel
+from lagwise.models.advice import all_clear, caution_line, data_readiness, fit_warnings
 from lagwise.models.diary import Diary
 from lagwise.models.results import FitResult
 
@@ -42,6 +47,8 @@ class ResultsView(QWidget):
     def __init__(self, parent: QWidget | None = None):
         super().__init__(parent)
         self._result: FitResult | None = None
+        self._diary: Diary | None = None
+        self._readiness = None
         self.measurement = MeasurementPanel()
         self.dynamics = DynamicsPanel()
         self.responses = ResponsesPanel()
@@ -58,6 +65,9 @@ class ResultsView(QWidget):
                                                     "State scores", "Lag-2 check")):
             self.tabs.addTab(panel, title)
         self.tabs.addTab(self.stability, "Stability")
+        self.warnings = WarningsStrip()
+        self.caution = CautionLine()
+        self.lag2.check_changed.connect(self._show_warnings)
         self.empty = QLabel(EMPTY_MESSAGE)
         self.empty.setAlignment(Qt.AlignmentFlag.AlignCenter)
         self.empty.setWordWrap(True)
@@ -72,7 +82,12 @@ class ResultsView(QWidget):
         self.stack.addWidget(self.tabs)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(0, 0, 0, 0)
-        layout.addWidget(self.stack)
+        layout.setSpacing(4)
+        layout.addWidget(self.warnings)
+        layout.addWidget(self.stack, 1)
+        layout.addWidget(self.caution)
+        self.warnings.hide()
+        self.caution.hide()
 
     @property
     def result(self) -> FitResult | None:
@@ -88,7 +103,9 @@ class ResultsView(QWidget):
         return (measurement, dynamics, self.responses, *others, self.state_scores, self.lag2)
 
     def set_diary(self, diary: Diary | None) -> None:
-        """The session's diary, whose days and missed prompts the state scores are drawn on."""
+        """The session's diary, whose days and missed prompts the state scores are drawn on and
+        whose readiness for the next shown result's model the warnings strip reports."""
+        self._diary = diary
         self.state_scores.set_diary(diary)
 
     def show_result(self, result: FitResult | None) -> None:
@@ -96,13 +113,28 @@ class ResultsView(QWidget):
         self._result = result
         if result is None:
             self.stack.setCurrentWidget(self.empty_page)
+            self.warnings.hide()
+            self.caution.hide()
             return
+        self._readiness = data_readiness(self._diary, result)
+        caution = caution_line(result)
+        for panel in (*self.all_panels(), self.stability):
+            panel.caution = caution
         for panel in self.all_panels():
             panel.show_result(result)
+        self.caution.show_result(result)
+        self._show_warnings()
         self.stability.show_result(result)
         self.parameters.show_bootstrap(self.stability.bootstrap)
         self.responses.set_bootstrap(self.stability.bootstrap)
         self.stack.setCurrentWidget(self.tabs)
+        self.warnings.show()
+        self.caution.show()
+
+    def _show_warnings(self) -> None:
+        if self._result is not None:
+            self.warnings.show_warnings(fit_warnings(self._result, self._readiness, self.lag2.check),
+                                        all_clear(self._readiness))
 
     def show_bootstrap(self, boot, result: FitResult | None = None) -> None:
         """A finished bootstrap (models.bootstrap.Bootstrap) of `result` (default: the shown

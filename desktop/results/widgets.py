@@ -21,10 +21,12 @@ class ResultsPanel(QWidget):
     """One results tab: a title row with an Export button above the panel's content.
 
     Subclasses fill `self.body`, implement `show_result`, and list what can be saved in
-    `pictures()` and `tables()` (label -> picture or table model).
+    `pictures()` and `tables()` (label -> picture or table model). `caution` (set by the
+    ResultsView) is written as the last line of every table saved as CSV.
     """
 
     name = "results"
+    caution = ""
 
     def __init__(self, title: str, parent: QWidget | None = None):
         super().__init__(parent)
@@ -86,16 +88,16 @@ class ResultsPanel(QWidget):
         if Path(path).suffix.lower() != "." + kind:
             path += "." + kind
         try:
-            save(target, path)
+            save(target, path, self.caution)
         except OSError as exc:
             QMessageBox.warning(self, "Could not save", plain(str(exc)))
 
 
-def save(target, path: str | Path) -> Path:
-    """Save a picture (PNG or SVG by suffix) or a table model (CSV)."""
+def save(target, path: str | Path, caution: str = "") -> Path:
+    """Save a picture (PNG or SVG by suffix) or a table model (CSV, `caution` its last line)."""
     suffix = Path(path).suffix.lower()
     if suffix == ".csv":
-        return save_table_csv(target, path)
+        return save_table_csv(target, path, caution)
     if suffix == ".svg":
         return save_scene_svg(target, path)
     return save_widget_png(target, path)

@@ -147,45 +147,58 @@ def test_innovation_matrices_show_engine_correlations(view):
                 assert model.data(model.index(i, j), DISPLAY) == fmt(matrix[i, j])
 
 
-def test_fit_table_shows_engine_indices_and_cautions(view):
+def test_fit_table_shows_engine_indices_grouped(view):
     result = demo_result()
     f = result.fit
-    s = f.scaled   # the calibrated test of the window estimators, shown first
-    expected = {
-        "Calibrated chi-square": fmt(s.chi2), "Calibrated df": fmt(s.df), "Calibrated p": fmt(s.p, "p"),
-        "Calibrated RMSEA": fmt(s.rmsea), "Calibrated CFI": fmt(s.cfi), "Calibrated TLI": fmt(s.tli),
-        "Chi-square": fmt(f.chi2), "Degrees of freedom (df)": str(f.df),
-        "p (chi-square)": fmt(f.p, "p"),
-        "RMSEA": fmt(f.rmsea), "RMSEA 90% interval, low": fmt(f.rmsea_ci[0]),
-        "RMSEA 90% interval, high": fmt(f.rmsea_ci[1]), "p (RMSEA ≤ .05)": fmt(f.rmsea_pclose, "p"),
-        "CFI": fmt(f.cfi), "TLI": fmt(f.tli), "SRMR": fmt(f.srmr), "Log-likelihood": fmt(f.loglik),
-        "AIC": fmt(f.aic), "BIC": fmt(f.bic), "Free parameters": str(f.n_free),
-        "Lag windows": str(result.n_windows), "Prompts (occasions)": str(result.n_occasions),
-        "Spectral radius of the lagged paths": fmt(result.spectral_radius),
-    }
+    s = f.scaled   # the calibrated test of the window estimators, shown first in its group
+    expected = [
+        ("Exact-fit test", ""),
+        ("Calibrated chi-square", fmt(s.chi2)), ("Calibrated df", fmt(s.df)),
+        ("Calibrated p", fmt(s.p, "p")),
+        ("Chi-square", fmt(f.chi2)), ("Degrees of freedom (df)", str(f.df)),
+        ("p (chi-square)", fmt(f.p, "p")),
+        ("Approximate fit", ""),
+        ("Calibrated RMSEA", fmt(s.rmsea)), ("Calibrated CFI", fmt(s.cfi)),
+        ("Calibrated TLI", fmt(s.tli)),
+        ("RMSEA", fmt(f.rmsea)), ("RMSEA 90% interval, low", fmt(f.rmsea_ci[0])),
+        ("RMSEA 90% interval, high", fmt(f.rmsea_ci[1])), ("p (RMSEA ≤ .05)", fmt(f.rmsea_pclose, "p")),
+        ("CFI", fmt(f.cfi)), ("TLI", fmt(f.tli)), ("SRMR", fmt(f.srmr)),
+        ("For comparing models", ""),
+        ("Log-likelihood", fmt(f.loglik)), ("AIC", fmt(f.aic)), ("BIC", fmt(f.bic)),
+        ("The estimate", ""),
+        ("Free parameters", str(f.n_free)), ("Lag windows", str(result.n_windows)),
+        ("Prompts (occasions)", str(result.n_occasions)),
+        ("Spectral radius of the lagged paths", fmt(result.spectral_radius)),
+    ]
     model = view.fit.figures
-    shown = {cell(model, r, "Measure"): cell(model, r, "Value") for r in range(model.rowCount())}
+    shown = [(cell(model, r, "Measure"), cell(model, r, "Value")) for r in range(model.rowCount())]
     assert shown == expected
-    document = QTextDocument()
-    document.setHtml(view.fit.cautions.text())
-    text = " ".join(document.toPlainText().split())
-    for caution in result.cautions:
-        assert " ".join(caution.split()) in text
-    assert CAUTION_IDIOGRAPHIC in result.cautions and CAUTION_PSEUDO in result.cautions
+    assert not view.fit.not_applicable.isVisible()
     guide = view.fit.guide.text()
     assert ".06" in guide and ".95" in guide and ".08" in guide and "not laws" in guide
 
 
-def test_flags_are_shown_in_the_warning_banner(lagwise_app, qtbot):
+def test_cautions_are_in_the_caution_line(view):
+    result = demo_result()
+    document = QTextDocument()
+    document.setHtml(view.caution.details.text())
+    text = " ".join(document.toPlainText().split())
+    for caution in result.cautions:
+        assert " ".join(caution.split()) in text
+    assert CAUTION_IDIOGRAPHIC in result.cautions and CAUTION_PSEUDO in result.cautions
+
+
+def test_flags_are_shown_in_the_warnings_strip(lagwise_app, qtbot):
     result = demo_variant()
     assert result.flags, "the variant with 42 parameters on 167 windows is flagged by the engine"
     widget = ResultsView()
     qtbot.addWidget(widget)
     widget.show_result(result)
     document = QTextDocument()
-    document.setHtml(widget.fit.banner.text())
+    document.setHtml(widget.warnings.details.text())
     for flag in result.flags:
         assert " ".join(flag.split()) in " ".join(document.toPlainText().split())
+    assert [w.code for w in widget.warnings.warnings] == [flag.code for flag in result.flags]
 
 
 # ----- the diagrams --------------------------------------------------------------------------
