@@ -370,9 +370,13 @@ class DiagramView(QGraphicsView):
         if rect.isEmpty():
             return
         view = self.viewport().rect()
-        text_px = LABEL_POINT_SIZE * self.logicalDpiY() / 72.0
-        scale = max(min(view.width() / rect.width(), view.height() / rect.height(), 1.25),
-                    MIN_TEXT_PX / text_px)
+        fitted = min(view.width() / rect.width(), view.height() / rect.height(), 1.25)
+        smallest = MIN_TEXT_PX / (LABEL_POINT_SIZE * self.logicalDpiY() / 72.0)
+        scale = max(fitted, smallest)
+        policy = (Qt.ScrollBarPolicy.ScrollBarAsNeeded if fitted < smallest
+                  else Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.setHorizontalScrollBarPolicy(policy)
+        self.setVerticalScrollBarPolicy(policy)
         self.resetTransform()
         self.scale(scale, scale)
         self.centerOn(rect.center())

@@ -117,11 +117,13 @@ class DynamicsPanel(ResultsPanel):
         column.setContentsMargins(0, 0, 0, 0)
         column.addWidget(section_label("Lagged paths"))
         column.addWidget(self.paths_view)
-        split = QSplitter(Qt.Orientation.Vertical)
-        split.addWidget(top)
-        split.addWidget(bottom)
-        split.setSizes([640, 260])
-        self.body.addWidget(split)
+        self.split = QSplitter(Qt.Orientation.Vertical)
+        self.split.addWidget(top)
+        self.split.addWidget(bottom)
+        self.split.setChildrenCollapsible(False)
+        self.split.setStretchFactor(0, 1)
+        self.split.setSizes([640, 260])
+        self.body.addWidget(self.split)
 
     def show_result(self, result: FitResult) -> None:
         self._result = result
@@ -144,6 +146,17 @@ class DynamicsPanel(ResultsPanel):
         self.scene.show_result(self._result, self.lag, self.label_box.currentData(),
                                self.alike_box.isChecked())
         self.paths.set_rows(lagged_parameters(self._result, self.lag))
+        self._fit_table()
+
+    def _fit_table(self) -> None:
+        """Give the table of lagged paths the height of all its rows, up to half the panel."""
+        view = self.paths_view
+        rows = view.verticalHeader().length() + view.horizontalHeader().height() + 2 * view.frameWidth() + 2
+        want = rows + view.parentWidget().layout().itemAt(0).sizeHint().height() + 4
+        total = sum(self.split.sizes())
+        if total > 0:
+            want = min(want, total // 2)
+            self.split.setSizes([total - want, want])
 
     def _show_inertia(self, result: FitResult) -> None:
         inertia = {p.to: p for p in lagged_parameters(result, 1) if p.from_ == p.to}
