@@ -23,7 +23,7 @@ MIN_WIDTH = 1.2
 MAX_WIDTH = 9.0
 FAINT_LIGHTEN = 0.5       # share of white mixed into a faint path's colour
 TINT_GREY = "#e6e6e6"     # the tint scale's neutral midpoint
-TINT_LIGHTEN = 0.5        # share of white mixed into the tint scale's ends
+TINT_LIGHTEN = 0.4        # share of white mixed into the tint scale's ends
 
 
 def mix(color: str | QColor, other: str | QColor, share: float) -> QColor:
