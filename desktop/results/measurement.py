@@ -68,7 +68,7 @@ class MeasurementPanel(ResultsPanel):
         bar_chart(self.r2_plot, names, r2, [fmt(v) for v in r2], horizontal=True, signed=False,
                   limits=(0.0, 1.25))
         self.r2_plot.getAxis("left").setStyle(showValues=False)
-        QTimer.singleShot(0, self._fit_chart)  # once the plots have laid out their new axes
+        QTimer.singleShot(0, self, self._fit_chart)  # once the plots have laid out their new axes
         marker = result.spec.identification == "marker"
         self.note.setText(
             ("Each state's marker item has its loading fixed at 1 (that sets the state's scale); "
