@@ -20,7 +20,7 @@ from PySide6.QtCore import (
 )
 from PySide6.QtGui import QAction, QColor, QGuiApplication, QImage, QPainter
 from PySide6.QtSvg import QSvgGenerator
-from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMenu, QMessageBox, QWidget
+from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMenu, QMessageBox, QPushButton, QWidget
 
 from lagwise.desktop.style import plain
 from lagwise.models.atomic import write_output
@@ -154,6 +154,15 @@ def export_menu(parent: QWidget, picture: Picture | None = None,
         table.triggered.connect(lambda: _ask_and_save(parent, table_model, name, "csv"))
         menu.addAction(table)
     return menu
+
+
+def menu_button(text: str = "Export", tip: str = "") -> QPushButton:
+    """A push button that opens its (initially empty) menu on click; unlike a tool button's
+    corner mark, its menu arrow has room of its own beside the text."""
+    button = QPushButton(text)
+    button.setToolTip(tip)
+    button.setMenu(QMenu(button))
+    return button
 
 
 # ----- helpers -----------------------------------------------------------------------

@@ -277,6 +277,8 @@ class MainWindow(QMainWindow):
         self.results.stability.run_requested.connect(self.run_bootstrap)
         self.results.responses.choice_changed.connect(
             lambda: s.set_responses(self.results.responses.response_choice()))
+        self.dynamics_page.set_estimate_action(self.estimate_action)
+        self.results.follow_worker(self.worker, JOB_ESTIMATE)
         self.worker.started.connect(self._run_started)
         self.worker.progress.connect(self._run_progress)
         self.worker.done.connect(self._run_done)

@@ -17,10 +17,11 @@ from html import escape
 
 import numpy as np
 from PySide6.QtCore import Qt, QTimer
+from PySide6.QtGui import QAction
 from PySide6.QtWidgets import (
     QAbstractItemView, QButtonGroup, QCheckBox, QComboBox, QFormLayout, QGroupBox, QHBoxLayout,
     QHeaderView, QLabel, QPushButton, QRadioButton, QScrollArea, QSpinBox, QTableWidget,
-    QTableWidgetItem, QVBoxLayout, QWidget,
+    QTableWidgetItem, QToolButton, QVBoxLayout, QWidget,
 )
 
 from lagwise.desktop import style
@@ -45,6 +46,9 @@ INNOVATION_NAMES = {
     "partial": "Partial correlations: choose which pairs are free",
 }
 CELL = Qt.ItemDataRole.UserRole + 1
+NO_PATHS_NOTE = ("No lag-{lag} path is ticked yet, so none will be estimated: tick the paths "
+                 "above or use a quick choice.")
+COMBO_CHARACTERS = 24   # combo boxes show this many characters; the full text is in the list
 
 
 class PathGrid(QGroupBox):
@@ -80,6 +84,11 @@ class PathGrid(QGroupBox):
             quick.addWidget(button)
         quick.addStretch(1)
         layout.addLayout(quick)
+        self.empty_note = QLabel(NO_PATHS_NOTE.format(lag=lag))
+        self.empty_note.setObjectName(f"noPathsNote{lag}")
+        self.empty_note.setWordWrap(True)
+        self.empty_note.setStyleSheet(f"color: {style.NOTE};")
+        layout.addWidget(self.empty_note)
         self._syncing = False
 
     def show_mask(self, spec: ModelSpec) -> None:
@@ -105,6 +114,7 @@ class PathGrid(QGroupBox):
                 self.table.setItem(i, j, cell)
         self.table.setFixedHeight(self.table.horizontalHeader().height()
                                   + sum(self.table.rowHeight(r) for r in range(len(names))) + 6)
+        self.empty_note.setVisible(not mask.any())
         self._syncing = False
 
     def _toggled(self, cell: QTableWidgetItem) -> None:
@@ -136,7 +146,21 @@ class DynamicsPage(QWidget):
         outer = QVBoxLayout(self)
         title = QLabel("Dynamics")
         title.setFont(style.heading_font(self.font()))
-        outer.addWidget(title)
+        head = QHBoxLayout()
+        head.addWidget(title)
+        head.addStretch(1)
+        self.estimate_button = QToolButton()
+        self.estimate_button.setObjectName("estimateButton")
+        self.estimate_button.setText("Estimate")
+        self.estimate_button.setEnabled(False)
+        self.estimate_button.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextOnly)
+        self.estimate_button.setStyleSheet(
+            f"QToolButton {{ background: {style.POSITIVE}; color: {style.PAPER}; font-weight: bold;"
+            f" border: none; border-radius: 4px; padding: 7px 22px; }}"
+            f"QToolButton:hover {{ background: #176d68; }}"
+            f"QToolButton:disabled {{ background: {style.RULE}; color: {style.MUTED}; }}")
+        head.addWidget(self.estimate_button)
+        outer.addLayout(head)
         scroll = QScrollArea()
         scroll.setWidgetResizable(True)
         scroll.setFrameShape(QScrollArea.Shape.NoFrame)
@@ -170,7 +194,7 @@ class DynamicsPage(QWidget):
 
         innovation_box = QGroupBox("Innovations (what is new at each prompt)")
         innovation_layout = QVBoxLayout(innovation_box)
-        self.innovation_combo = QComboBox()
+        self.innovation_combo = _combo()
         self.innovation_combo.setAccessibleName("Innovation form")
         for key, text in INNOVATION_NAMES.items():
             self.innovation_combo.addItem(text, key)
@@ -203,7 +227,7 @@ class DynamicsPage(QWidget):
 
         estimate_box = QGroupBox("Estimation")
         form = QFormLayout(estimate_box)
-        self.estimator_combo = QComboBox()
+        self.estimator_combo = _combo()
         self.estimator_combo.setAccessibleName("Estimator")
         for key, method in ESTIMATORS.items():
             self.estimator_combo.addItem(method.label, key)
@@ -214,7 +238,7 @@ class DynamicsPage(QWidget):
         self.estimator_help = _note()
         self.estimator_help.setObjectName("estimatorHelp")
         form.addRow(self.estimator_help)
-        self.missing_combo = QComboBox()
+        self.missing_combo = _combo()
         self.missing_combo.setAccessibleName("Missing prompts")
         for key, handling in MISSING.items():
             self.missing_combo.addItem(handling.label, key)
@@ -222,7 +246,7 @@ class DynamicsPage(QWidget):
         self.missing_label = QLabel("&Missed prompts:")
         self.missing_label.setBuddy(self.missing_combo)
         form.addRow(self.missing_label, self.missing_combo)
-        self.errors_combo = QComboBox()
+        self.errors_combo = _combo()
         self.errors_combo.setAccessibleName("Standard errors")
         for key, words in ERRORS.items():
             self.errors_combo.addItem(words[:1].upper() + words[1:], key)
@@ -230,7 +254,7 @@ class DynamicsPage(QWidget):
         self.errors_label = QLabel("Standard e&rrors:")
         self.errors_label.setBuddy(self.errors_combo)
         form.addRow(self.errors_label, self.errors_combo)
-        self.depth_combo = QComboBox()
+        self.depth_combo = _combo()
         self.depth_combo.setAccessibleName("Prompts per lag window")
         self.depth_combo.currentIndexChanged.connect(self._options_chosen)
         self.depth_label = QLabel("Lag &window:")
@@ -282,6 +306,10 @@ class DynamicsPage(QWidget):
         self.problem_label.setWordWrap(True)
         right.addWidget(self.problem_label)
         right.addStretch(1)
+
+    def set_estimate_action(self, action: QAction) -> None:
+        """The window's Estimate action, which the page's Estimate button triggers and follows."""
+        self.estimate_button.setDefaultAction(action)
 
     # ----- showing the session -------------------------------------------------------
     def refresh(self) -> None:
@@ -527,6 +555,15 @@ def _note() -> QLabel:
     label.setWordWrap(True)
     label.setStyleSheet(f"color: {style.MUTED};")
     return label
+
+
+def _combo() -> QComboBox:
+    """A combo box as wide as COMBO_CHARACTERS, whatever its longest choice (the page fits
+    the window; the open list shows every choice in full)."""
+    combo = QComboBox()
+    combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+    combo.setMinimumContentsLength(COMBO_CHARACTERS)
+    return combo
 
 
 def _select(combo: QComboBox, key: str) -> None:

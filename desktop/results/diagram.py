@@ -3,7 +3,7 @@
 Drawing only: every value, label and tooltip arrives ready in `Link`s built by the views.
 States sit on a circle; an arrow between two states that have paths both ways is curved,
 so the two never overlap. Colour and dash follow the sign, width the standardized size
-(desktop/results/palette.py).
+(desktop/results/palette.py); a link that is not `firm` is drawn faint and beneath the firm ones.
 """
 
 from __future__ import annotations
@@ -18,14 +18,15 @@ from PySide6.QtWidgets import (QGraphicsEllipseItem, QGraphicsItem, QGraphicsPat
                                QGraphicsRectItem, QGraphicsScene, QGraphicsSimpleTextItem, QGraphicsTextItem,
                                QGraphicsView)
 
-from lagwise.desktop.results.palette import LABEL_FILL, NEGATIVE, NEUTRAL, NODE_FILL, POSITIVE, effect_pen, line_width
+from lagwise.desktop.results.palette import LABEL_FILL, NEUTRAL, NODE_FILL, effect_pen, line_width, sign_color
 from lagwise.desktop.style import INK, plain
 from lagwise.models.results import Parameter
 
-NODE_GAP = 340.0          # distance between neighbouring states on the circle
+NODE_GAP = 250.0          # distance between neighbouring states on the circle
 LABEL_POINT_SIZE = 11.0
 LABEL_SPOTS = (0.5, 0.42, 0.58, 0.34, 0.66, 0.27, 0.73)  # fractions of a line's length
-LEGEND_WIDTH = 230.0
+LEGEND_WIDTH = 210.0
+MIN_TEXT_PX = 10.0        # smallest on-screen text size the view allows (common practice: about 10 px)
 
 
 @dataclass(frozen=True)
@@ -42,7 +43,8 @@ class Link:
     """A path between two states (a loop when source == target).
 
     value: the signed engine number that picks colour and dash; size: the standardized
-    size that sets the width; label: the text on the line.
+    size that sets the width; label: the text on the line; firm: False draws it faint (the
+    views set it from the engine's 95% interval).
     """
 
     source: str
@@ -53,6 +55,7 @@ class Link:
     tooltip: str
     directed: bool = True
     parameter: Parameter | None = None
+    firm: bool = True
 
 
 class LinkItem(QGraphicsPathItem):
@@ -61,9 +64,9 @@ class LinkItem(QGraphicsPathItem):
     def __init__(self, link: Link):
         super().__init__()
         self.link = link
-        self.setPen(effect_pen(link.value, link.size))
+        self.setPen(effect_pen(link.value, link.size, link.firm))
         self.setToolTip(plain(link.tooltip))
-        self.setZValue(1)
+        self.setZValue(1 if link.firm else 0.5)
         self.label_item: QGraphicsRectItem | None = None
 
     def shape(self) -> QPainterPath:
@@ -117,8 +120,9 @@ class DiagramScene(QGraphicsScene):
 
     def draw(self, nodes: Sequence[Node], links: Sequence[Link], title: str = "",
              legend: Sequence[str] = (), message: str = "",
-             width_words: str = "width by standardized size:") -> None:
-        """Draw states, links, a title above and a legend at the right; `message` notes absent links."""
+             width_words: str = "width by standardized size:", faint_words: str = "") -> None:
+        """Draw states, links, a title above and a legend at the right; `message` notes absent
+        links; `faint_words` (when given) explains the faint links in the legend."""
         self.clear()
         self._links = []
         names = [n.name for n in nodes]
@@ -149,7 +153,7 @@ class DiagramScene(QGraphicsScene):
             text.setPos(body.center().x() - text.boundingRect().width() / 2,
                         body.top() - text.boundingRect().height() - 14)
         if legend:
-            self._add_legend(legend, width_words, self.itemsBoundingRect())
+            self._add_legend(legend, width_words, faint_words, self.itemsBoundingRect())
         self.setSceneRect(self.itemsBoundingRect().adjusted(-24, -20, 24, 20))
         self.redrawn.emit()
 
@@ -221,11 +225,11 @@ class DiagramScene(QGraphicsScene):
         """The value in a small box on the line (or, with `outward`, just beyond a loop)."""
         text = QGraphicsSimpleTextItem(item.link.label)
         text.setFont(self._font)
-        text.setBrush(QBrush(QColor(INK)))
+        text.setBrush(QBrush(QColor(INK if item.link.firm else NEUTRAL)))
         tr = text.boundingRect()
         box = QGraphicsRectItem(QRectF(-tr.width() / 2 - 4, -tr.height() / 2 - 1, tr.width() + 8, tr.height() + 2))
         box.setBrush(QBrush(QColor(LABEL_FILL)))
-        box.setPen(QPen(QColor(POSITIVE if item.link.value >= 0 else NEGATIVE), 0.8))
+        box.setPen(QPen(sign_color(item.link.value, item.link.firm), 0.8))
         if outward is not None:
             reach = abs(outward.x()) * (tr.width() / 2 + 4) + abs(outward.y()) * (tr.height() / 2 + 1)
             at = at + outward * (reach + item.pen().widthF() / 2 + 3)
@@ -290,17 +294,18 @@ class DiagramScene(QGraphicsScene):
         apex = start * 0.125 + c1 * 0.375 + c2 * 0.375 + end * 0.125
         self._add_label(item, apex, outward=out)
 
-    def _add_legend(self, lines: Sequence[str], width_words: str, body: QRectF) -> None:
-        """A legend column right of the diagram: sign samples, width samples, then `lines`."""
+    def _add_legend(self, lines: Sequence[str], width_words: str, faint_words: str, body: QRectF) -> None:
+        """A legend column right of the diagram: sign samples, width samples, the faint samples
+        (with `faint_words`), then `lines`."""
         x = body.right() + 48
         y = 0.0
         column: list[QGraphicsItem] = []
 
-        def sample(value: float, size: float, words: str) -> None:
+        def sample(value: float, size: float, words: str, firm: bool = True) -> None:
             nonlocal y
             text = self._text(words)
             height = text.boundingRect().height()
-            column.append(self._legend_line(x, y + height / 2, value, size, length=44))
+            column.append(self._legend_line(x, y + height / 2, value, size, firm, length=44))
             text.setPos(x + 54, y)
             column.append(text)
             y += height + 6
@@ -314,12 +319,18 @@ class DiagramScene(QGraphicsScene):
         y += heading.boundingRect().height() + 4
         for size in (0.1, 0.3, 0.5):
             sample(1.0, size, f"{size:.1f}")
+        if faint_words:
+            y += 8
+            heading = self._text(faint_words)
+            heading.setPos(x, y)
+            column.append(heading)
+            y += heading.boundingRect().height() + 4
+            sample(0.3, 0.3, "positive", firm=False)
+            sample(-0.3, 0.3, "negative", firm=False)
         y += 10
         for line in lines:
             text = QGraphicsTextItem()
-            font = QFont(self._font)
-            font.setPointSizeF(LABEL_POINT_SIZE * 0.9)
-            text.setFont(font)
+            text.setFont(self._font)
             text.setDefaultTextColor(QColor(NEUTRAL))
             text.setTextWidth(LEGEND_WIDTH)
             text.setPlainText(line)
@@ -331,25 +342,24 @@ class DiagramScene(QGraphicsScene):
         for item in column:
             item.moveBy(0.0, shift)
 
-    def _legend_line(self, x: float, y: float, value: float, size: float,
+    def _legend_line(self, x: float, y: float, value: float, size: float, firm: bool = True,
                      length: float = 52) -> QGraphicsPathItem:
         path = QPainterPath(QPointF(x, y))
         path.lineTo(x + length, y)
         item = QGraphicsPathItem(path)
-        item.setPen(effect_pen(value, size))
+        item.setPen(effect_pen(value, size, firm))
         self.addItem(item)
         return item
 
 
 class DiagramView(QGraphicsView):
-    """Shows a DiagramScene scaled to fit (never enlarged beyond 1.25x)."""
+    """Shows a DiagramScene scaled to fit (never enlarged beyond 1.25x, never shrunk so far that
+    its text is smaller than MIN_TEXT_PX on screen: then it scrolls)."""
 
     def __init__(self, scene: DiagramScene, parent=None):
         super().__init__(scene, parent)
         self.setRenderHint(QPainter.RenderHint.Antialiasing)
         self.setRenderHint(QPainter.RenderHint.TextAntialiasing)
-        self.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
-        self.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
         self.setFrameShape(QGraphicsView.Shape.StyledPanel)
         self.setBackgroundBrush(QBrush(QColor("white")))
         self.setMinimumSize(320, 260)
@@ -360,7 +370,13 @@ class DiagramView(QGraphicsView):
         if rect.isEmpty():
             return
         view = self.viewport().rect()
-        scale = min(view.width() / rect.width(), view.height() / rect.height(), 1.25)
+        fitted = min(view.width() / rect.width(), view.height() / rect.height(), 1.25)
+        smallest = MIN_TEXT_PX / (LABEL_POINT_SIZE * self.logicalDpiY() / 72.0)
+        scale = max(fitted, smallest)
+        policy = (Qt.ScrollBarPolicy.ScrollBarAsNeeded if fitted < smallest
+                  else Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.setHorizontalScrollBarPolicy(policy)
+        self.setVerticalScrollBarPolicy(policy)
         self.resetTransform()
         self.scale(scale, scale)
         self.centerOn(rect.center())

@@ -2,13 +2,15 @@
 
 States are circles; each free cross-lagged effect is an arrow from the state at t-lag to
 the state at t; each state's inertia (its own lagged path) is a loop on its circle. Values
-are the engine's; line width follows the standardized size (palette.line_width).
+are the engine's; line width follows the standardized size (palette.line_width). A path whose
+95% interval (the engine's `Parameter.ci`) includes 0 is drawn faint unless "Show all paths
+alike" is ticked.
 """
 
 from __future__ import annotations
 
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import QComboBox, QLabel, QSplitter, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QCheckBox, QComboBox, QLabel, QSplitter, QVBoxLayout, QWidget
 
 from lagwise.desktop.results.charts import bar_chart, plot_widget, style_plot
 from lagwise.desktop.results.diagram import DiagramScene, DiagramView, Link, Node
@@ -18,6 +20,7 @@ from lagwise.desktop.results.widgets import ResultsPanel, note_label, section_la
 from lagwise.models.results import FitResult, Parameter
 
 LABEL_MODES = {"standardized": "Standardized", "estimate": "Estimate"}
+FAINT_WORDS = "faint: 95% interval includes 0"
 
 
 def _heading(p: Parameter, lag: int) -> str:
@@ -31,18 +34,26 @@ def _label(p: Parameter, mode: str) -> str:
     return fmt(value)
 
 
-def dynamics_links(result: FitResult, lag: int = 1, mode: str = "standardized") -> list[Link]:
-    """One Link per free lagged path at `lag` (loops for a state's own path)."""
+def is_firm(p: Parameter) -> bool:
+    """False when the 95% interval includes 0; True without an interval (nothing to judge)."""
+    return p.ci is None or not p.ci[0] <= 0.0 <= p.ci[1]
+
+
+def dynamics_links(result: FitResult, lag: int = 1, mode: str = "standardized",
+                   alike: bool = False) -> list[Link]:
+    """One Link per free lagged path at `lag` (loops for a state's own path); paths whose
+    interval includes 0 are not firm unless `alike`."""
     return [Link(p.from_, p.to, p.estimate, p.standardized, _label(p, mode), parameter_tooltip(_heading(p, lag), p),
-                 directed=True, parameter=p)
+                 directed=True, parameter=p, firm=alike or is_firm(p))
             for p in lagged_parameters(result, lag)]
 
 
 class DynamicsDiagram(DiagramScene):
     """The dynamics path diagram of one result at one lag."""
 
-    def show_result(self, result: FitResult, lag: int = 1, mode: str = "standardized") -> None:
-        links = dynamics_links(result, lag, mode)
+    def show_result(self, result: FitResult, lag: int = 1, mode: str = "standardized",
+                    alike: bool = False) -> None:
+        links = dynamics_links(result, lag, mode, alike)
         nodes = [Node(s, tooltip=f"State {s}") for s in result.states]
         what = "standardized effects" if mode == "standardized" else "estimates"
         own = "inertia" if lag == 1 else "own lag-2 path"
@@ -51,7 +62,8 @@ class DynamicsDiagram(DiagramScene):
         cross = [l for l in links if l.source != l.target]
         message = "" if cross else "No cross-lagged effects are free in this model."
         title = "Lag-1 dynamics" if lag == 1 else "Lag-2 paths"
-        self.draw(nodes, links, title=title, legend=legend, message=message)
+        self.draw(nodes, links, title=title, legend=legend, message=message,
+                  faint_words="" if alike else FAINT_WORDS)
 
     def arrows(self) -> list:
         """The drawn cross-lagged arrows (loops excluded)."""
@@ -74,10 +86,15 @@ class DynamicsPanel(ResultsPanel):
             self.label_box.addItem(words, key)
         self.label_box.setToolTip("What the numbers on the paths show")
         self.label_box.currentIndexChanged.connect(self._redraw)
+        self.alike_box = QCheckBox("Show all paths alike")
+        self.alike_box.setToolTip("Draw paths whose 95% interval includes 0 like the others "
+                                  "(by default they are faint)")
+        self.alike_box.toggled.connect(self._redraw)
         index = self.head.indexOf(self.export_button)
-        for offset, widget in enumerate((QLabel("Lag"), self.lag_box, QLabel("Labels"), self.label_box)):
+        for offset, widget in enumerate((self.alike_box, QLabel("Lag"), self.lag_box, QLabel("Labels"),
+                                         self.label_box)):
             self.head.insertWidget(index + offset, widget)
-        self.head.insertSpacing(index + 4, 12)
+        self.head.insertSpacing(index + 5, 12)
 
         self.scene = DynamicsDiagram(self)
         self.diagram_view = DiagramView(self.scene)
@@ -100,11 +117,13 @@ class DynamicsPanel(ResultsPanel):
         column.setContentsMargins(0, 0, 0, 0)
         column.addWidget(section_label("Lagged paths"))
         column.addWidget(self.paths_view)
-        split = QSplitter(Qt.Orientation.Vertical)
-        split.addWidget(top)
-        split.addWidget(bottom)
-        split.setSizes([640, 260])
-        self.body.addWidget(split)
+        self.split = QSplitter(Qt.Orientation.Vertical)
+        self.split.addWidget(top)
+        self.split.addWidget(bottom)
+        self.split.setChildrenCollapsible(False)
+        self.split.setStretchFactor(0, 1)
+        self.split.setSizes([640, 260])
+        self.body.addWidget(self.split)
 
     def show_result(self, result: FitResult) -> None:
         self._result = result
@@ -124,8 +143,20 @@ class DynamicsPanel(ResultsPanel):
     def _redraw(self) -> None:
         if self._result is None:
             return
-        self.scene.show_result(self._result, self.lag, self.label_box.currentData())
+        self.scene.show_result(self._result, self.lag, self.label_box.currentData(),
+                               self.alike_box.isChecked())
         self.paths.set_rows(lagged_parameters(self._result, self.lag))
+        self._fit_table()
+
+    def _fit_table(self) -> None:
+        """Give the table of lagged paths the height of all its rows, up to half the panel."""
+        view = self.paths_view
+        rows = view.verticalHeader().length() + view.horizontalHeader().height() + 2 * view.frameWidth() + 2
+        want = rows + view.parentWidget().layout().itemAt(0).sizeHint().height() + 4
+        total = sum(self.split.sizes())
+        if total > 0:
+            want = min(want, total // 2)
+            self.split.setSizes([total - want, want])
 
     def _show_inertia(self, result: FitResult) -> None:
         inertia = {p.to: p for p in lagged_parameters(result, 1) if p.from_ == p.to}

@@ -14,7 +14,7 @@ import html
 
 from PySide6.QtCore import QSortFilterProxyModel, Qt, Signal
 from PySide6.QtGui import QBrush, QColor, QFont
-from PySide6.QtWidgets import QHBoxLayout, QLabel, QPushButton
+from PySide6.QtWidgets import QHBoxLayout, QLabel, QPushButton, QSizePolicy
 
 from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
 from lagwise.desktop.results.tables import SORT_ROLE, Column, RecordsModel
@@ -166,6 +166,12 @@ class Lag2View(ResultsPanel):
         self.guide = note_label(READING_GUIDE)
         for label in (self.multiplicity, self.cautions, self.guide):
             self.body.addWidget(label)
+        for label in (self.problems, self.adopt_hint, self.multiplicity, self.cautions, self.guide):
+            # Wrapped text takes its height for the width it gets (the layout asks it); a fixed
+            # minimum from its narrow preferred shape would make every results tab taller.
+            policy = label.sizePolicy()
+            policy.setVerticalPolicy(QSizePolicy.Policy.Preferred)
+            label.setSizePolicy(policy)
         self.show_check(None)
 
     # ----- showing a check --------------------------------------------------------------

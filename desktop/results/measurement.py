@@ -8,7 +8,7 @@ states explain). All numbers come from the FitResult.
 from __future__ import annotations
 
 import pyqtgraph as pg
-from PySide6.QtCore import Qt
+from PySide6.QtCore import Qt, QTimer
 from PySide6.QtWidgets import QSplitter, QVBoxLayout, QWidget
 
 from lagwise.desktop.results.charts import bar_chart, style_plot
@@ -59,7 +59,7 @@ class MeasurementPanel(ResultsPanel):
         rows = loading_rows(result)
         self.loadings.set_rows(rows)
         fit_height(self.table)
-        self.left.setFixedWidth(table_width(self.table))
+        self.left.setMaximumWidth(table_width(self.table))
         names = [f"{r.parameter.to} ({r.parameter.from_})" for r in rows]
         std = [r.parameter.standardized for r in rows]
         bar_chart(self.loading_plot, names, std, [fmt(v) for v in std], horizontal=True,
@@ -68,6 +68,7 @@ class MeasurementPanel(ResultsPanel):
         bar_chart(self.r2_plot, names, r2, [fmt(v) for v in r2], horizontal=True, signed=False,
                   limits=(0.0, 1.25))
         self.r2_plot.getAxis("left").setStyle(showValues=False)
+        QTimer.singleShot(0, self, self._fit_chart)  # once the plots have laid out their new axes
         marker = result.spec.identification == "marker"
         self.note.setText(
             ("Each state's marker item has its loading fixed at 1 (that sets the state's scale); "
@@ -75,6 +76,16 @@ class MeasurementPanel(ResultsPanel):
             + "the standardized loading puts every item on the same scale. R² is the share of an "
             "item's variance explained by its state; the rest is the item's unique variance. "
             "95% intervals are estimate ± 1.96 SE.")
+
+    def _fit_chart(self) -> None:
+        """Keep both plots whole: the chart no narrower than its plots need, the table beside
+        it as wide as its columns when there is room (it scrolls sideways otherwise)."""
+        self.chart.setMinimumWidth(round(self.chart.ci.minimumWidth()) + 2)
+        width = self.left.maximumWidth()
+        self.split.setSizes([width, max(self.split.width() - width, 1)])
+        fit_height(self.table)
+        if self.split.sizes()[0] < width:  # room for the sideways scroll bar below the rows
+            self.table.setFixedHeight(self.table.maximumHeight() + self.table.horizontalScrollBar().sizeHint().height())
 
     def pictures(self) -> dict:
         return {"loading chart": self.chart}

@@ -17,7 +17,7 @@ import numpy as np
 from PySide6.QtCore import QAbstractTableModel, QModelIndex, QPersistentModelIndex, Qt
 from PySide6.QtGui import QBrush, QColor
 
-from lagwise.desktop.results.palette import NEGATIVE, POSITIVE
+from lagwise.desktop.results.palette import tint
 from lagwise.models.kinds import Kind
 from lagwise.models.numbers import fmt
 from lagwise.models.results import FitResult, Parameter
@@ -130,9 +130,7 @@ class MatrixModel(QAbstractTableModel):
         if role == Qt.ItemDataRole.BackgroundRole:
             if index.row() == index.column() or not math.isfinite(value):
                 return QBrush(QColor("#f1f1f1"))
-            color = QColor(POSITIVE if value >= 0 else NEGATIVE)
-            color.setAlphaF(0.12 + 0.6 * min(abs(value), 1.0))
-            return QBrush(color)
+            return QBrush(tint(value))
         return None
 
     def headerData(self, section, orientation, role=Qt.ItemDataRole.DisplayRole):

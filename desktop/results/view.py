@@ -32,6 +32,7 @@ from lagwise.models.results import FitResult
 EMPTY_MESSAGE = ("No results yet.\n\nAssign items to states, choose the lagged paths, "
                  "then press Estimate: the loadings, dynamics, innovations, fit and every "
                  "parameter will appear here.")
+ESTIMATING_MESSAGE = "Estimating…\n\nThe results will appear here when the estimation finishes."
 
 
 class ResultsView(QWidget):
@@ -88,6 +89,16 @@ class ResultsView(QWidget):
         layout.addWidget(self.caution)
         self.warnings.hide()
         self.caution.hide()
+
+    def follow_worker(self, worker, job: str) -> None:
+        """Say "Estimating…" instead of the empty message while `worker` runs a `job` run."""
+        self._worker, self._job = worker, job
+        worker.started.connect(self._worker_changed)
+        worker.idle.connect(self._worker_changed)
+
+    def _worker_changed(self) -> None:
+        running = self._worker.busy and self._worker.job == self._job
+        self.empty.setText(ESTIMATING_MESSAGE if running else EMPTY_MESSAGE)
 
     @property
     def result(self) -> FitResult | None:

@@ -7,10 +7,9 @@ from pathlib import Path
 from PySide6.QtCore import QAbstractItemModel, Qt
 from PySide6.QtGui import QAction
 from PySide6.QtWidgets import (QAbstractItemView, QFileDialog, QHBoxLayout, QHeaderView, QLabel,
-                               QMenu, QMessageBox, QSizePolicy, QTableView, QToolButton,
-                               QVBoxLayout, QWidget)
+                               QMessageBox, QSizePolicy, QTableView, QVBoxLayout, QWidget)
 
-from lagwise.desktop.export import Picture, save_scene_svg, save_table_csv, save_widget_png
+from lagwise.desktop.export import Picture, menu_button, save_scene_svg, save_table_csv, save_widget_png
 from lagwise.desktop.style import plain
 from lagwise.models.results import FitResult
 
@@ -43,11 +42,7 @@ class ResultsPanel(QWidget):
         head.addWidget(self.title)
         head.addStretch(1)
         self.head = head
-        self.export_button = QToolButton()
-        self.export_button.setText("Export")
-        self.export_button.setToolTip("Save the pictures (PNG, SVG) and numbers (CSV) of this tab")
-        self.export_button.setPopupMode(QToolButton.ToolButtonPopupMode.InstantPopup)
-        self.export_button.setMenu(QMenu(self.export_button))
+        self.export_button = menu_button(tip="Save the pictures (PNG, SVG) and numbers (CSV) of this tab")
         self.export_button.menu().aboutToShow.connect(self._fill_export_menu)
         head.addWidget(self.export_button)
         outer.addLayout(head)

@@ -23,6 +23,7 @@ from lagwise.desktop.results.tables import SORT_ROLE
 from lagwise.models.kinds import Kind
 from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import save
+from lagwise.desktop.results.palette import sign_color
 from lagwise.desktop.style import NEGATIVE, POSITIVE
 from lagwise.models.results import CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO
 from results_fixture import demo_result, demo_variant
@@ -203,11 +204,14 @@ def test_flags_are_shown_in_the_warnings_strip(lagwise_app, qtbot):
 
 # ----- the diagrams --------------------------------------------------------------------------
 def assert_sign_style(item, value: float) -> None:
+    """Teal and solid, or orange and dashed; a faint path (interval includes 0) in a light
+    version of the same colour (tests/desktop/test_diagram_look.py checks the faint look)."""
     pen = item.pen()
     if value >= 0:
-        assert pen.color() == QColor(POSITIVE) and pen.style() == Qt.PenStyle.SolidLine
+        assert pen.color() == sign_color(value, item.link.firm) and pen.style() == Qt.PenStyle.SolidLine
     else:
-        assert pen.color() == QColor(NEGATIVE) and pen.style() != Qt.PenStyle.SolidLine
+        assert pen.color() == sign_color(value, item.link.firm) and pen.style() != Qt.PenStyle.SolidLine
+    assert sign_color(value) == QColor(POSITIVE if value >= 0 else NEGATIVE)
 
 
 def test_dynamics_diagram_has_one_arrow_per_free_cross_lagged_path(view):
