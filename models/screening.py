@@ -147,7 +147,7 @@ class ItemScreen:
     @property
     def flags(self) -> tuple[str, ...]:
         """Short words for this item's warnings (e.g. "strong trend", "barely varies")."""
-        return tuple(flag for flag, _ in _item_findings(self))
+        return tuple(flag for flag, _ in item_findings(self))
 
     def to_json(self) -> dict:
         out = _clean(asdict(self))
@@ -470,7 +470,7 @@ def readiness(diary: Diary, screens: list[ItemScreen] | tuple[ItemScreen, ...],
         listed = ", ".join(f"{w.week} ({100 * w.fraction:.0f}%)" for w in low)
         notes.append(f"Fewer than half of the prompts were answered in week {listed}.")
     for s in screens:
-        notes += [sentence for _, sentence in _item_findings(s)]
+        notes += [sentence for _, sentence in item_findings(s)]
     for j, name in enumerate(diary.items):   # what fit would refuse (models.conditioning)
         problem = item_problem(name, diary.values[:, j])
         if problem:
@@ -481,7 +481,7 @@ def readiness(diary: Diary, screens: list[ItemScreen] | tuple[ItemScreen, ...],
                      warnings=tuple(notes))
 
 
-def _item_findings(s: ItemScreen) -> list[tuple[str, str]]:
+def item_findings(s: ItemScreen) -> list[tuple[str, str]]:
     """(short flag, sentence) for each rule of thumb the item fails."""
     notes = []
     if s.answered < MIN_ITEM_ANSWERS:
