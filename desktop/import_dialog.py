@@ -194,7 +194,8 @@ class ImportDialog(QDialog):
         header.setSectionResizeMode(1, QHeaderView.ResizeMode.Stretch)
         header.setSectionResizeMode(2, QHeaderView.ResizeMode.ResizeToContents)
         self.roles_table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
-        left_layout.addWidget(self.roles_table)
+        left_layout.addWidget(self.roles_table, 3)
+        left_layout.addWidget(self._build_scales(), 2)
         hint = QLabel("Item: an answer to analyse. Day and prompt number place answers on a "
                       "daily grid; a timestamp places them by clock time.")
         hint.setWordWrap(True)
@@ -228,7 +229,6 @@ class ImportDialog(QDialog):
         self.gap_spin.valueChanged.connect(self.update_preview)
         form.addRow("Longest &gap in a segment:", self.gap_spin)
         right_layout.addWidget(options)
-        right_layout.addWidget(self._build_scales())
 
         preview = QGroupBox("Preview of the diary")
         preview_layout = QVBoxLayout(preview)
@@ -382,8 +382,8 @@ class ImportDialog(QDialog):
         layout.addWidget(self.scales_table)
         return box
 
-    def _build_far_values(self) -> QHBoxLayout:
-        row = QHBoxLayout()
+    def _build_far_values(self) -> QVBoxLayout:
+        row = QVBoxLayout()
         self.far_label = QLabel()
         self.far_label.setObjectName("farValues")
         self.far_label.setWordWrap(True)
@@ -392,8 +392,8 @@ class ImportDialog(QDialog):
         self.far_button = QPushButton()
         self.far_button.setObjectName("farValuesMissing")
         self.far_button.clicked.connect(self.treat_far_values_as_missing)
-        row.addWidget(self.far_label, 1)
-        row.addWidget(self.far_button)
+        row.addWidget(self.far_label)
+        row.addWidget(self.far_button, 0, Qt.AlignmentFlag.AlignLeft)
         self._show_far_values(None)
         return row
 

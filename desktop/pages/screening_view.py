@@ -74,7 +74,8 @@ class ScreeningView(QWidget):
         self._build()
         self._worker.started.connect(self.progress_label.show)
         self._worker.progress.connect(
-            lambda fraction, message: self.progress_label.setText(f"{message} ({fraction:.0%})"))
+            lambda fraction, message: self.progress_label.setText(
+                f"{escape(message)} ({fraction:.0%})"))  # the message may quote an item name
         self._worker.done.connect(self._show)
         self._worker.error.connect(lambda message, _details: self.progress_label.setText(
             f"<span style='color:{style.WARNING}'>⚠ {escape(message)}</span>"))
@@ -212,6 +213,7 @@ class ScreeningView(QWidget):
         self._shown_columns = 0
         self.progress_label = QLabel()
         self.progress_label.setObjectName("screeningProgress")
+        self.progress_label.setTextFormat(Qt.TextFormat.RichText)
         self.progress_label.hide()
         bottom_layout.addWidget(self.progress_label)
         self.plot_scroll = QScrollArea()
