@@ -242,6 +242,8 @@ class DataPage(QWidget):
         if steps:
             text += (f"<br>Before estimation: {escape(describe(steps))} (see Screening). The series "
                      "below are the answers as given.")
+        else:  # a line either way: ticking a step moves nothing below (no repaint of the plots)
+            text += "<br>No preparation before estimation (see Screening)."
         self.summary_label.setText(text)
 
     def shown_items(self) -> list[str]:
