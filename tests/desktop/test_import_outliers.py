@@ -95,3 +95,24 @@ def test_scales_are_guessed_and_can_be_typed_over(dialog, qtbot, tmp_path):
     table.item(1, 2).setText("7 to 1")
     assert not dialog.buttons.buttons()[0].isEnabled() or dialog.diary() is None
     assert "LOW-HIGH" in dialog.error_label.text()
+
+
+def test_the_scales_reach_the_session_and_the_project(qtbot, lagwise_app, tmp_path):
+    from PySide6.QtWidgets import QDialogButtonBox
+
+    from lagwise.models.project import open_project, save_project
+    from window_helpers import open_window, settle
+
+    write_diary(tmp_path / "diary.csv", codes=())
+    window = open_window(qtbot)
+    dialog = window.import_dialog(tmp_path / "diary.csv")
+    qtbot.addWidget(dialog)
+    dialog.show()
+    dialog.scales_table.item(1, 2).setText("1-9")
+    qtbot.mouseClick(dialog.buttons.button(QDialogButtonBox.StandardButton.Ok),
+                     Qt.MouseButton.LeftButton)
+    settle(qtbot)
+    expected = (("calm", (0.0, 100.0)), ("tense", (1.0, 9.0)))
+    assert window.session.import_settings.scales == expected
+    saved = save_project(window.session.to_project(), tmp_path / "diary.lagwise")
+    assert open_project(saved.file).scales == expected
