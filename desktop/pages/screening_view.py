@@ -190,6 +190,7 @@ class ScreeningView(QWidget):
         self.edge_label.setWordWrap(True)
         self.edge_label.setTextFormat(Qt.TextFormat.PlainText)  # it quotes item names
         self.edge_label.setStyleSheet(f"color: {style.MUTED};")
+        self.edge_label.setMinimumHeight(2 * self.edge_label.fontMetrics().lineSpacing() + 4)
         self.edge_label.hide()
         top_layout.addWidget(self.edge_label)
         right.addWidget(top)
