@@ -4,7 +4,8 @@ Prints prompts scheduled and answered, days and compliance per day, lag windows 
 (complete and with missing values) and per item the missing count, mean and SD; with
 --json OUT also writes these as JSON (models.summary.diary_summary; '-' writes to stdout).
 Floor and ceiling are counted at the ends of each item's answer scale: --scale 1-7 for every
-item, --scale NAME=0-100 for one (repeatable), otherwise guessed (models.scales).
+item, --scale NAME=0-100 for one (repeatable), otherwise a project's stated scales, otherwise
+guessed (models.scales).
 The computation is imported when the command runs, so `lagwise inspect --help` is instant.
 """
 
@@ -37,6 +38,9 @@ def run(args: argparse.Namespace) -> int:
     diary = diary_from_args(args)
     summary = diary_summary(diary)
     stated = stated_scales(args.scale, diary.items)
+    if str(args.data).lower().endswith(".lagwise"):
+        from lagwise.models.project import open_project
+        stated = {**dict(open_project(args.data).scales), **stated}
     screening = screen_diary(diary, item_scales(diary.items, diary.values, stated))
     for name, extra in screening_json(screening).items():
         summary["items"][name].update(extra)

@@ -178,3 +178,21 @@ def test_scale_option_sets_where_floor_and_ceiling_are_counted(capsys, likert_cs
 def test_bad_scale_is_one_line_and_exit_2(capsys, likert_csv, value, words):
     code, out, err = run_main(capsys, "inspect", str(likert_csv), *GRID_ARGS, "--scale", value)
     assert code == 2 and words in err and len(err.strip().splitlines()) == 1
+
+
+def test_a_projects_stated_scales_are_used(capsys, likert_csv, tmp_path):
+    from lagwise.models.diary import TimeSettings
+    from lagwise.models.project import Project, embed_file, save_project
+    from lagwise.models.recipe import DiaryRecipe
+
+    recipe = DiaryRecipe.of(["calm", "tense"], TimeSettings(mode="grid", day="day",
+                                                              prompt="prompt"),
+                            scales={"calm": (2.0, 7.0)})
+    path = tmp_path / "likert.lagwise"
+    save_project(Project.of_recipe(embed_file(likert_csv), recipe), path)
+    code, out, _ = run_main(capsys, "inspect", str(path), "--json", "-")
+    items = json.loads(out)["items"]
+    assert code == 0 and items["calm"]["scale"] == [2.0, 7.0]   # as stated in the project
+    assert items["tense"]["scale"] == [1.0, 7.0]               # guessed
+    code, out, _ = run_main(capsys, "inspect", str(path), "--scale", "calm=1-9", "--json", "-")
+    assert json.loads(out)["items"]["calm"]["scale"] == [1.0, 9.0]  # the option wins
