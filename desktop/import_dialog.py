@@ -4,11 +4,17 @@ Every column gets a role (item, day, prompt number, timestamp, ignore), guessed 
 name and contents and changeable by the user. The preview below updates as roles change:
 how many occasions, days, answered prompts and lag windows the diary would have, the data
 layer's notes, or its error message. Nothing reaches the project until the user accepts.
+
+Each item's answer scale (floor and ceiling are counted at its ends) is shown guessed from
+the answers (models.scales) and can be typed over as LOW-HIGH. Answers far outside the rest
+of an item (models.outliers, e.g. -99 beside answers from 0 to 100) are listed in the
+preview with one button that adds them to the missing-value codes.
 """
 
 from __future__ import annotations
 
 import re
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -23,7 +29,9 @@ from lagwise.desktop import style
 from lagwise.desktop.session import ImportSettings
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import LagwiseError
+from lagwise.models.outliers import FarValue, far_values
 from lagwise.models.readers import SUPPORTED_SUFFIXES, looks_like_dates, numeric_cells, read_table
+from lagwise.models.scales import Scale, guess_scale, parse_scale, scale_text
 from lagwise.models.summary import diary_summary
 
 ROLES: tuple[str, ...] = ("item", "day", "prompt number", "timestamp", "ignore")
@@ -168,6 +176,8 @@ class ImportDialog(QDialog):
         self._settings: ImportSettings | None = None
         self._days_independent = days_independent
         self._boxes: dict[str, QComboBox] = {}
+        self._stated: dict[str, Scale] = {}  # scales the user typed, by item
+        self._far: tuple[FarValue, ...] = ()
         self.start_folder = ""  # where "Choose file…" starts
         self._build()
         if path is not None:
@@ -196,7 +206,8 @@ class ImportDialog(QDialog):
         header.setSectionResizeMode(1, QHeaderView.ResizeMode.Stretch)
         header.setSectionResizeMode(2, QHeaderView.ResizeMode.ResizeToContents)
         self.roles_table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
-        left_layout.addWidget(self.roles_table)
+        left_layout.addWidget(self.roles_table, 3)
+        left_layout.addWidget(self._build_scales(), 2)
         hint = QLabel("Item: an answer to analyse. Day and prompt number place answers on a "
                       "daily grid; a timestamp places them by clock time.")
         hint.setWordWrap(True)
@@ -249,6 +260,7 @@ class ImportDialog(QDialog):
         self.notes_label.setWordWrap(True)
         self.notes_label.setStyleSheet(f"color: {style.NOTE};")
         preview_layout.addWidget(self.notes_label)
+        preview_layout.addLayout(self._build_far_values())
         self.error_label = QLabel("")
         self.error_label.setObjectName("importError")
         self.error_label.setWordWrap(True)
@@ -361,7 +373,8 @@ class ImportDialog(QDialog):
             self._show_error(str(exc))
             return
         self._diary = diary
-        self._settings = settings
+        self._settings = replace(settings, scales=tuple(self._show_scales(diary).items()))
+        self._show_far_values(diary)
         summary = diary_summary(diary)
         occasions, answered = summary["occasions"], summary["answered"]
         windows = summary["windows"]["1"] + summary["partial_windows"]["1"]
@@ -377,6 +390,100 @@ class ImportDialog(QDialog):
         self.error_label.setText("")
         self._set_ok(True)
         self.previewChanged.emit()
+
+    # ----- answer scales and far-out values ---------------------------------------------
+    def _build_scales(self) -> QGroupBox:
+        box = QGroupBox("Answer scales")
+        layout = QVBoxLayout(box)
+        self.scales_table = QTableWidget(0, 3)
+        self.scales_table.setObjectName("scalesTable")
+        self.scales_table.setHorizontalHeaderLabels(["Item", "Answers", "Scale"])
+        self.scales_table.verticalHeader().setVisible(False)
+        self.scales_table.horizontalHeader().setSectionResizeMode(
+            QHeaderView.ResizeMode.Stretch)
+        self.scales_table.setToolTip(
+            "The lowest and highest possible answer of each item (floor and ceiling effects "
+            "are counted there). Guessed as the smallest usual scale holding the answers "
+            "(1-5, 0-4, 1-7, 0-6, 0-10, 0-100), else the lowest and highest answer; type "
+            "over it as LOW-HIGH.")
+        self.scales_table.itemChanged.connect(self._scale_edited)
+        layout.addWidget(self.scales_table)
+        return box
+
+    def _build_far_values(self) -> QVBoxLayout:
+        row = QVBoxLayout()
+        self.far_label = QLabel()
+        self.far_label.setObjectName("farValues")
+        self.far_label.setWordWrap(True)
+        self.far_label.setTextFormat(Qt.TextFormat.PlainText)  # it quotes item names
+        self.far_label.setStyleSheet(f"color: {style.WARNING};")
+        self.far_button = QPushButton()
+        self.far_button.setObjectName("farValuesMissing")
+        self.far_button.clicked.connect(self.treat_far_values_as_missing)
+        row.addWidget(self.far_label)
+        row.addWidget(self.far_button, 0, Qt.AlignmentFlag.AlignLeft)
+        self._show_far_values(None)
+        return row
+
+    def scales(self) -> dict[str, Scale]:
+        """Item -> (low, high): the scales the diary is imported with."""
+        return dict(self._settings.scales) if self._settings is not None else {}
+
+    def far_codes(self) -> tuple[str, ...]:
+        """The far-out values of the preview, as missing-value codes."""
+        return tuple(dict.fromkeys(far.code for far in self._far))
+
+    def treat_far_values_as_missing(self) -> None:
+        """Add the far-out values to the missing-value codes and rebuild the preview."""
+        codes = self.missing_codes() + tuple(c for c in self.far_codes()
+                                             if c not in self.missing_codes())
+        self.missing_edit.setText(", ".join(codes))
+        self.update_preview()
+
+    def _show_scales(self, diary: Diary) -> dict[str, Scale]:
+        """Fill the scale table (typed scales kept, the others guessed); return the scales."""
+        scales = {}
+        table = self.scales_table
+        table.blockSignals(True)
+        table.setRowCount(diary.n_items)
+        for row, name in enumerate(diary.items):
+            column = diary.values[:, row]
+            seen = column[~np.isnan(column)]
+            scale = self._stated.get(name) or guess_scale(column)
+            table.setItem(row, 0, _cell(name))
+            table.setItem(row, 1, _cell(f"{seen.min():g} to {seen.max():g}" if seen.size else "—"))
+            entry = QTableWidgetItem("" if scale is None else scale_text(scale))
+            entry.setToolTip("typed" if name in self._stated else "guessed from the answers")
+            table.setItem(row, 2, entry)
+            if scale is not None:
+                scales[name] = scale
+        table.blockSignals(False)
+        return scales
+
+    def _scale_edited(self, entry: QTableWidgetItem) -> None:
+        if entry.column() != 2:
+            return
+        name = self.scales_table.item(entry.row(), 0).text()
+        try:
+            self._stated[name] = parse_scale(entry.text())
+        except LagwiseError as exc:
+            self._show_error(f"Item '{name}': {exc}")
+            return
+        self.update_preview()
+
+    def _show_far_values(self, diary: Diary | None) -> None:
+        self._far = () if diary is None else far_values(diary.items, diary.values)
+        lines = []
+        for name in dict.fromkeys(far.item for far in self._far):
+            found = ", ".join(f"{far.code} ({counted(far.count, 'time')})"
+                              for far in self._far if far.item == name)
+            lines.append(f"Item '{name}': {found} far outside its other answers.")
+        if lines:
+            lines.append("Values like these are often codes for 'no answer'.")
+        self.far_label.setText("\n".join(lines))
+        self.far_button.setText(f"Treat {', '.join(self.far_codes())} as missing")
+        self.far_label.setVisible(bool(lines))
+        self.far_button.setVisible(bool(lines))
 
     # ----- helpers -------------------------------------------------------------------
     def _fill_roles(self, roles: dict[str, str]) -> None:
@@ -407,6 +514,7 @@ class ImportDialog(QDialog):
         return ", ".join(c for c in cells if c)
 
     def _show_error(self, message: str) -> None:
+        self._show_far_values(None)
         self.summary_label.setText("—")
         self.notes_label.setText("")
         self.error_label.setText(message)

@@ -37,6 +37,7 @@ class ImportSettings:
     """How the diary was made from its file: item columns, time settings, missing codes.
 
     prompts_per_day: the schedule of a grid diary (None: the highest prompt number seen).
+    scales: (item, (low, high)) answer scales the user stated (models.scales).
     """
 
     path: str
@@ -44,11 +45,13 @@ class ImportSettings:
     time: TimeSettings
     missing_codes: tuple[str, ...] = ()
     prompts_per_day: int | None = None
+    scales: tuple[tuple[str, tuple[float, float]], ...] = ()
 
     @property
     def recipe(self) -> DiaryRecipe:
         """How the imported table becomes the diary (models.recipe)."""
-        return DiaryRecipe(self.items, self.time, self.missing_codes, self.prompts_per_day)
+        return DiaryRecipe(self.items, self.time, self.missing_codes, self.prompts_per_day,
+                           self.scales)
 
 
 @dataclass(frozen=True)
@@ -305,6 +308,7 @@ class Session(QObject):
             time=TimeSettings() if settings is None else settings.time,
             missing_codes=() if settings is None else settings.missing_codes,
             prompts_per_day=None if settings is None else settings.prompts_per_day,
+            scales=() if settings is None else settings.scales,
             preparation=tuple(steps_to_json(self._preparation)),
             spec=spec, options=self._options, result=self._result,
             result_current=self._result is None or self.result_is_current(),
@@ -330,7 +334,8 @@ class Session(QObject):
             data.file_name if data is not None else "table")
         settings = ImportSettings(path=source, items=raw.items, time=project.time,
                                   missing_codes=tuple(project.missing_codes),
-                                  prompts_per_day=project.prompts_per_day)
+                                  prompts_per_day=project.prompts_per_day,
+                                  scales=project.scales)
         if data is not None and data.table is None:
             data = replace(data, table=table)
         self.load_data(table, raw, settings, spec=project.spec or EMPTY_SPEC,

@@ -4,13 +4,14 @@ project files.
 A recipe names the item columns (None: every numeric column that is not a time column), how
 rows are placed in time (models.diary.TimeSettings), the answers that mean "missing", and
 for a grid diary the number of prompts scheduled per day (None: the highest prompt number
-seen). `diary(table)` applies it (models.timegrid.diary_from_frame); `read(path)` reads the
+seen), and the answer scales the user stated per item (models.scales; an item without one
+has its scale guessed from its answers). `diary(table)` applies it (models.timegrid.diary_from_frame); `read(path)` reads the
 file first (models.readers.read_table).
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -20,6 +21,7 @@ from lagwise.models import names
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import DataError
 from lagwise.models.readers import read_table
+from lagwise.models.scales import Scale, item_scales
 from lagwise.models.timegrid import diary_from_frame
 
 
@@ -29,13 +31,20 @@ class DiaryRecipe:
     time: TimeSettings = TimeSettings()
     missing_codes: tuple[str | float, ...] = ()
     prompts_per_day: int | None = None
+    scales: tuple[tuple[str, Scale], ...] = ()
 
     @classmethod
     def of(cls, items: Sequence[str] | None = None, time: TimeSettings = TimeSettings(),
-           missing_codes: Iterable[object] = (), prompts_per_day: int | None = None) -> "DiaryRecipe":
+           missing_codes: Iterable[object] = (), prompts_per_day: int | None = None,
+           scales: Mapping[str, Scale] | None = None) -> "DiaryRecipe":
         """A recipe from any sequences (stored as tuples)."""
         return cls(None if items is None else tuple(str(i) for i in items), time,
-                   tuple(missing_codes), prompts_per_day)  # type: ignore[arg-type]
+                   tuple(missing_codes), prompts_per_day,  # type: ignore[arg-type]
+                   tuple((scales or {}).items()))
+
+    def item_scales(self, diary: Diary) -> dict[str, Scale]:
+        """Item -> (low, high) of its answer scale: as stated, or guessed (models.scales)."""
+        return item_scales(diary.items, diary.values, dict(self.scales))
 
     def diary(self, table: pd.DataFrame, source: str = "") -> Diary:
         """The diary of `table`; DataError naming the column and row when it cannot be one, or

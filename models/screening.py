@@ -4,7 +4,7 @@ and a readiness summary in plain words.
 Per item (over its answered prompts):
 - mean, SD (divisor n - 1), skewness (adjusted Fisher-Pearson G1 = sqrt(n(n-1))/(n-2) * g1,
   g1 = m3 / m2^1.5), floor and ceiling shares (share of answers at the low / high end of the
-  item's scale; the scale defaults to the observed min and max);
+  item's scale: as given, e.g. by models.scales, else the observed min and max);
 - autocorrelation at lags 1..5 within segments (see `within_segment_acf`);
 - a linear time trend: OLS of the answers on the occasion index (the occasion's position in
   the diary, 0, 1, 2, ...; a missed prompt keeps its place, so a gap counts as the prompts
@@ -17,7 +17,8 @@ Per item (over its answered prompts):
   gaps (missed prompts, nights) closed up; remembered per series, so screening the same
   item of the same diary again is free;
 - the within-day profile (mean by prompt number) and the day-of-week profile (when the day
-  labels are dates or the diary has timestamps).
+  labels are dates or the diary has timestamps); a mean within ROUNDING of the item's scale
+  from 0 is rounding error (e.g. after removing the prompt means) and is shown as 0.
 
 The readiness summary counts answered prompts, complete lag-1 windows and windows per free
 parameter, compliance by week, and turns rules of thumb into warnings.
@@ -27,7 +28,7 @@ from __future__ import annotations
 
 import datetime as dt
 import re
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, replace
 
 import numpy as np
 from scipy.special import stdtr
@@ -52,6 +53,8 @@ STRONG_TREND = 0.2         # |standardized slope| (correlation with time) at lea
 TREND_P = 0.01             # ... and p below this: a strong trend
 END_SHARE = 0.25           # a quarter or more of answers at one end of the scale: floor/ceiling
 LOW_COMPLIANCE = 0.5       # weeks with fewer answered prompts than this share
+ROUNDING = 1e-9            # profile means this close to 0 (times the scale's largest end) are 0
+KPSS_TABLE = (0.01, 0.10)  # the p-values the KPSS table covers (models.unitroot)
 CAUTION = ("These warnings follow rules of thumb, not guarantees: a diary that passes them can "
            "still be too short for a given model, and one that fails them may still be usable.")
 
@@ -95,6 +98,14 @@ class UnitTest:
     verdict: str
     p_bounded: bool = False
 
+    @property
+    def edge_sentence(self) -> str | None:
+        """A plain sentence on a p at the edge of the test's table (None when it is not)."""
+        low, high = KPSS_TABLE
+        side = f"smaller than {low:.2f}" if (self.p or 0) <= low else f"larger than {high:.2f}"
+        return (f"The {self.name} p-value lies at the edge of the test's table ({low:.2f} to "
+                f"{high:.2f}): the true p is {side}." if self.p_bounded else None)
+
 
 @dataclass(frozen=True)
 class Profile:
@@ -136,7 +147,7 @@ class ItemScreen:
     @property
     def flags(self) -> tuple[str, ...]:
         """Short words for this item's warnings (e.g. "strong trend", "barely varies")."""
-        return tuple(flag for flag, _ in _item_findings(self))
+        return tuple(flag for flag, _ in item_findings(self))
 
     def to_json(self) -> dict:
         out = _clean(asdict(self))
@@ -215,8 +226,8 @@ def screen_diary(diary: Diary, scales: dict[str, tuple[float, float]] | None = N
 
 
 def screening_json(screening: Screening) -> dict:
-    """Per item {"trend": {"slope", "p"}, "adf_p", "kpss_p", "acf": [lag 1..5]}, the figures
-    `lagwise inspect --json` adds to each item (None where undefined)."""
+    """Per item {"trend": {"slope", "p"}, "adf_p", "kpss_p", "acf": [lag 1..5], "scale": [low,
+    high]}, the figures `lagwise inspect --json` adds to each item (None where undefined)."""
     out = {}
     for screen in screening.items:
         out[screen.name] = {
@@ -224,6 +235,7 @@ def screening_json(screening: Screening) -> dict:
             "adf_p": _finite(screen.adf.p),
             "kpss_p": _finite(screen.kpss.p),
             "acf": [_finite(r) for r in screen.acf],
+            "scale": [_finite(screen.low), _finite(screen.high)],
         }
     return out
 
@@ -244,6 +256,7 @@ def screen_item(name: str, column: np.ndarray, segment: np.ndarray, prompt: np.n
                             f"the high end ({high:g})")
     else:
         low, high = (float(x.min()), float(x.max())) if n else (None, None)
+    unit = max(abs(low), abs(high)) if low is not None else 0.0
     floor = float(np.isclose(x, low).mean()) if n and low is not None else None
     ceiling = float(np.isclose(x, high).mean()) if n and high is not None else None
     acf, pairs = within_segment_acf(column, segment, ACF_LAGS)
@@ -253,8 +266,8 @@ def screen_item(name: str, column: np.ndarray, segment: np.ndarray, prompt: np.n
         floor_share=floor, ceiling_share=ceiling, skewness=skewness(x), acf=acf, acf_pairs=pairs,
         trend=linear_trend(column), adf=adf_test, kpss=kpss_test,
         reading=combined_reading(adf_test, kpss_test),
-        within_day=_profile(column, prompt, _prompt_label),
-        weekday=None if weekday is None else _profile(column, weekday, _weekday_label, 7),
+        within_day=_profile(column, prompt, _prompt_label, unit),
+        weekday=None if weekday is None else _profile(column, weekday, _weekday_label, unit, 7),
     )
 
 
@@ -357,10 +370,9 @@ def stationarity_tests(x: np.ndarray) -> tuple[UnitTest, UnitTest]:
     rejects = bool(p < ALPHA)
     words = ("rejects a stable level: the level seems to drift or shift" if rejects
              else "no evidence against a stable level")
-    if bounded:
-        words += (f"; p is at the edge of the test's table (the true p is "
-                  f"{'smaller' if p <= 0.01 else 'larger'} than {p:.2f})")
     kpss_test = UnitTest("KPSS", stat, p, lags, rejects, words, bounded)
+    if bounded:
+        kpss_test = replace(kpss_test, verdict=f"{words}. {kpss_test.edge_sentence}")
     return adf_test, kpss_test
 
 
@@ -458,7 +470,7 @@ def readiness(diary: Diary, screens: list[ItemScreen] | tuple[ItemScreen, ...],
         listed = ", ".join(f"{w.week} ({100 * w.fraction:.0f}%)" for w in low)
         notes.append(f"Fewer than half of the prompts were answered in week {listed}.")
     for s in screens:
-        notes += [sentence for _, sentence in _item_findings(s)]
+        notes += [sentence for _, sentence in item_findings(s)]
     for j, name in enumerate(diary.items):   # what fit would refuse (models.conditioning)
         problem = item_problem(name, diary.values[:, j])
         if problem:
@@ -469,7 +481,7 @@ def readiness(diary: Diary, screens: list[ItemScreen] | tuple[ItemScreen, ...],
                      warnings=tuple(notes))
 
 
-def _item_findings(s: ItemScreen) -> list[tuple[str, str]]:
+def item_findings(s: ItemScreen) -> list[tuple[str, str]]:
     """(short flag, sentence) for each rule of thumb the item fails."""
     notes = []
     if s.answered < MIN_ITEM_ANSWERS:
@@ -530,9 +542,10 @@ def format_screening(screening: Screening) -> str:
 
 # ----------------------------------------------------------------------------- helpers
 
-def _profile(column: np.ndarray, group: np.ndarray, label,
+def _profile(column: np.ndarray, group: np.ndarray, label, unit: float,
              size: int | None = None) -> Profile | None:
-    """Means of the answered values by group; None when fewer than two groups are known."""
+    """Means of the answered values by group (within ROUNDING * unit of 0: 0); None when
+    fewer than two groups are known."""
     group = np.asarray(group, dtype=float)
     known = ~np.isnan(group) & (group >= 0)
     keys = np.unique(group[known]) if size is None else np.arange(size, dtype=float)
@@ -542,7 +555,8 @@ def _profile(column: np.ndarray, group: np.ndarray, label,
     for key in keys:
         here = column[known & (group == key) & ~np.isnan(column)]
         counts.append(int(here.size))
-        means.append(float(here.mean()) if here.size else None)
+        mean = float(here.mean()) if here.size else None
+        means.append(0.0 if mean is not None and abs(mean) <= ROUNDING * unit else mean)
     return Profile(labels=tuple(label(k) for k in keys), means=tuple(means), counts=tuple(counts))
 
 

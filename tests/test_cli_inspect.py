@@ -139,3 +139,60 @@ def test_console_command_prints_no_traceback(tmp_path):
                           timeout=120)
     assert done.returncode == 2
     assert done.stderr == f"lagwise: {path}: the file is empty\n"
+
+
+@pytest.fixture
+def likert_csv(tmp_path) -> Path:
+    """'calm' on a 1-7 scale answered 2..7, mostly 2; 'tense' answered 1..7 (random draws)."""
+    rng = np.random.default_rng(2)
+    rows = [(d, p) for d in range(1, 15) for p in range(1, 7)]
+    table = pd.DataFrame(rows, columns=["day", "prompt"])
+    table["calm"] = np.minimum(2 + rng.poisson(0.4, len(rows)), 7).astype(float)
+    table.loc[0, "calm"] = 7.0
+    table["tense"] = rng.integers(1, 8, len(rows)).astype(float)
+    path = tmp_path / "likert.csv"
+    table.to_csv(path, index=False)
+    return path
+
+
+def test_scale_option_sets_where_floor_and_ceiling_are_counted(capsys, likert_csv):
+    calm = pd.read_csv(likert_csv)["calm"]
+    code, out, _ = run_main(capsys, "inspect", str(likert_csv), *GRID_ARGS, "--json", "-")
+    items = json.loads(out)["items"]
+    assert code == 0 and items["calm"]["scale"] == [1.0, 7.0]  # guessed: the usual 1-7
+    assert items["tense"]["scale"] == [1.0, 7.0]
+    code, out, _ = run_main(capsys, "inspect", str(likert_csv), *GRID_ARGS, "--scale", "calm=2-7")
+    share = 100 * np.mean(calm == 2)  # answers at the stated low end, counted with pandas
+    assert code == 0 and f"Item 'calm': {share:.0f}% of answers at the low end" in out
+    code, out, _ = run_main(capsys, "inspect", str(likert_csv), *GRID_ARGS, "--scale", "0-10",
+                            "--json", "-")
+    assert [v["scale"] for v in json.loads(out)["items"].values()] == [[0.0, 10.0]] * 2
+    code, out, _ = run_main(capsys, "inspect", str(likert_csv), *GRID_ARGS, "--scale=-3-9",
+                            "--json", "-")
+    assert json.loads(out)["items"]["calm"]["scale"] == [-3.0, 9.0]
+
+
+@pytest.mark.parametrize("value, words", [("mood=1-7", "no item 'mood'"),
+                                          ("7-1", "low end must be below"),
+                                          ("1to7", "LOW-HIGH")])
+def test_bad_scale_is_one_line_and_exit_2(capsys, likert_csv, value, words):
+    code, out, err = run_main(capsys, "inspect", str(likert_csv), *GRID_ARGS, "--scale", value)
+    assert code == 2 and words in err and len(err.strip().splitlines()) == 1
+
+
+def test_a_projects_stated_scales_are_used(capsys, likert_csv, tmp_path):
+    from lagwise.models.diary import TimeSettings
+    from lagwise.models.project import Project, embed_file, save_project
+    from lagwise.models.recipe import DiaryRecipe
+
+    recipe = DiaryRecipe.of(["calm", "tense"], TimeSettings(mode="grid", day="day",
+                                                              prompt="prompt"),
+                            scales={"calm": (2.0, 7.0)})
+    path = tmp_path / "likert.lagwise"
+    save_project(Project.of_recipe(embed_file(likert_csv), recipe), path)
+    code, out, _ = run_main(capsys, "inspect", str(path), "--json", "-")
+    items = json.loads(out)["items"]
+    assert code == 0 and items["calm"]["scale"] == [2.0, 7.0]   # as stated in the project
+    assert items["tense"]["scale"] == [1.0, 7.0]               # guessed
+    code, out, _ = run_main(capsys, "inspect", str(path), "--scale", "calm=1-9", "--json", "-")
+    assert json.loads(out)["items"]["calm"]["scale"] == [1.0, 9.0]  # the option wins

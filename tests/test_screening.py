@@ -269,3 +269,52 @@ def test_linear_trend_uses_occasion_index_with_gaps():
     trend = linear_trend(column)
     assert trend.slope == pytest.approx(ols.params[1])
     assert trend.p == pytest.approx(ols.pvalues[1])
+
+
+# ----------------------------------------------------------------------------- scales, profiles
+
+def test_floor_and_ceiling_at_the_guessed_scale_ends():
+    from lagwise.models.scales import item_scales
+
+    rng = np.random.default_rng(12)
+    calm = np.minimum(2 + rng.poisson(0.4, 200), 7).astype(float)  # 1-7 answered 2..7
+    calm[0] = 7.0
+    diary = order_diary(calm=calm, tense=rng.normal(size=200))
+    scales = item_scales(diary.items, diary.values)
+    assert scales["calm"] == (1.0, 7.0)  # the usual 1-7 scale (common practice)
+    item = screen_diary(diary, scales).item("calm")
+    assert item.floor_share == 0.0 and item.ceiling_share == pytest.approx(np.mean(calm == 7))
+    assert "floor effect" not in item.flags
+    # at the lowest answer given (2) the same answers would count as a floor effect
+    assert screen_diary(diary).item("calm").floor_share == pytest.approx(np.mean(calm == 2))
+    assert screening_json(screen_diary(diary, scales))["calm"]["scale"] == [1.0, 7.0]
+
+
+def test_profile_means_within_rounding_of_zero_are_zero():
+    from lagwise.models.preparation import Step, apply_steps
+    from lagwise.models.recipe import load_diary
+    from lagwise.resources import demo_diary_path
+
+    demo = load_diary(demo_diary_path(), time=GRID)
+    centred = apply_steps(demo, (Step("prompt_means"),))
+    for item in screen_diary(centred).items:
+        # the mean of deviations from each prompt's mean is exactly 0 (identity)
+        assert item.within_day.means == (0.0,) * len(item.within_day.means)
+    # real differences are kept at any scale: the same diary times 1e-12
+    tiny = demo.__class__(**{**demo.__dict__, "values": demo.values * 1e-12})
+    for small, full in zip(screen_diary(tiny).items, screen_diary(demo).items):
+        np.testing.assert_allclose(small.within_day.means, np.array(full.within_day.means) * 1e-12,
+                                   rtol=1e-9)
+
+
+def test_kpss_edge_sentence_says_which_side():
+    rng = np.random.default_rng(3)
+    # statsmodels tabulates the KPSS p only between 0.01 and 0.10 (InterpolationWarning)
+    _, white = stationarity_tests(rng.normal(size=300))
+    assert white.p_bounded and white.edge_sentence.endswith("the true p is larger than 0.10.")
+    walk_series = np.cumsum(rng.normal(size=300))
+    adf_walk, walk = stationarity_tests(walk_series)
+    assert walk.p_bounded and walk.p == pytest.approx(kpss_p(walk_series)) == 0.01
+    assert walk.edge_sentence.endswith("the true p is smaller than 0.01.")
+    assert walk.edge_sentence in walk.verdict
+    assert adf_walk.edge_sentence is None  # the ADF p is never bounded

@@ -4,9 +4,10 @@ Tab "Series": per-item time series (days shaded alternately, missed prompts as g
 grey tick below the line), compliance per day, and answered/missing counts per item. Every
 count comes from models.summary; this page only draws.
 Tab "Screening": the ScreeningView (models.screening) of the session's diary with the
-session's preparation steps and the free parameters of the current model; ticking a step
+session's preparation steps, the free parameters of the current model and each item's answer
+scale (stated at import, otherwise guessed: models.scales); ticking a step
 there is an undoable edit of the session's preparation. The screening is recomputed only
-when its inputs changed, and only while the tab is shown (it takes a few tenths of a second).
+when its inputs changed, and only while the tab is shown (in a worker thread).
 """
 
 from __future__ import annotations
@@ -183,6 +184,13 @@ class DataPage(QWidget):
         except LagwiseError:
             return None
 
+    def scales(self) -> dict | None:
+        """Item -> (low, high) of its answer scale (None without a diary)."""
+        diary, settings = self._session.diary, self._session.import_settings
+        if diary is None or settings is None:
+            return None
+        return settings.recipe.item_scales(diary)
+
     def update_screening(self, force: bool = False) -> None:
         """Give the screening view the session's diary, steps and free parameters, when the
         Screening tab is shown (or `force`) and they differ from what it last got."""
@@ -190,7 +198,7 @@ class DataPage(QWidget):
                           or not self.isVisible()):
             return
         session = self._session
-        inputs = (session.diary, session.preparation, self.n_free())
+        inputs = (session.diary, session.preparation, self.n_free(), self.scales())
         last = self._screened
         if last is not None and last[0] is inputs[0] and last[1:] == inputs[1:]:
             return
@@ -204,8 +212,8 @@ class DataPage(QWidget):
     def _steps_chosen(self, steps: tuple) -> None:
         """A step ticked in the screening view: record it in the session (undoable)."""
         session = self._session
-        n_free = self._screened[2] if self._screened else None
-        self._screened = (session.diary, tuple(steps), n_free)
+        n_free, scales = self._screened[2:] if self._screened else (None, None)
+        self._screened = (session.diary, tuple(steps), n_free, scales)
         try:
             session.set_preparation(steps, "Preparation steps")
         except LagwiseError:  # the view checks the steps first; keep both in step regardless
@@ -234,6 +242,8 @@ class DataPage(QWidget):
         if steps:
             text += (f"<br>Before estimation: {escape(describe(steps))} (see Screening). The series "
                      "below are the answers as given.")
+        else:  # a line either way: ticking a step moves nothing below (no repaint of the plots)
+            text += "<br>No preparation before estimation (see Screening)."
         self.summary_label.setText(text)
 
     def shown_items(self) -> list[str]:

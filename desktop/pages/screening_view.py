@@ -7,9 +7,10 @@ linear trend, its autocorrelations, and its within-day and weekday profiles, as 
 and after the chosen preparation steps (models.preparation). Ticking a step emits
 `steps_changed(tuple_of_steps)`; the owner records the steps and may call `set_diary` again.
 Every picture can be saved as PNG/SVG and every table as CSV. No statistics here.
-A diary of up to WORKER_OCCASIONS prompts is screened at once (a few hundredths of a second);
-a longer one in a worker thread (desktop.worker) with its progress shown, so the window stays
-responsive; both deliver through `_show`.
+Every diary is screened in a worker thread (desktop.worker) with its progress shown, so the
+window stays responsive; the result arrives through `_show`. The item table shows every
+item (up to MAX_ITEM_ROWS without scrolling); each Notes cell holds the full sentences in its
+tooltip, and a KPSS p at the edge of its table is explained in a sentence below the table.
 """
 
 from __future__ import annotations
@@ -18,7 +19,7 @@ from html import escape
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QAbstractTableModel, QModelIndex, Qt, Signal
+from PySide6.QtCore import QAbstractTableModel, QModelIndex, Qt, QTimer, Signal
 from PySide6.QtGui import QColor, QStandardItem, QStandardItemModel
 from PySide6.QtWidgets import (
     QAbstractItemView, QCheckBox, QGroupBox, QHBoxLayout, QHeaderView, QLabel, QScrollArea,
@@ -32,14 +33,16 @@ from lagwise.models.diary import Diary
 from lagwise.models.errors import DataError
 from lagwise.models.preparation import STEP_LABELS, STEP_NAMES, Step, apply_steps, describe, usual_order
 from lagwise.models.numbers import fmt, p_phrase
-from lagwise.models.screening import ItemScreen, Profile, Screening, screen_diary, weekdays
+from lagwise.models.screening import (
+    ItemScreen, Profile, Screening, item_findings, screen_diary, weekdays,
+)
 
 PLOT_ROW_HEIGHT = 190   # pixels per row of item plots
-WORKER_OCCASIONS = 5000  # longer diaries are screened in the worker
+MAX_ITEM_ROWS = 15       # items the item table shows without scrolling
 MAX_DAY_TICKS = 6
 PLOT_ROWS = ("series", "acf", "within_day", "weekday")
-ITEM_COLUMNS = ("Item", "Answered", "Missed %", "Mean", "SD", "Floor %", "Ceiling %", "Skew",
-                "ACF 1", "Trend", "Trend p", "ADF p", "KPSS p", "Reading", "Notes")
+ITEM_COLUMNS = ("Item", "Notes", "Answered", "Missed %", "Mean", "SD", "Floor %", "Ceiling %",
+                "Skew", "ACF 1", "Trend", "Trend p", "ADF p", "KPSS p", "Reading")
 TREND_PEN = dict(color=style.INK, width=2, style=Qt.PenStyle.DashLine)
 BEFORE = style.SERIES[1]   # slate blue: as answered
 AFTER = style.SERIES[0]    # deep teal: after preparation
@@ -64,10 +67,15 @@ class ScreeningView(QWidget):
         self._records: list[list[str]] = []
         self._export_buttons: dict[str, QToolButton] = {}
         self._worker = Worker(self)
+        self._drawing = None  # the plot steps still to draw (see `_draw_item`)
+        self._draw_timer = QTimer(self)
+        self._draw_timer.setInterval(0)
+        self._draw_timer.timeout.connect(self._draw_next)
         self._build()
         self._worker.started.connect(self.progress_label.show)
         self._worker.progress.connect(
-            lambda fraction, message: self.progress_label.setText(f"{message} ({fraction:.0%})"))
+            lambda fraction, message: self.progress_label.setText(
+                f"{escape(message)} ({fraction:.0%})"))  # the message may quote an item name
         self._worker.done.connect(self._show)
         self._worker.error.connect(lambda message, _details: self.progress_label.setText(
             f"<span style='color:{style.WARNING}'>⚠ {escape(message)}</span>"))
@@ -94,8 +102,8 @@ class ScreeningView(QWidget):
 
     @property
     def busy(self) -> bool:
-        """A long diary is being screened in the worker."""
-        return self._worker.busy
+        """The diary is being screened in the worker, or its plots drawn."""
+        return self._worker.busy or self._drawing is not None
 
     def steps(self) -> tuple[Step, ...]:
         """The preparation steps currently chosen."""
@@ -174,7 +182,17 @@ class ScreeningView(QWidget):
             QHeaderView.ResizeMode.ResizeToContents)
         self.item_table.horizontalHeader().setStretchLastSection(True)
         self.item_table.selectionModel().currentRowChanged.connect(self._on_row)
+        self.item_table.verticalHeader().setDefaultSectionSize(
+            self.item_table.fontMetrics().height() + 8)  # compact rows: every item in view
         top_layout.addWidget(self.item_table, 1)
+        self.edge_label = QLabel()
+        self.edge_label.setObjectName("kpssEdgeNote")
+        self.edge_label.setWordWrap(True)
+        self.edge_label.setTextFormat(Qt.TextFormat.PlainText)  # it quotes item names
+        self.edge_label.setStyleSheet(f"color: {style.MUTED};")
+        self.edge_label.setMinimumHeight(2 * self.edge_label.fontMetrics().lineSpacing() + 4)
+        self.edge_label.hide()
+        top_layout.addWidget(self.edge_label)
         right.addWidget(top)
 
         bottom = QWidget()
@@ -196,6 +214,10 @@ class ScreeningView(QWidget):
         self._shown_columns = 0
         self.progress_label = QLabel()
         self.progress_label.setObjectName("screeningProgress")
+        self.progress_label.setTextFormat(Qt.TextFormat.RichText)
+        keep = self.progress_label.sizePolicy()
+        keep.setRetainSizeWhenHidden(True)  # showing it moves no plot (a repaint of them all)
+        self.progress_label.setSizePolicy(keep)
         self.progress_label.hide()
         bottom_layout.addWidget(self.progress_label)
         self.plot_scroll = QScrollArea()
@@ -297,9 +319,10 @@ class ScreeningView(QWidget):
 
     # ----- screening -----------------------------------------------------------------
     def _screen(self) -> None:
-        """Screen the diary (unless already done) and the prepared diary, then show them."""
+        """Screen the diary (unless already done) and the prepared diary in the worker; they
+        are shown when they arrive."""
         job = (self._diary, self._before, self._prepared, self._scales, self._n_free)
-        if self._diary is None or self._diary.n_occasions <= WORKER_OCCASIONS:
+        if self._diary is None:
             self._worker.cancel()
             self._show(screen_versions(*job))
             return
@@ -368,16 +391,15 @@ class ScreeningView(QWidget):
 
     def _fill_items(self) -> None:
         model = self.item_model
+        self.item_table.selectionModel().blockSignals(True)  # refilling keeps the selection
         model.clear()
         headers = list(ITEM_COLUMNS)
         if self._after is not None:
-            headers.insert(-1, "Reading after")
+            headers.append("Reading after")
         model.setHorizontalHeaderLabels(headers)
-        if self._before is None:
-            return
-        for j, s in enumerate(self._before.items):
+        for j, s in enumerate(() if self._before is None else self._before.items):
             total = s.answered + s.missing
-            cells = [s.name, str(s.answered),
+            cells = [s.name, ", ".join(s.flags), str(s.answered),
                      _fixed(100 * s.missing / total if total else None, 0),
                      _fixed(s.mean), _fixed(s.sd), _fixed(_pct(s.floor_share), 0),
                      _fixed(_pct(s.ceiling_share), 0), _fixed(s.skewness),
@@ -386,13 +408,36 @@ class ScreeningView(QWidget):
                      fmt(s.kpss.p, "p") + (" (edge)" if s.kpss.p_bounded else ""), s.reading]
             if self._after is not None:
                 cells.append(self._after.items[j].reading)
-            cells.append(", ".join(s.flags))
             row = _row(cells)
-            row[0].setToolTip(f"ADF: {s.adf.verdict}\nKPSS: {s.kpss.verdict}")
+            row[0].setToolTip(style.plain(f"ADF: {s.adf.verdict}\nKPSS: {s.kpss.verdict}"))
+            row[ITEM_COLUMNS.index("KPSS p")].setToolTip(style.plain(s.kpss.edge_sentence or ""))
+            row[1].setToolTip(style.plain("\n".join(text for _, text in item_findings(s))))
             if s.flags:
-                row[-1].setForeground(QColor(style.WARNING))
+                row[1].setForeground(QColor(style.WARNING))
             model.appendRow(row)
         self._select_row()
+        self.item_table.selectionModel().blockSignals(False)
+        self._fit_item_rows()
+        self._explain_edges()
+
+    def _fit_item_rows(self) -> None:
+        """Make the item table tall enough for every item (up to MAX_ITEM_ROWS)."""
+        table = self.item_table
+        rows = min(self.item_model.rowCount(), MAX_ITEM_ROWS)
+        table.setMinimumHeight(table.horizontalHeader().sizeHint().height()
+                               + rows * table.verticalHeader().defaultSectionSize()
+                               + 2 * table.frameWidth()
+                               + table.horizontalScrollBar().sizeHint().height())
+
+    def _explain_edges(self) -> None:
+        """One sentence per side for the items whose KPSS p is at the edge of its table."""
+        items: dict[str, list[str]] = {}
+        for s in self._before.items if self._before is not None else ():
+            if s.kpss.edge_sentence:
+                items.setdefault(s.kpss.edge_sentence, []).append(s.name)
+        self.edge_label.setText("\n".join(f"KPSS p marked (edge), {', '.join(names)}: {sentence}"
+                                          for sentence, names in items.items()))
+        self.edge_label.setVisible(bool(items))
 
     def _select_row(self) -> None:
         """Select the shown item's row without redrawing."""
@@ -406,6 +451,22 @@ class ScreeningView(QWidget):
             self._draw_item()
 
     def _draw_item(self) -> None:
+        """Draw the selected item's plots, one plot per turn of the event loop (each takes a
+        few hundredths of a second), so the window keeps answering; `busy` until the last."""
+        self._drawing = self._plot_steps()
+        self.plots.setUpdatesEnabled(False)  # painted once, when every plot is drawn
+        self._draw_timer.start()
+
+    def _draw_next(self) -> None:
+        try:
+            next(self._drawing)
+        except StopIteration:
+            self._drawing = None
+            self._draw_timer.stop()
+            self.plots.setUpdatesEnabled(True)
+
+    def _plot_steps(self):
+        """The plots of the selected item, drawn one per `next`; then their numbers."""
         records: list[list[str]] = []
         self._records = records
         if self._before is None or self._diary is None:
@@ -420,20 +481,20 @@ class ScreeningView(QWidget):
         if self._after is not None:
             versions.append(("after preparation", self._prepared,
                              self._after.items[self._item], AFTER))
-        self._show_columns(len(versions))
+        yield self._show_columns(len(versions))
         acf_top = max(_acf_extent(screen) for _, _, screen, _ in versions)
         for col, (version, diary, screen, colour) in enumerate(versions):
             title = "As answered" if col == 0 else "After preparation"
             self._headers[col].setText(f"<b>{title}</b>")
             plots = self._grid[col]
-            self._series_plot(plots["series"], diary, screen, colour, version)
-            self._acf_plot(plots["acf"], screen, colour, version, acf_top)
-            self._profile_plot(plots["within_day"], screen.within_day, screen.mean, colour,
-                               version, "within day", "Mean by prompt number",
-                               "the diary has no prompt numbers")
-            self._profile_plot(plots["weekday"], screen.weekday, screen.mean, colour, version,
-                               "weekday", "Mean by day of the week",
-                               "the days are not dates and there are no timestamps")
+            yield self._series_plot(plots["series"], diary, screen, colour, version)
+            yield self._acf_plot(plots["acf"], screen, colour, version, acf_top)
+            yield self._profile_plot(plots["within_day"], screen.within_day, screen.mean,
+                                     colour, version, "within day", "Mean by prompt number",
+                                     "the diary has no prompt numbers")
+            yield self._profile_plot(plots["weekday"], screen.weekday, screen.mean, colour,
+                                     version, "weekday", "Mean by day of the week",
+                                     "the days are not dates and there are no timestamps")
         self.plot_model.set_rows(records)
 
     def _show_columns(self, n: int) -> None:

@@ -90,7 +90,8 @@ class Project:
     """Everything a saved analysis holds (see module docstring).
 
     items: the item columns (None: every numeric column that is not a time column).
-    items, time, missing_codes, prompts_per_day: how the table becomes a diary (`recipe`).
+    items, time, missing_codes, prompts_per_day, scales: how the table becomes a diary
+        (`recipe`; scales: (item, (low, high)) pairs the user stated, models.scales).
     preparation: preparation steps as plain JSON values (models.preparation), in order.
     spec/options/result: the model, the estimator settings and the last results (None: none).
     bootstrap: the bootstrap of those results (models.bootstrap), when one was run.
@@ -107,6 +108,7 @@ class Project:
     time: TimeSettings = TimeSettings()
     missing_codes: tuple[str | float, ...] = ()
     prompts_per_day: int | None = None
+    scales: tuple[tuple[str, tuple[float, float]], ...] = ()
     preparation: tuple[Any, ...] = ()
     spec: ModelSpec | None = None
     options: FitOptions = FitOptions()
@@ -123,14 +125,15 @@ class Project:
     @property
     def recipe(self) -> DiaryRecipe:
         """How the stored table becomes the diary (models.recipe)."""
-        return DiaryRecipe(self.items, self.time, self.missing_codes, self.prompts_per_day)
+        return DiaryRecipe(self.items, self.time, self.missing_codes, self.prompts_per_day,
+                           self.scales)
 
     @classmethod
     def of_recipe(cls, data: ProjectData | None, recipe: DiaryRecipe, **fields) -> "Project":
         """A project of `data` read with `recipe` (other fields as keywords)."""
         return cls(data=data, items=recipe.items, time=recipe.time,
                    missing_codes=recipe.missing_codes, prompts_per_day=recipe.prompts_per_day,
-                   **fields)
+                   scales=recipe.scales, **fields)
 
     @property
     def name(self) -> str:

@@ -31,6 +31,7 @@ from lagwise.models.project.table import parse_table
 from lagwise.models.project.upgrade import upgrade
 from lagwise.models.bootstrap import Bootstrap
 from lagwise.models.responses import ResponseChoice
+from lagwise.models.scales import scales_from_json
 from lagwise.models.results import FitResult
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
@@ -152,7 +153,7 @@ def _responses(value: object, result: FitResult | None) -> ResponseChoice | None
 
 def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
     doc = jr.obj(doc, "", _TOP_KEYS, ("recovery_of", "results_current", "bootstrap",
-                                           "responses"))
+                                           "responses", "scales"))
     time, per_day = _time(doc["time"])
     items = doc["items"]
     if items is not None:
@@ -178,6 +179,7 @@ def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
     result = None if results is None else FitResult.from_json(results, "results")
     project = Project(
         data=data, items=items, time=time, missing_codes=codes, prompts_per_day=per_day,
+        scales=tuple(scales_from_json(doc.get("scales", {})).items()),
         preparation=tuple(preparation),
         spec=None if spec is None else ModelSpec.from_json(spec, "spec", validate=False),
         options=FitOptions.from_json(doc["options"], "options"),

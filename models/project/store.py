@@ -24,6 +24,7 @@ from lagwise.models.project.document import (
 )
 from lagwise.models.project.reader import project_from_bytes
 from lagwise.models.project.table import table_to_json
+from lagwise.models.scales import scales_to_json
 
 
 def save_project(project: Project, path: str | Path) -> Project:
@@ -113,6 +114,7 @@ def _document(project: Project, folder: Path) -> dict:
         "items": None if project.items is None else list(project.items),
         "time": {**project.time.to_json(), "prompts_per_day": project.prompts_per_day},
         "missing_codes": list(project.missing_codes),
+        **({"scales": scales_to_json(dict(project.scales))} if project.scales else {}),
         "preparation": list(project.preparation),
         "spec": None if project.spec is None else project.spec.to_json(),
         "options": project.options.to_json(),

@@ -59,7 +59,12 @@ def column(model, header):
 
 def show_screening(page, qtbot):
     page.tabs.setCurrentWidget(page.screening_scroll)
-    qtbot.wait(10)
+    idle(page, qtbot)
+
+
+def idle(page, qtbot):
+    """Wait until the screening (in the worker) and its plots are shown."""
+    qtbot.waitUntil(lambda: not page.screening.busy, timeout=60_000)
 
 
 def test_screening_tab_shows_the_sessions_diary(page, session, qtbot, artifacts):
@@ -94,6 +99,7 @@ def test_ticking_a_step_is_an_undoable_edit_of_the_session(page, session, qtbot,
     assert session.preparation == (Step("detrend"),)
     page.screening.checks["standardize"].setChecked(True)
     assert session.preparation == (Step("detrend"), Step("standardize"))
+    idle(page, qtbot)
     assert session.undo_stack.undoText() == "Preparation steps"
     assert "Before estimation: Remove a linear trend per item; then Standardize" \
         in page.summary_label.text()
@@ -137,6 +143,7 @@ def test_screening_runs_only_when_shown_and_changed(page, session, qtbot, screen
     n_free = free_parameters(session.spec)
     assert f"({n_free} free parameters in the current model)" in page.screening.readiness_label.text()
     page.screening.checks["detrend"].setChecked(True)  # the view screens the prepared diary once
+    idle(page, qtbot)
     assert len(screenings) == 3 and session.preparation == (Step("detrend"),)
 
 

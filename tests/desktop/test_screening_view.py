@@ -44,13 +44,19 @@ def order_diary(seed=0, n=80, constant=False):
     return diary_from_frame(frame, ["calm", "tense"], TimeSettings(mode="order"))
 
 
+def idle(qtbot, view):
+    """Wait until the view has screened its diary (in the worker) and drawn its plots."""
+    qtbot.waitUntil(lambda: not view.busy, timeout=60_000)
+
+
 def column(model, header):
     headers = [model.headerData(c, Qt.Orientation.Horizontal) for c in range(model.columnCount())]
     return headers.index(header)
 
 
-def test_shows_items_readiness_and_weeks(view, demo):
+def test_shows_items_readiness_and_weeks(view, demo, qtbot):
     view.set_diary(demo, (), n_free=40)
+    idle(qtbot, view)
     model = view.item_model
     assert model.rowCount() == demo.n_items
     assert [model.index(r, 0).data() for r in range(model.rowCount())] == list(demo.items)
@@ -67,9 +73,11 @@ def test_shows_items_readiness_and_weeks(view, demo):
 
 def test_ticking_a_step_emits_and_shows_after(view, demo, qtbot):
     view.set_diary(demo, ())
+    idle(qtbot, view)
     with qtbot.waitSignal(view.steps_changed, timeout=5000) as signal:
         view.checks["standardize"].setChecked(True)
     assert signal.args == [(Step("standardize"),)]
+    idle(qtbot, view)
     after = view.screening(prepared=True)
     assert all(s.sd == pytest.approx(1.0) and s.mean == pytest.approx(0.0, abs=1e-12)
                for s in after.items)
@@ -80,9 +88,10 @@ def test_ticking_a_step_emits_and_shows_after(view, demo, qtbot):
     assert "trend" in view.steps_label.text() and view.steps() == signal.args[0]
 
 
-def test_set_diary_reflects_given_steps(view, demo):
+def test_set_diary_reflects_given_steps(view, demo, qtbot):
     steps = (Step("prompt_means"), Step("weekday_means"))
     view.set_diary(demo, steps)
+    idle(qtbot, view)
     assert view.checks["prompt_means"].isChecked() and view.checks["weekday_means"].isChecked()
     assert not view.checks["detrend"].isChecked()
     prepared = screen_diary(apply_steps(demo, steps))
@@ -92,6 +101,7 @@ def test_set_diary_reflects_given_steps(view, demo):
 
 def test_impossible_step_is_refused_without_signal(view, qtbot):
     view.set_diary(order_diary(constant=True), ())
+    idle(qtbot, view)
     assert not view.checks["weekday_means"].isEnabled()  # no dates, no timestamps
     assert not view.checks["prompt_means"].isEnabled()   # no prompt numbers
     with qtbot.assertNotEmitted(view.steps_changed):
@@ -101,9 +111,11 @@ def test_impossible_step_is_refused_without_signal(view, qtbot):
     assert view.steps() == ()
 
 
-def test_plot_numbers_match_the_screening(view, demo):
+def test_plot_numbers_match_the_screening(view, demo, qtbot):
     view.set_diary(demo, (Step("detrend"),))
+    idle(qtbot, view)
     view.select_item("flat")
+    idle(qtbot, view)
     rows = [[view.plot_model.index(r, c).data() for c in range(6)]
             for r in range(view.plot_model.rowCount())]
     item = view.screening().item("flat")
@@ -118,10 +130,12 @@ def test_plot_numbers_match_the_screening(view, demo):
     np.testing.assert_allclose([float(r[4]) for r in after], 0.0, atol=1e-5)  # detrended
 
 
-def test_exports_and_picture(view, demo, tmp_path, artifacts):
+def test_exports_and_picture(view, demo, tmp_path, artifacts, qtbot):
     view.set_diary(demo, (Step("detrend"), Step("standardize")), n_free=40)
     view.show()
+    idle(qtbot, view)
     view.select_item("sad")
+    idle(qtbot, view)
     png = save_widget_png(view, artifacts / "screening_view.png", scale=1.0)
     assert png.stat().st_size > 20_000
     svg = save_scene_svg(view.plots, tmp_path / "plots.svg")

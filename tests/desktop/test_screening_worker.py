@@ -1,4 +1,4 @@
-"""A long diary is screened off the UI thread: the screening view hands it to its worker,
+"""Every diary is screened off the UI thread: the screening view hands it to its worker,
 shows progress, and then shows what models.screening computes for the same diary."""
 
 from __future__ import annotations
@@ -17,8 +17,8 @@ from lagwise.resources import demo_diary_path
 
 
 @pytest.fixture
-def long_diaries(monkeypatch):
-    """Every diary counts as long, and the threads that screen are recorded."""
+def screening_threads(monkeypatch):
+    """The threads that screen are recorded."""
     threads = []
     original = screening_module.screen_diary
 
@@ -26,12 +26,11 @@ def long_diaries(monkeypatch):
         threads.append(threading.current_thread())
         return original(*args, **kwargs)
 
-    monkeypatch.setattr(screening_module, "WORKER_OCCASIONS", 0)
     monkeypatch.setattr(screening_module, "screen_diary", recorded)
     return threads
 
 
-def test_long_diary_is_screened_in_the_worker(lagwise_app, qtbot, long_diaries):
+def test_diary_is_screened_in_the_worker(lagwise_app, qtbot, screening_threads):
     demo = load_diary(demo_diary_path(), time=TimeSettings(mode="grid", day="day",
                                                            prompt="prompt"))
     view = ScreeningView()
@@ -40,8 +39,8 @@ def test_long_diary_is_screened_in_the_worker(lagwise_app, qtbot, long_diaries):
     view.set_diary(demo, steps)
     assert view.busy and view.screening() is None
     qtbot.waitUntil(lambda: not view.busy and view.screening() is not None, timeout=60_000)
-    assert len(long_diaries) == 2
-    assert all(t is not threading.main_thread() for t in long_diaries)
+    assert len(screening_threads) == 2
+    assert all(t is not threading.main_thread() for t in screening_threads)
     before, after = screen_diary(demo), screen_diary(apply_steps(demo, steps))
     for shown, computed in ((view.screening(), before), (view.screening(prepared=True), after)):
         assert [s.adf.p for s in shown.items] == [s.adf.p for s in computed.items]
