@@ -2,7 +2,8 @@
 
 The QApplication is made once, high-DPI safe (fractional scale factors are passed through),
 with the Lagwise look. `lagwise demo --screenshot FILE` loads the bundled demo, estimates
-it and renders the window offscreen to a PNG without needing a display. `lagwise FILE` opens
+it and renders the window offscreen to a PNG without needing a display; `--save-data FILE`
+writes the demo diary to a file for the command line. `lagwise FILE` opens
 a project (.lagwise) or imports a data file; at start-up the window offers to restore work
 autosaved before a crash. On Linux without a display, opening the window is refused with a
 hint instead of Qt aborting.
@@ -83,10 +84,21 @@ def add_demo_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--screenshot", metavar="FILE",
                         help="estimate the demo and save a picture of the window to FILE (PNG) "
                              "without opening it")
+    parser.add_argument("--save-data", metavar="FILE",
+                        help="write the demo diary (CSV, invented) to FILE, e.g. to try "
+                             "'lagwise fit' on it, and stop")
 
 
 def run_demo(args: argparse.Namespace) -> int:
-    """Open the demo in the window, or with --screenshot render it to a PNG and return 0."""
+    """Open the demo in the window, or with --screenshot render it to a PNG, or with
+    --save-data write its diary to a file; 0 when done."""
+    save_data = getattr(args, "save_data", None)
+    if save_data:
+        from lagwise.models.atomic import write_output
+
+        write_output(save_data, DEMO_DIARY.read_bytes(), "the demo diary")
+        print(f"The demo diary (invented, simulated) was written to {save_data}")
+        return 0
     screenshot = getattr(args, "screenshot", None)
     if screenshot:
         from PySide6.QtWidgets import QApplication
