@@ -51,6 +51,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     model.add_argument("--lags", type=int, choices=(1, 2), default=1, help="lag order (default 1)")
     model.add_argument("--paths", choices=("all", "inertia"), default="all",
                        help="free lagged paths: all (default) or inertia only")
+    model.add_argument("--path", action="append", metavar="FROM->TO",
+                       help="with --paths inertia: also free the lag-1 effect of state FROM on "
+                            "state TO (repeat for each path; quote names with spaces)")
     model.add_argument("--innovations", choices=("free", "independent", "partial"), default="free",
                        help="innovation covariances: free (default), independent, or partial correlations")
     model.add_argument("--identification", choices=("marker", "variance"), default="marker",
@@ -126,10 +129,26 @@ def spec_from_args(args: argparse.Namespace) -> ModelSpec:
     states = parse_states(args.state)
     k = len(states)
     mask = full_mask(k) if args.paths == "all" else inertia_mask(k)
+    if args.path:
+        if args.paths == "all":
+            raise SpecError("--path frees single paths: give it with --paths inertia")
+        mask = _with_paths(mask, [s.name for s in states], args.path)
     masks = tuple(mask if lag == 1 else (full_mask(k) if args.paths == "all" else full_mask(k, False))
                   for lag in range(1, args.lags + 1))
     return ModelSpec(states=states, lags=args.lags, paths=masks, innovations=args.innovations,
                      identification=args.identification)
+
+
+def _with_paths(mask, names: list[str], texts: list[str]):
+    """`mask` with the lag-1 path of every --path FROM->TO freed (row TO, column FROM)."""
+    mask = [list(row) for row in mask]
+    for text in texts:
+        source, sep, target = (part.strip() for part in text.partition("->"))
+        if not sep or source not in names or target not in names:
+            raise SpecError(f"--path '{text}' is not FROM->TO with two of the states "
+                            f"{', '.join(names)}")
+        mask[names.index(target)][names.index(source)] = True
+    return tuple(tuple(row) for row in mask)
 
 
 def run(args: argparse.Namespace) -> int:
