@@ -496,10 +496,10 @@ class MainWindow(QMainWindow):
         if not self.session.result_is_current():
             parts.append(f"<span style='color:{style.WARNING}'><b>The model or data changed "
                          f"since this estimate.</b> Press Estimate (Ctrl+E) to update.</span>")
-        verdict = ("the estimation converged" if result.converged else
-                   f"<b>the estimation did not converge</b> ({escape(result.message)})")
+        verdict = ("the estimation converged." if result.converged else
+                   f"<b>the estimation did not converge.</b> {escape(result.message)}")
         parts.append(f"Estimator: {result.estimator}; {result.data_used} from "
-                     f"{result.n_occasions} prompts; {verdict}.")
+                     f"{result.n_occasions} prompts; {verdict}")
         self.result_note.setText(" ".join(parts))
 
     def _update_title(self) -> None:

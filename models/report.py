@@ -17,7 +17,7 @@ def format_result(result: FitResult) -> str:
     lines.append(f"Lagwise fit: estimator {result.estimator}, {status} "
                  f"({result.iterations} iterations, {result.seconds:.2f} s)")
     if not result.converged:
-        lines.append(f"  optimiser: {result.message}")
+        lines.append(f"  {result.message}")
     lines.append(f"  {result.n_occasions} occasions, {result.data_used} used, "
                  f"{result.fit.n_free} free parameters, spectral radius {result.spectral_radius:.3f}")
     lines.append(f"  standard errors: {ERRORS[result.se_method]}")

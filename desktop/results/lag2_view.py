@@ -210,7 +210,8 @@ class Lag2View(ResultsPanel):
         problems = []
         for name, fitted in (("lag-1 model", check.restricted), ("model with lag-2 paths", check.extended)):
             if not fitted.converged:
-                problems.append(f"The {name} did not converge ({fitted.message}): treat the tests as provisional.")
+                problems.append(f"The {name} did not converge. {fitted.message} Treat the tests as "
+                                "provisional.")
             problems += [f"The {name}: {flag}" for flag in fitted.flags]
         self.problems.setText(" ".join(problems))
         self.problems.setVisible(bool(problems))
