@@ -67,7 +67,7 @@ def format_result(result: FitResult) -> str:
 
 def format_lag2(check: Lag2Check) -> str:
     """The lag-2 check as text: verdict, likelihood-ratio test, then each path's score test."""
-    lines = ["Is lag 1 enough? (lag-2 check on depth-2 windows)",
+    lines = ["Is lag 1 enough? (lag-2 check on windows of 3 prompts)",
              f"  {check.verdict}",
              f"  likelihood-ratio test: chi-square {fmt(check.lr_chi2, digits=2)} on {check.lr_df} df, "
              f"p {fmt(check.lr_p, 'p')}"]
