@@ -18,6 +18,7 @@ from PySide6.QtWidgets import QComboBox, QLabel, QLineEdit
 from lagwise.desktop.results.stability_view import BootstrapIntervals, ParametersWithBootstrap
 from lagwise.desktop.results.tables import Column
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, table_view
+from lagwise.desktop.style import plain
 from lagwise.models.kinds import Kind
 from lagwise.models.numbers import MISSING, fmt
 from lagwise.models.results import FitResult, Parameter
@@ -133,10 +134,10 @@ class GroupedParameters(ParametersWithBootstrap):
             states = self._result.states
             i, j = states.index(p.from_), states.index(p.to)
             correlation = self._result.innovation_correlation()[i, j]
-            return (f"In SD units of the states: {fmt(p.standardized)} (the covariance divided "
-                    f"by the SDs of {p.from_} and {p.to}). The correlation of the innovations "
-                    f"is {fmt(correlation)} (Innovations tab): it divides by the innovations' "
-                    "own SDs, which are smaller than the states' SDs.")
+            return plain(f"In SD units of the states: {fmt(p.standardized)} (the covariance "
+                         f"divided by the SDs of {p.from_} and {p.to}). The correlation of the "
+                         f"innovations is {fmt(correlation)} (Innovations tab): it divides by "
+                         "the innovations' own SDs, which are smaller than the states' SDs.")
         return SD_UNITS_TIP
 
 
