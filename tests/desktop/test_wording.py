@@ -9,6 +9,7 @@ import json
 import numpy as np
 import pytest
 from PySide6.QtCore import Qt
+from PySide6.QtWidgets import QLabel
 
 from lagwise.desktop.export import save_table_csv
 from lagwise.desktop.pages.dynamics_page import DynamicsPage
@@ -97,6 +98,9 @@ def test_innovation_covariance_in_sd_units_is_told_apart_from_their_correlation(
     assert "correlation of the innovations" in tip and fmt(correlation) in tip
     header_tip = model.headerData(column, Qt.Orientation.Horizontal, Qt.ItemDataRole.ToolTipRole)
     assert "not the correlation of the innovations" in header_tip
+    heading = next(label for label in view.innovations.findChildren(QLabel)
+                   if label.text() == "Correlations of the innovations")
+    assert "In SD units" in heading.toolTip() and "states" in heading.toolTip()
 
 
 def test_the_grouped_table_exports_as_shown(view, tmp_path):
