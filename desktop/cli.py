@@ -95,7 +95,8 @@ def _build_parser(name: str):
                     "diary. Without a command the window opens.",
     )
     parser.add_argument("--version", action="version", version=f"lagwise {_version()}")
-    commands = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND", required=True,
+                                     help="what to do (lagwise COMMAND --help: its options)")
     chosen = None
     for command_name, command in COMMANDS.items():
         sub = commands.add_parser(command_name, help=command.help, description=command.help)

@@ -59,12 +59,21 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     model.add_argument("--identification", choices=("marker", "variance"), default="marker",
                        help="scale of each state: marker loading 1 (default) or innovation variance 1")
     est = parser.add_argument_group("estimation")
-    est.add_argument("--estimator", choices=ESTIMATORS, default="stationary")
-    est.add_argument("--missing", choices=MISSING, default="fiml")
+    est.add_argument("--estimator", choices=ESTIMATORS, default="stationary",
+                     help="stationary: lag windows, one stable process (default, fast); "
+                          "first-copy-free: lag windows, no stable process assumed; "
+                          "exact: Kalman filter over the whole series (exact likelihood, "
+                          "state scores)")
+    est.add_argument("--missing", choices=MISSING, default="fiml",
+                     help="missed prompts and skipped items: fiml uses every answer "
+                          "(full information, default); listwise keeps complete lag "
+                          "windows only")
     est.add_argument("--se", choices=tuple(ERRORS),
                      help="standard errors: robust (sandwich; the default for lag windows) or "
                           "model (inverse information; the exact estimator's)")
-    est.add_argument("--depth", type=in_range(DEPTH), help="window depth (default: the lag order)")
+    est.add_argument("--depth", type=in_range(DEPTH),
+                     help="lag windows of DEPTH + 1 prompts: a window of N prompts has depth "
+                          "N - 1 (default: the lag order, a window of 2 prompts for lag 1)")
     est.add_argument("--night-gap", type=in_range(NIGHT_GAP), metavar="N",
                      help="exact estimator: join the days with N missed prompts between them "
                           "instead of restarting each day")

@@ -27,6 +27,7 @@ from PySide6.QtWidgets import (
 )
 
 from lagwise.desktop import style
+from lagwise.desktop.guide import RESULTS_SECTIONS, GuideWindow, add_guide_button
 from lagwise.desktop.import_dialog import FILE_FILTER, ImportDialog
 from lagwise.desktop.notes_dialog import NotesDialog
 from lagwise.desktop.pages.data_page import DataPage
@@ -43,6 +44,7 @@ from lagwise.models.lag2check import adopt, lag2_check
 from lagwise.models.numbers import fmt
 
 PAGES = ("Data", "States", "Dynamics", "Results")
+PAGE_SECTIONS = ("data", "states", "dynamics", "results")   # their sections in the guide
 SETTINGS_GEOMETRY = "window/geometry"
 SETTINGS_STATE = "window/state"
 SETTINGS_PAGE = "window/page"
@@ -90,6 +92,7 @@ class MainWindow(QMainWindow):
         self._running_document = -1
         self._bootstrapped = None   # the estimate the running bootstrap checks
         self._close_confirmed = False
+        self.guide: GuideWindow | None = None   # made when first opened
         self._build_pages()
         self._build_actions()
         self._build_menus()
@@ -127,6 +130,17 @@ class MainWindow(QMainWindow):
         layout.addWidget(self.nav)
         layout.addWidget(self.stack, 1)
         self.setCentralWidget(central)
+        self._add_guide_buttons()
+
+    def _add_guide_buttons(self) -> None:
+        """A "?" beside the title of every page and every results tab."""
+        for name, section, page in zip(PAGES, PAGE_SECTIONS, self.pages()):
+            title = next(t for t in page.findChildren(QLabel) if t.text() == name)
+            add_guide_button(title, lambda s=section: self.open_guide(s), f"the {name} page")
+        for panel in (*self.results.all_panels(), self.results.stability):
+            section = RESULTS_SECTIONS[panel.name]
+            add_guide_button(panel.title, lambda s=section: self.open_guide(s),
+                             f"the {panel.name} tab")
 
     def _results_page(self) -> QWidget:
         page = QWidget()
@@ -199,6 +213,8 @@ class MainWindow(QMainWindow):
             action = self._action(f"&{i + 1} {name}", f"Ctrl+{i + 1}",
                                   lambda _=False, i=i: self.show_page(i), f"Show the {name} page")
             self.page_actions.append(action)
+        self.guide_action = self._action("Lagwise &guide", "F1", lambda: self.open_guide(),
+                                         "Open the guide at the page in view (F1)")
         self.about_action = self._action("&About Lagwise", None, self.about)
 
     def _build_menus(self) -> None:
@@ -227,6 +243,8 @@ class MainWindow(QMainWindow):
         for action in self.page_actions:
             view_menu.addAction(action)
         help_menu = bar.addMenu("&Help")
+        help_menu.addAction(self.guide_action)
+        help_menu.addSeparator()
         help_menu.addAction(self.about_action)
 
         tools = QToolBar("Main tools")
@@ -498,10 +516,10 @@ class MainWindow(QMainWindow):
         if not self.session.result_is_current():
             parts.append(f"<span style='color:{style.WARNING}'><b>The model or data changed "
                          f"since this estimate.</b> Press Estimate (Ctrl+E) to update.</span>")
-        verdict = ("the estimation converged" if result.converged else
-                   f"<b>the estimation did not converge</b> ({escape(result.message)})")
+        verdict = ("the estimation converged." if result.converged else
+                   f"<b>the estimation did not converge.</b> {escape(result.message)}")
         parts.append(f"Estimator: {result.options.method.short}; {result.data_used} from "
-                     f"{result.n_occasions} prompts; {verdict}.")
+                     f"{result.n_occasions} prompts; {verdict}")
         self.result_note.setText(" ".join(parts))
 
     def _update_title(self) -> None:
@@ -590,6 +608,22 @@ class MainWindow(QMainWindow):
             action.triggered.connect(lambda _=False, p=path: self.files.open_recent(p))
         if not paths:
             menu.addAction("No recent projects").setEnabled(False)
+
+    # ----- the guide -----------------------------------------------------------------
+    def guide_section(self) -> str:
+        """The guide's section of the page (and results tab) in view."""
+        page = self.current_page()
+        if self.pages()[page] is self.results_page and self.results.stack.currentWidget() is self.results.tabs:
+            return RESULTS_SECTIONS.get(getattr(self.results.tabs.currentWidget(), "name", ""),
+                                        "results")
+        return PAGE_SECTIONS[page]
+
+    def open_guide(self, section: str | None = None) -> GuideWindow:
+        """Open the guide at `section` (default: the page in view)."""
+        if self.guide is None:
+            self.guide = GuideWindow(self)
+        self.guide.show_section(section or self.guide_section())
+        return self.guide
 
     def about(self) -> None:
         QMessageBox.about(

@@ -8,13 +8,17 @@ with a file becomes a dialog and the document in the window is left as it was.
 The unsaved-changes question is window-modal and asynchronous (`QMessageBox.open`): the
 action that needs it (closing, New, Open) runs when the user answers Save (and the save
 succeeds) or Discard, and not at all on Cancel.
+
+Opening reads and checks the file, reads its data and builds its diary in a worker of its own
+(`read_project`, so a running estimate goes on); the window then asks what it must ask and
+shows the project. `reading` is True meanwhile.
 """
 
 from __future__ import annotations
 
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Callable
+from typing import Any, Callable
 
 from PySide6.QtCore import QObject, QSettings, Qt, QTimer, Signal
 from PySide6.QtWidgets import QFileDialog, QMessageBox, QWidget
@@ -22,8 +26,10 @@ from PySide6.QtWidgets import QFileDialog, QMessageBox, QWidget
 from lagwise.desktop.import_dialog import FILE_FILTER
 from lagwise.desktop.session import Session
 from lagwise.desktop.style import plain
+from lagwise.desktop.worker import Worker
 from lagwise.models.atomic import remove_stale_temporaries
 from lagwise.models.errors import LagwiseError, ProjectError
+from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.project import (
     SUFFIX, LinkedDataChanged, LinkedDataMissing, Project, Recovery, discard_recovery,
     find_recoveries, open_project, project_diary, project_table, relink_data, save_project,
@@ -39,6 +45,30 @@ PROJECT_FILTER = f"Lagwise projects (*{SUFFIX});;All files (*)"
 Button = QMessageBox.StandardButton
 
 
+@dataclass(frozen=True)
+class ReadProject:
+    """A project file read off the window's thread: the project, its raw table, and the
+    linked-data problem to ask the user about (then the table is None)."""
+
+    project: Project
+    table: Any
+    problem: LinkedDataMissing | LinkedDataChanged | None = None
+
+
+def read_project(path: Path, monitor: Monitor | None = None) -> ReadProject:
+    """Read and check a project file, read its data and build its diary once (the check that
+    it builds); ProjectError when the file is unusable. Runs in a worker."""
+    remove_stale_temporaries(path)  # left beside it by a save that was killed
+    project = open_project(path)
+    checkpoint(monitor, 0.5, "Reading the data")
+    try:
+        table = project_table(project)
+        project_diary(project, table)
+    except (LinkedDataMissing, LinkedDataChanged) as exc:
+        return ReadProject(project, None, exc)
+    return ReadProject(project, table)
+
+
 class ProjectFiles(QObject):
     """The project-file commands of one window over its Session (see module docstring)."""
 
@@ -51,6 +81,10 @@ class ProjectFiles(QObject):
         self._session = session
         self._recoveries: set[Path] = set()  # autosaves of this document, removed on save/close
         self.question: QMessageBox | None = None  # the pending unsaved-changes question
+        self.reader = Worker(self)                # reads project files off the window's thread
+        self.reader.done.connect(self._read_done)
+        self.reader.error.connect(self._read_error)
+        self._reading: Path | None = None
         self.autosave_timer = QTimer(self)
         self.autosave_timer.setInterval(AUTOSAVE_MS)
         self.autosave_timer.timeout.connect(self.autosave)
@@ -99,31 +133,38 @@ class ProjectFiles(QObject):
         self.discard_recoveries()
         self._session.clear()
 
+    @property
+    def reading(self) -> bool:
+        """A project file is being read (see `open`)."""
+        return self.reader.busy
+
     def open(self, path: str | Path | None = None) -> bool:
-        """File > Open: read a project (choosing it unless `path` is given), sort out linked
-        data that moved or changed, then replace the document after the unsaved-changes
-        question. False when nothing will be opened (cancelled or the file is unusable)."""
+        """File > Open: read a project (choosing it unless `path` is given) in the worker;
+        then sort out linked data that moved or changed and replace the document after the
+        unsaved-changes question. False when no file was chosen."""
         if path is None:
             path, _ = QFileDialog.getOpenFileName(self._window, "Open a project",
                                                   self._folder(), PROJECT_FILTER)
             if not path:
                 return False
-        path = Path(path)
-        remove_stale_temporaries(path)  # left beside it by a save that was killed
-        try:
-            project = open_project(path)
-        except ProjectError as exc:
-            self._refuse("Could not open the project", exc)
-            if not path.exists():
-                self._forget_recent(path)
-            return False
-        ready = self._with_table(project)
+        self._reading = Path(path)
+        self._say(f"Opening {self._reading.name}…")
+        self.reader.start(read_project, self._reading, job="open")
+        return True
+
+    def _read_done(self, read: ReadProject) -> None:
+        ready = ((read.project, read.table, False) if read.problem is None
+                 else self._with_table(read.project))
         if ready is None:
-            return False
+            return
         project, table, relinked = ready
         self.confirm_discard(lambda: self._load(project, table, saved=not relinked),
                              "opening another project")
-        return True
+
+    def _read_error(self, message: str, _details: str) -> None:
+        QMessageBox.warning(self._window, "Could not open the project", plain(message))
+        if self._reading is not None and not self._reading.exists():
+            self._forget_recent(self._reading)
 
     def _with_table(self, project: Project):
         """(project, its raw table, relinked?) or None; linked data that moved or changed is

@@ -74,6 +74,33 @@ def maximise(objective: Likelihood, theta0: np.ndarray, sizes: np.ndarray, max_i
     return theta, ok, str(res.message), int(res.nit)
 
 
+# What L-BFGS-B's stop messages mean, in words (matched on its message with "_" as spaces).
+_STOPS = (
+    (("PGTOL", "GRADIENT IS SUFFICIENTLY SMALL"),
+     "The optimiser stopped because the slope of the likelihood was practically zero."),
+    (("REDUCTION OF F",),
+     "The optimiser stopped because further steps no longer improved the likelihood noticeably."),
+    (("ITERATIONS",),
+     "The optimiser reached its iteration limit before the estimates settled: allow more "
+     "iterations or simplify the model."),
+    (("EVALUATIONS",),
+     "The optimiser reached its limit of likelihood evaluations before the estimates settled: "
+     "allow more iterations or simplify the model."),
+    (("ABNORMAL", "LNSRCH", "ROUNDING"),
+     "The optimiser's last step could not improve the likelihood (rounding limits progress, "
+     "as usual at an optimum)."),
+)
+
+
+def stop_sentence(message: str) -> str:
+    """A plain sentence for an optimiser's stop message (the raw text stays in the JSON)."""
+    words = str(message).upper().replace("_", " ")
+    for keys, sentence in _STOPS:
+        if any(key in words for key in keys):
+            return sentence
+    return "The optimiser stopped for a technical reason (its own words are in the JSON)."
+
+
 def interior(objective: Likelihood, theta: np.ndarray) -> np.ndarray:
     """Free parameters not held at a bound."""
     lower, upper = objective.layout.bounds()

@@ -17,7 +17,7 @@ def format_result(result: FitResult) -> str:
     lines.append(f"Lagwise fit: estimator {result.estimator}, {status} "
                  f"({result.iterations} iterations, {result.seconds:.2f} s)")
     if not result.converged:
-        lines.append(f"  optimiser: {result.message}")
+        lines.append(f"  {result.message}")
     lines.append(f"  {result.n_occasions} occasions, {result.data_used} used, "
                  f"{result.fit.n_free} free parameters, spectral radius {result.spectral_radius:.3f}")
     lines.append(f"  standard errors: {ERRORS[result.se_method]}")
@@ -67,7 +67,7 @@ def format_result(result: FitResult) -> str:
 
 def format_lag2(check: Lag2Check) -> str:
     """The lag-2 check as text: verdict, likelihood-ratio test, then each path's score test."""
-    lines = ["Is lag 1 enough? (lag-2 check on depth-2 windows)",
+    lines = ["Is lag 1 enough? (lag-2 check on windows of 3 prompts)",
              f"  {check.verdict}",
              f"  likelihood-ratio test: chi-square {fmt(check.lr_chi2, digits=2)} on {check.lr_df} df, "
              f"p {fmt(check.lr_p, 'p')}"]

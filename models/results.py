@@ -268,6 +268,7 @@ class FitResult:
     start_loglik_windows: float | None = None  # exact estimator: its start's window loglik
     covariance: np.ndarray | None = None     # of the free parameters (order of free_parameters)
     se_method: str = "model"                 # what `se` is: "robust" (sandwich) or "model"
+    optimiser_message: str = ""              # the optimiser's own words; `message` says it plainly
 
     @property
     def items(self) -> tuple[str, ...]:
@@ -342,6 +343,7 @@ class FitResult:
             "estimator": self.estimator,
             "converged": self.converged,
             "message": self.message,
+            "optimiser_message": self.optimiser_message,
             "n_windows": self.n_windows,
             "n_occasions": self.n_occasions,
             "seconds": self.seconds,
@@ -375,6 +377,7 @@ class FitResult:
             jr.field("estimator", jr.text),
             jr.field("converged", jr.boolean),
             jr.field("message", jr.text, "", limit=jr.MAX_TEXT),
+            jr.field("optimiser_message", jr.text, "", limit=jr.MAX_TEXT),
             jr.field("iterations", jr.integer, 0, low=0),
             jr.field("seconds", jr.number, 0.0),
             jr.field("n_windows", jr.integer, low=0),

@@ -25,7 +25,8 @@ from lagwise.models.estimators import FitOptions
 from lagwise.models.flags import Flag
 from lagwise.models.kinds import Kind
 from lagwise.models.lyapunov import spectral_radius, stationary_covariance
-from lagwise.models.optimise import covariance_from_information, interior, maximise, newton_polish
+from lagwise.models.optimise import (covariance_from_information, interior, maximise,
+                                     newton_polish, stop_sentence)
 from lagwise.models.parameters import Matrices, ParameterLayout
 from lagwise.models.progress import Monitor, checkpoint, scaled
 from lagwise.models.results import FitIndices, FitResult, Parameter
@@ -76,20 +77,25 @@ class Objective(Protocol):
 
 @dataclass(frozen=True)
 class Judgement:
+    """The convergence verdict, a plain sentence saying why, and the optimiser's own words."""
+
     converged: bool
     message: str
+    optimiser_message: str = ""
 
 
 def judge(optimiser_ok: bool, message: str, gradient: np.ndarray, sizes: np.ndarray,
           inside: np.ndarray, n_rows: int) -> Judgement:
     """Converged when the optimiser stopped well and the scaled gradient is small (see the
-    module docstring); otherwise the reason, in words."""
+    module docstring); the reason in a plain sentence, the optimiser's message kept."""
     if not optimiser_ok:
-        return Judgement(False, message)
+        return Judgement(False, stop_sentence(message), message)
     worst = float(np.max(np.abs(gradient * sizes)[inside])) / max(n_rows, 1) if inside.any() else 0.0
     if not np.isfinite(worst) or worst >= GRADIENT_TOLERANCE:
-        return Judgement(False, "the gradient is not close to zero at the final estimate")
-    return Judgement(True, message)
+        return Judgement(False, "The estimates did not settle: the slope of the likelihood "
+                                "(its gradient) is not close to zero at the final estimate.",
+                         message)
+    return Judgement(True, stop_sentence(message), message)
 
 
 def start_vector(objective: Objective, start: Start, monitor: Monitor | None) -> np.ndarray:
@@ -189,7 +195,8 @@ def _solve(objective: Objective, notes: list[str], monitor: Monitor | None,
     checkpoint(monitor, 1.0, "Done")
     return FitResult(
         spec=objective.spec, options=options, estimator=options.estimator,
-        converged=verdict.converged, message=verdict.message, iterations=iterations,
+        converged=verdict.converged, message=verdict.message,
+        optimiser_message=verdict.optimiser_message, iterations=iterations,
         seconds=time.perf_counter() - started, n_windows=objective.n_rows,
         n_occasions=objective.n_occasions, parameters=tuple(parameters), fit=fit,
         loadings=mats.lam.copy(), intercepts=mats.nu.copy(), unique=mats.theta.copy(),

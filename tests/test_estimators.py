@@ -98,7 +98,8 @@ def test_no_estimator_reports_converged_when_the_gradient_is_not_small(
 def test_exact_not_converged_when_the_optimiser_stops_at_its_iteration_limit(diary, monkeypatch):
     _stopping_at(monkeypatch, "STOP: TOTAL NO. OF ITERATIONS REACHED LIMIT", False, shift=0.0)
     result = fit(diary, SPEC, FitOptions(estimator="exact"))
-    assert not result.converged and "LIMIT" in result.message
+    assert not result.converged and "iteration limit" in result.message
+    assert "LIMIT" in result.optimiser_message
 
 
 def test_a_line_search_stop_at_the_optimum_counts_as_converged(diary, monkeypatch):

@@ -24,7 +24,7 @@ STATES = ["--state", "tension=tense,restless,worried", "--state", "mood=sad,flat
 GRID = ["--day", "day", "--prompt", "prompt"]
 EXTRA_ARGS = {"stationary": ["--lag2-check"], "first-copy-free": [], "exact": []}
 # keys added since the contract was recorded (each documented in README's JSON notes)
-ADDED = {"$.flag_codes", "$.flag_codes[]", "$.se_method", "$.covariance", "$.covariance[]",
+ADDED = {"$.flag_codes", "$.optimiser_message", "$.flag_codes[]", "$.se_method", "$.covariance", "$.covariance[]",
          "$.covariance[][]", "$.parameters[].se_model", "$.options.se", "$.fit.scaled",
          *(f"$.fit.scaled.{key}" for key in ("chi2", "df", "p", "scaling", "scaled_chi2",
                                              "scaled_p", "rmsea", "cfi", "tli"))}

@@ -272,11 +272,14 @@ class DataPage(QWidget):
             plot.getAxis("bottom").setTicks([ticks, []])
             if row < len(names) - 1:
                 plot.getAxis("bottom").setStyle(showValues=False)
-            for d in range(1, len(starts), 2):
-                end = starts[d + 1] if d + 1 < len(starts) else diary.n_occasions
-                shade = pg.LinearRegionItem((starts[d] - 0.5, end - 0.5), movable=False,
-                                            brush=pg.mkBrush(style.DAY_SHADE),
-                                            pen=pg.mkPen(None))
+            if len(starts) > 1 and np.isfinite(y).any():   # every other day: one item, not one per day
+                ends = np.append(starts[1:], diary.n_occasions)
+                odd = np.arange(1, len(starts), 2)
+                low, high = np.nanmin(y), np.nanmax(y)
+                pad = 0.15 * max(high - low, 1.0)
+                shade = pg.BarGraphItem(x0=starts[odd] - 0.5, width=ends[odd] - starts[odd],
+                                        y0=low - pad, height=high - low + 2 * pad,
+                                        brush=pg.mkBrush(style.DAY_SHADE), pen=pg.mkPen(None))
                 shade.setZValue(-10)
                 plot.addItem(shade)
             colour = style.SERIES[row % len(style.SERIES)]

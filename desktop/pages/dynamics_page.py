@@ -353,12 +353,12 @@ class DynamicsPage(QWidget):
         lags = max(spec.lags, 1)
         combo = self.depth_combo
         combo.clear()
-        combo.addItem(f"{lags + 1} prompts (as the lag order)", None)
+        combo.addItem(f"window of {lags + 1} prompts (as the lag order)", None)
         depths = [lags + 1, lags + 2, lags + 3]
         if options.depth is not None and options.depth not in depths and options.depth != lags:
             depths = sorted({*depths, options.depth})
         for depth in depths:
-            combo.addItem(f"{depth + 1} prompts (depth {depth})", depth)
+            combo.addItem(f"window of {depth + 1} prompts", depth)
         chosen = None if options.depth == lags else options.depth
         combo.setCurrentIndex(max(combo.findData(chosen), 0))
         combo.setToolTip("How many consecutive prompts each lag window holds. More than the lag "

@@ -90,7 +90,11 @@ class InnovationsPanel(ResultsPanel):
         column.setContentsMargins(0, 0, 0, 0)
         self.correlation_view = _matrix_view(self.correlation)
         self.partial_view = _matrix_view(self.partial)
-        column.addWidget(section_label("Correlations of the innovations"))
+        heading = section_label("Correlations of the innovations")
+        heading.setToolTip("Each covariance of two innovations divided by the innovations' own "
+                           "SDs. The Parameters tab's 'In SD units' divides the same covariance "
+                           "by the SDs of the states, which are larger: a smaller number.")
+        column.addWidget(heading)
         column.addWidget(self.correlation_view)
         column.addSpacing(6)
         column.addWidget(section_label("Partial correlations (each pair given the other states)"))

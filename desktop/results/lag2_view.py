@@ -28,7 +28,7 @@ from lagwise.models.spec import ModelSpec
 TEST_NAMES = {"lag2": "Lag-2 path", "unique_autocorrelation": "Unique autocorrelation"}
 
 EMPTY_TEXT = ("No lag-2 check yet. The check fits the current lag-1 model and the same model "
-              "with every lag-2 path free on the same lag windows of three prompts, then tests "
+              "with every lag-2 path free on the same windows of 3 prompts, then tests "
               "each path that the lag-1 model leaves out. Press “Run lag-2 check”.")
 
 READING_GUIDE = (
@@ -218,7 +218,8 @@ class Lag2View(ResultsPanel):
         problems = []
         for name, fitted in (("lag-1 model", check.restricted), ("model with lag-2 paths", check.extended)):
             if not fitted.converged:
-                problems.append(f"The {name} did not converge ({fitted.message}): treat the tests as provisional.")
+                problems.append(f"The {name} did not converge. {fitted.message} Treat the tests as "
+                                "provisional.")
             problems += [f"The {name}: {flag}" for flag in fitted.flags]
         self.problems.setText(" ".join(problems))
         self.problems.setVisible(bool(problems))

@@ -1,29 +1,152 @@
-"""Parameters tab: every parameter of the fit in one sortable, filterable table (CSV export).
+"""Parameters tab: every parameter of the fit, grouped by what it means (CSV export).
 
-Sorting uses the raw engine numbers (tables.SORT_ROLE), so 10 sorts after 9; the CSV holds
-the table as shown.
+Groups: how items measure states (loadings), carry-over and cross-lagged effects (lagged
+paths), what is new at each prompt (innovations), item intercepts and unique parts, and for
+the first-copy-free estimator the oldest window copies. Each group starts with a header row.
+Columns: Value (a fixed value says so: "1.000 (fixed)"), ± SE, 95% range, p, In SD units, and
+the bootstrap interval when there is one. The CSV holds the table as shown.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 from PySide6.QtCore import QRegularExpression, QSortFilterProxyModel, Qt
+from PySide6.QtGui import QFont
 from PySide6.QtWidgets import QComboBox, QLabel, QLineEdit
 
 from lagwise.desktop.results.stability_view import BootstrapIntervals, ParametersWithBootstrap
-from lagwise.desktop.results.tables import PARAMETER_COLUMNS, SORT_ROLE
-from lagwise.models.kinds import Kind
-from lagwise.models.numbers import fmt
+from lagwise.desktop.results.tables import Column
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, table_view
-from lagwise.models.estimators import ERRORS
-from lagwise.models.results import FitResult
+from lagwise.desktop.style import plain
+from lagwise.models.kinds import Kind
+from lagwise.models.numbers import MISSING, fmt
+from lagwise.models.results import FitResult, Parameter
+
+GROUPS = (
+    ("How items measure states", (Kind.LOADING,)),
+    ("Carry-over and cross-lagged effects", (Kind.INERTIA, Kind.CROSS_LAGGED, Kind.LAG2)),
+    ("What is new at each prompt", (Kind.INNOVATION, Kind.PARTIAL_CORRELATION)),
+    ("Item intercepts and unique parts", (Kind.INTERCEPT, Kind.UNIQUE,
+                                          Kind.UNIQUE_AUTOCORRELATION)),
+    ("Oldest window copies (first copy free)", (Kind.FIRST_COPY, Kind.LATENT_INTERCEPT)),
+)
+SD_UNITS = "In SD units"
+SD_UNITS_TIP = ("The value in standard-deviation units of the states and items (the "
+                "standardized solution). For two states' innovations this is their covariance "
+                "divided by the SDs of the STATES, not the correlation of the innovations that "
+                "the Innovations tab shows (which divides by the innovations' own SDs).")
+
+
+@dataclass(frozen=True)
+class Group:
+    """A header row of the table."""
+
+    title: str
+
+
+def parameter_name(p: Parameter) -> str:
+    """The row's name in words: an item or state named once where the parameter has one."""
+    kind = Kind(p.kind)
+    if kind == Kind.LOADING:
+        return f"{p.from_} → {p.to}"
+    if kind in (Kind.INERTIA, Kind.CROSS_LAGGED, Kind.LAG2):
+        return f"{p.from_} (t-{p.lag or 1}) → {p.to}"
+    if kind == Kind.INTERCEPT:
+        return f"{p.to}: intercept"
+    if kind == Kind.UNIQUE:
+        return f"{p.to}: unique variance"
+    if kind == Kind.UNIQUE_AUTOCORRELATION:
+        return f"{p.to}: unique part carried over (t-1)"
+    if kind == Kind.INNOVATION:
+        return f"{p.to}: variance" if p.from_ == p.to else f"{p.from_} with {p.to}: covariance"
+    if kind == Kind.PARTIAL_CORRELATION:
+        return f"{p.from_} with {p.to}: partial correlation"
+    if kind == Kind.LATENT_INTERCEPT:
+        return f"{p.to}: latent intercept (later copies)"
+    return f"{p.to}: variance (oldest copy)" if p.from_ == p.to else \
+        f"{p.from_} with {p.to}: covariance (oldest copy)"
+
+
+def grouped_rows(parameters) -> list[Group | Parameter]:
+    """The parameters under their group headers, in the engine's order within a group."""
+    rows: list[Group | Parameter] = []
+    for title, kinds in GROUPS:
+        members = [p for p in parameters if p.kind in kinds]
+        if members:
+            rows += [Group(title), *members]
+    return rows
+
+
+def _value(p: Parameter) -> str:
+    return fmt(p.estimate) + ("" if p.free else " (fixed)")
+
+
+def _range(p: Parameter) -> str:
+    return MISSING if p.ci is None else f"[{fmt(p.ci[0])}, {fmt(p.ci[1])}]"
+
+
+COLUMNS = (
+    Column("Parameter", parameter_name, "text"),
+    Column("Value", _value, "text", tip="The estimate; a fixed value is set by the model"),
+    Column("± SE", lambda p: p.se, tip="Standard error (see the note below the table)"),
+    Column("95% range", _range, "text", tip="Value ± 1.96 SE"),
+    Column("p", lambda p: p.p, "p", tip="Two-sided p-value of value / SE (is it 0?)"),
+    Column(SD_UNITS, lambda p: p.standardized, tip=SD_UNITS_TIP),
+)
+
+
+class GroupedParameters(ParametersWithBootstrap):
+    """The parameter rows with bold group headers (blank cells besides the title)."""
+
+    def __init__(self, intervals: BootstrapIntervals, parent=None):
+        super().__init__(COLUMNS, intervals, parent=parent)
+        self._result: FitResult | None = None
+
+    def set_result(self, result: FitResult) -> None:
+        self._result = result
+        self.set_rows(grouped_rows(result.parameters))
+
+    def data(self, index, role=Qt.ItemDataRole.DisplayRole):
+        if not index.isValid():
+            return None
+        record = self.row_record(index.row())
+        if isinstance(record, Group):
+            if role == Qt.ItemDataRole.DisplayRole:
+                return record.title if index.column() == 0 else ""
+            if role == Qt.ItemDataRole.FontRole:
+                font = QFont()
+                font.setBold(True)
+                return font
+            return None
+        if role == Qt.ItemDataRole.ToolTipRole:
+            return self._tip(record, self.column(index.column()).header)
+        if role == Qt.ItemDataRole.TextAlignmentRole and index.column() in (1, 3):
+            return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        return super().data(index, role)
+
+    def _tip(self, p: Parameter, header: str) -> str | None:
+        if header == "± SE" and p.free:
+            return f"Standard error {fmt(p.se)}; model-based (inverse information) {fmt(p.se_model)}"
+        if header != SD_UNITS or self._result is None:
+            return None
+        if p.kind == Kind.INNOVATION and p.from_ != p.to:
+            states = self._result.states
+            i, j = states.index(p.from_), states.index(p.to)
+            correlation = self._result.innovation_correlation()[i, j]
+            return plain(f"In SD units of the states: {fmt(p.standardized)} (the covariance "
+                         f"divided by the SDs of {p.from_} and {p.to}). The correlation of the "
+                         f"innovations is {fmt(correlation)} (Innovations tab): it divides by "
+                         "the innovations' own SDs, which are smaller than the states' SDs.")
+        return SD_UNITS_TIP
 
 
 class ParameterFilter(QSortFilterProxyModel):
-    """Numeric sort; keeps rows of one kind (or all) whose state or item names match a text."""
+    """Keeps rows of one kind (or all) whose state or item names match a text, with the
+    header of every group that keeps a row."""
 
     def __init__(self, parent=None):
         super().__init__(parent)
-        self.setSortRole(SORT_ROLE)
         self.setFilterCaseSensitivity(Qt.CaseSensitivity.CaseInsensitive)
         self._kind = ""
 
@@ -36,15 +159,26 @@ class ParameterFilter(QSortFilterProxyModel):
             self._kind = kind
             self.invalidateFilter()
 
-    def filterAcceptsRow(self, row: int, parent) -> bool:
-        source = self.sourceModel()
-        p = source.row_record(row)
+    def _keeps(self, p: Parameter) -> bool:
         if self._kind and p.kind != self._kind:
             return False
         pattern = self.filterRegularExpression()
         if not pattern.pattern():
             return True
         return bool(pattern.match(p.from_).hasMatch() or pattern.match(p.to).hasMatch())
+
+    def filterAcceptsRow(self, row: int, parent) -> bool:
+        source = self.sourceModel()
+        record = source.row_record(row)
+        if not isinstance(record, Group):
+            return self._keeps(record)
+        for below in range(row + 1, source.rowCount()):
+            member = source.row_record(below)
+            if isinstance(member, Group):
+                return False
+            if self._keeps(member):
+                return True
+        return False
 
 
 class ParametersPanel(ResultsPanel):
@@ -66,12 +200,10 @@ class ParametersPanel(ResultsPanel):
         self.head.insertSpacing(index + 3, 12)
 
         self.bootstrap = BootstrapIntervals()   # filled by show_bootstrap
-        self.model = ParametersWithBootstrap(PARAMETER_COLUMNS, self.bootstrap, parent=self)
+        self.model = GroupedParameters(self.bootstrap, parent=self)
         self.proxy = ParameterFilter(self)
         self.proxy.setSourceModel(self.model)
-        self.table = table_view(self.proxy, stretch_last=True)
-        self.table.setSortingEnabled(True)
-        self.table.sortByColumn(-1, Qt.SortOrder.AscendingOrder)
+        self.table = table_view(self.proxy)
         self.body.addWidget(self.table, 1)
         self.bootstrap_note = note_label()
         self.body.addWidget(self.bootstrap_note)
@@ -85,12 +217,12 @@ class ParametersPanel(ResultsPanel):
                                QRegularExpression.PatternOption.CaseInsensitiveOption))
 
     def show_result(self, result: FitResult) -> None:
-        self.model.set_rows(result.parameters)
+        self.model.set_result(result)
         self.note.setText(
-            f"Click a column title to sort. Standard errors (SE): {ERRORS[result.se_method]}; "
-            "SE (model) beside them for comparison. The 95% interval is estimate ± 1.96 SE; "
-            "z = estimate / SE. Fixed parameters are set by the model, not estimated. "
-            + result.cautions[-1])
+            "± SE: the standard error (hover for the model-based one). 95% range: value ± 1.96 SE. p: how surprising the value would be if it "
+            "were 0. In SD units: the standardized value (for innovation covariances not the "
+            "same as the Innovations tab's correlation of the innovations; hover for both). "
+            "A value marked (fixed) is set by the model, not estimated. " + result.cautions[-1])
         present = [k for k in Kind if any(p.kind == k for p in result.parameters)]
         current = self.kind_box.currentData()
         self.kind_box.blockSignals(True)
@@ -104,7 +236,7 @@ class ParametersPanel(ResultsPanel):
 
     def show_bootstrap(self, boot) -> None:
         """Bootstrap intervals beside the model's (models.bootstrap.Bootstrap), or none: the
-        columns are hidden while there is no bootstrap of the shown estimate."""
+        column is hidden while there is no bootstrap of the shown estimate."""
         self.bootstrap.set(boot)
         self.bootstrap_note.setVisible(boot is not None)
         if boot is not None:

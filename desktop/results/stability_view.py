@@ -108,12 +108,12 @@ class BootstrapIntervals:
 
 
 class ParametersWithBootstrap(RecordsModel):
-    """The parameter table with the bootstrap column after the model's "95% high" (sorted
+    """The parameter table with the bootstrap column after the model's "95% range" (sorted
     numerically by the interval's low end)."""
 
     def __init__(self, columns: tuple[Column, ...], intervals: BootstrapIntervals, parent=None):
         headers = [c.header for c in columns]
-        at = headers.index("95% high") + 1 if "95% high" in headers else len(columns)
+        at = headers.index("95% range") + 1 if "95% range" in headers else len(columns)
         super().__init__((*columns[:at], intervals.column(), *columns[at:]), parent=parent)
         self.intervals = intervals
         self.bootstrap_column = at

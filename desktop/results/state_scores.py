@@ -1,7 +1,9 @@
 """State scores tab: each state's score at every prompt, from the exact estimator.
 
-One plot per state: the smoothed score (using the whole diary) as a line with its 95% band
-(score ± 1.96 SD), optionally the filtered score (using the prompts up to each one). Days are
+One plot per state: the score using the whole diary (technically the smoothed score) as a
+line with its 95% band (score ± 1.96 SD), optionally the score using earlier prompts only (the
+filtered score: the prompts up to each one). The window says it in those plain words; the
+technical terms are in the tooltips and the CSV headers. Days are
 shaded alternately; a missed prompt (no item of the model answered) is a grey tick under the
 plot, and the line across it is dotted: there the score is the model's bridge between the
 neighbouring answers, and the band widens. The line and band break between segments (by
@@ -31,18 +33,23 @@ from lagwise.models.results import FitResult, StateScores
 
 ROW_HEIGHT = 170       # pixels per state plot
 MAX_DAY_TICKS = 14
-SMOOTHED = POSITIVE    # deep teal: the smoothed score and its band
-FILTERED = SERIES[1]   # slate blue: the filtered score
+SMOOTHED = POSITIVE    # deep teal: the score using the whole diary (smoothed) and its band
+FILTERED = SERIES[1]   # slate blue: the score using earlier prompts only (filtered)
+WHOLE = "using the whole diary"
+EARLIER = "using earlier prompts only"
+TERMS = ("Technical terms: the score using the whole diary is the smoothed score (Kalman "
+         "smoother); the score using earlier prompts only is the filtered score (Kalman filter).")
 BAND_ALPHA = 0.20
 BAND_SWATCH = "#d1e5e4"  # the band's colour on white (deep teal at BAND_ALPHA), for the legend
 
 NOT_EXACT = ("State scores come from the exact estimator: choose it on the Dynamics page "
              "(Estimator: exact, Kalman filter) and press Estimate.")
 
-READING = ("The <b>smoothed</b> score is the best guess of the state at each prompt using the "
-           "whole diary; the band holds it with 95% probability if the model is right (score "
-           "± 1.96 SD). The <b>filtered</b> score uses only the prompts up to that one, as an "
-           "observer following the diary live would. Scores are deviations from the person's "
+READING = ("The score <b>using the whole diary</b> is the best guess of the state at each "
+           "prompt from every answer, before and after it; the band holds it with 95% "
+           "probability if the model is right (score ± 1.96 SD). The score <b>using earlier "
+           "prompts only</b> uses the prompts up to that one, as an observer following the "
+           "diary live would. Scores are deviations from the person's "
            "usual level (0) in the units of each state's marker item (or of its innovations). "
            "Shaded: every other day. Grey ticks: missed prompts, where the dotted line bridges "
            "the neighbouring answers and the band widens.")
@@ -60,9 +67,10 @@ class StateScoresPanel(ResultsPanel):
         self.curves: dict[str, pg.PlotDataItem] = {}
         self.filtered_curves: dict[str, pg.PlotDataItem] = {}
         self.bands: dict[str, QGraphicsPathItem] = {}
-        self.filtered_box = QCheckBox("Show filtered scores")
-        self.filtered_box.setToolTip("Also draw each state's filtered score: the estimate from "
-                                     "the prompts up to that one only")
+        self.filtered_box = QCheckBox(f"Also show the scores {EARLIER}")
+        self.filtered_box.setToolTip("Also draw each state's score from the prompts up to that "
+                                     "one only (technically the filtered score, from the Kalman "
+                                     "filter)")
         self.filtered_box.toggled.connect(self._show_filtered)
         self.head.insertWidget(self.head.indexOf(self.export_button), self.filtered_box)
 
@@ -79,6 +87,7 @@ class StateScoresPanel(ResultsPanel):
         column.setContentsMargins(0, 0, 0, 0)
         self.legend = QLabel()
         self.legend.setTextFormat(Qt.TextFormat.RichText)
+        self.legend.setToolTip(TERMS)
         column.addWidget(self.legend)
         self.note = note_label()
         self.note.setObjectName("stateScoresNote")
@@ -94,6 +103,7 @@ class StateScoresPanel(ResultsPanel):
         column.addWidget(self.scroll, 1)
         self.guide = note_label(READING)
         self.guide.setTextFormat(Qt.TextFormat.RichText)
+        self.guide.setToolTip(TERMS)
         column.addWidget(self.guide)
         self.stack.addWidget(page)
         self.plot_page = page
@@ -223,11 +233,11 @@ class StateScoresPanel(ResultsPanel):
         self._update_legend()
 
     def _update_legend(self) -> None:
-        parts = [f"<span style='color:{SMOOTHED}; font-weight:700'>━━</span> smoothed score",
+        parts = [f"<span style='color:{SMOOTHED}; font-weight:700'>━━</span> score {WHOLE}",
                  f"<span style='background-color:{BAND_SWATCH}'>&nbsp;&nbsp;&nbsp;&nbsp;</span> 95% band",
                  f"<span style='color:{SMOOTHED}'>┅┅</span> across missed prompts"]
         if self.filtered_box.isChecked():
-            parts.append(f"<span style='color:{FILTERED}; font-weight:700'>━━</span> filtered score")
+            parts.append(f"<span style='color:{FILTERED}; font-weight:700'>━━</span> score {EARLIER}")
         parts.append(f"<span style='color:{MUTED}'>▲</span> missed prompt")
         self.legend.setText("&nbsp;&nbsp;&nbsp;".join(parts))
 
@@ -238,8 +248,9 @@ class StateScoresPanel(ResultsPanel):
                    Column("Answered", lambda r: r[3], "text")]
         for j, state in enumerate(states):
             base = 4 + 6 * j
-            for offset, what in enumerate(("smoothed", "smoothed SD", "lower 95%", "upper 95%",
-                                           "filtered", "filtered SD")):
+            for offset, what in enumerate((f"{WHOLE} (smoothed)", f"{WHOLE} (smoothed) SD",
+                                           "lower 95%", "upper 95%", f"{EARLIER} (filtered)",
+                                           f"{EARLIER} (filtered) SD")):
                 columns.append(Column(f"{state} {what}", lambda r, c=base + offset: r[c]))
         rows = []
         smoothed, smoothed_sd = scores.smoothed, scores.smoothed_sd

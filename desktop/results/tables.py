@@ -145,10 +145,6 @@ def _ci(p: Parameter, end: int) -> float | None:
     return None if interval is None else interval[end]
 
 
-def _status(p: Parameter) -> str:
-    return "free" if p.free else "fixed"
-
-
 @dataclass(frozen=True)
 class LoadingRow:
     """A loading with the R-squared of its item."""
@@ -195,29 +191,6 @@ def loadings_model(parent=None) -> RecordsModel:
 
 def _lag_text(p: Parameter) -> str:
     return f"t-{p.lag}" if p.lag else ""
-
-
-PARAMETER_COLUMNS = (
-    Column("Kind", lambda p: Kind(p.kind).label, "text"),
-    Column("From", lambda p: p.from_, "text"),
-    Column("To", lambda p: p.to, "text"),
-    Column("Lag", _lag_text, "text", tip="For lagged paths: how many prompts back the 'From' state is"),
-    Column("Estimate", lambda p: p.estimate),
-    Column("Standardized", lambda p: p.standardized),
-    Column("SE", lambda p: p.se, tip="Standard error as chosen for this run (robust by default "
-                                      "for lag windows; see the note below the table)"),
-    Column("SE (model)", lambda p: p.se_model,
-           tip="Model-based standard error (inverse information), for comparison"),
-    Column("z", lambda p: p.z),
-    Column("p", lambda p: p.p, "p"),
-    Column("95% low", lambda p: _ci(p, 0)),
-    Column("95% high", lambda p: _ci(p, 1)),
-    Column("Status", _status, "text"),
-)
-
-
-def parameters_model(parent=None) -> RecordsModel:
-    return RecordsModel(PARAMETER_COLUMNS, parent=parent)
 
 
 PATH_COLUMNS = (

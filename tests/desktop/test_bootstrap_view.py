@@ -21,6 +21,7 @@ from window_helpers import open_window, settle
 from lagwise.desktop.app import load_demo
 from lagwise.desktop.export import save_table_csv, save_widget_png
 from lagwise.desktop.mainwindow import JOB_BOOTSTRAP, PAGES
+from lagwise.desktop.results.parameters import Group
 from lagwise.desktop.results.stability_view import BootstrapIntervals
 from lagwise.models.bootstrap import bootstrap
 from lagwise.models.numbers import fmt
@@ -124,13 +125,15 @@ def test_bootstrap_runs_off_the_ui_thread_and_shows_its_numbers(qtbot, window, a
     panel = window.results.parameters
     model = panel.model
     column = model.column_of(BootstrapIntervals.HEADER)
-    assert not panel.table.isColumnHidden(column) and column == model.column_of("95% high") + 1
+    assert not panel.table.isColumnHidden(column) and column == model.column_of("95% range") + 1
     intervals = {(i.kind, i.from_, i.to): i for i in direct.percentile()}
     checked = 0
     for r in range(model.rowCount()):
         p = model.row_record(r)
         shown = model.index(r, column).data()
-        if p.free:
+        if isinstance(p, Group):
+            assert shown == ""
+        elif p.free:
             i = intervals[(p.kind, p.from_, p.to)]
             assert shown == f"[{fmt(i.lower)}, {fmt(i.upper)}]"
             checked += 1

@@ -112,10 +112,10 @@ def test_window_length_is_a_window_setting(page, session, qtbot):
     choose(page.depth_combo, 3)
     settle(qtbot, 5)
     assert session.options.depth == 3
-    assert page.depth_combo.currentText() == "4 prompts (depth 3)"
+    assert page.depth_combo.currentText() == "window of 4 prompts"
     page.lag2.click()                          # lag order 2: the default window follows it
     settle(qtbot, 5)
-    assert page.depth_combo.itemText(0) == "3 prompts (as the lag order)"
+    assert page.depth_combo.itemText(0) == "window of 3 prompts (as the lag order)"
     assert page.depth_combo.currentData() == 3
 
 

@@ -207,11 +207,12 @@ def test_problems_of_the_fits_are_shown(qtbot, check):
     # a check whose model with lag-2 paths did not converge (the engine's own result, marked)
     from dataclasses import replace
     troubled = replace(check, extended=replace(check.extended, converged=False,
-                                               message="iteration limit reached"))
+                                               message="The optimiser reached its iteration limit."))
     w = Lag2View()
     qtbot.addWidget(w)
     w.show_check(troubled)
     assert not w.problems.isHidden()
-    assert "model with lag-2 paths did not converge (iteration limit reached)" in w.problems.text()
+    assert ("model with lag-2 paths did not converge. The optimiser reached its iteration limit."
+            in w.problems.text())
     w.show_check(check)
     assert w.problems.isHidden() == (not check.restricted.flags and not check.extended.flags)

@@ -22,7 +22,7 @@ from PySide6.QtGui import QImage, QStandardItem, QStandardItemModel
 from PySide6.QtWidgets import QFileDialog, QLabel, QMessageBox
 
 from full_disk import fill_disk
-from window_helpers import open_window
+from window_helpers import open_window, settle
 
 from lagwise.desktop import export
 from lagwise.desktop.export import save_scene_svg, save_table_csv, save_widget_png
@@ -147,4 +147,5 @@ def test_opening_a_project_removes_old_temporaries_beside_it(qtbot, lagwise_app,
     os.utime(stale, (then, then))
     window = open_window(qtbot)
     assert window.files.open(target)
+    settle(qtbot)
     assert not stale.exists()

@@ -407,6 +407,7 @@ def test_a_damaged_project_gives_a_dialog_and_loses_nothing(qtbot, window, tmp_p
     newer = tmp_path / "newer.lagwise"
     newer.write_text('{"format": "lagwise-project", "format_version": 99}', "utf-8")
     window.files.open(newer)
+    settle(qtbot)
     assert "newer Lagwise" in shown[-1]
     assert window.session.spec == TRUTH_SPEC
 
@@ -439,11 +440,13 @@ def test_moved_linked_data_is_located_and_relinked(qtbot, window, tmp_path, monk
         handle.write("\n")
     window.session.edit_spec(TRUTH_SPEC.with_lags(2), "Lag order 2")
     asked = answer_questions(monkeypatch, Button.Cancel)
-    assert not window.files.open(saved.file)
+    assert window.files.open(saved.file)
+    settle(qtbot)
     assert "changed" in asked[0]
     assert window.session.spec == TRUTH_SPEC.with_lags(2)
     answer_questions(monkeypatch, Button.Yes)
     assert window.files.open(saved.file)
+    settle(qtbot)
     click(qtbot, unsaved_box(window), Button.Discard)
     assert window.session.spec == TRUTH_SPEC and window.isWindowModified()
 

@@ -150,7 +150,7 @@ def test_filtered_scores_and_the_export(view, tmp_path):
         trace = panel.filtered_curves[state]
         assert trace.isVisible()
         np.testing.assert_array_equal(trace.getData()[1], filtered[:, j])
-    assert "filtered score" in panel.legend.text()
+    assert "score using earlier prompts only" in panel.legend.text()
     ARTIFACTS.mkdir(exist_ok=True)
     assert view.grab().save(str(ARTIFACTS / "results-state-scores-filtered.png"))
     panel.filtered_box.setChecked(False)
@@ -177,11 +177,11 @@ def test_filtered_scores_and_the_export(view, tmp_path):
         assert row["Prompt of the day"] == str(int(diary.prompt[t]))
         assert row["Answered"] == ("no" if missed[t] else "yes")
         for j, state in enumerate(result.spec.state_names):
-            assert row[f"{state} smoothed"] == fmt(smoothed[t, j])
-            assert row[f"{state} smoothed SD"] == fmt(sd[t, j])
+            assert row[f"{state} using the whole diary (smoothed)"] == fmt(smoothed[t, j])
+            assert row[f"{state} using the whole diary (smoothed) SD"] == fmt(sd[t, j])
             assert float(row[f"{state} upper 95%"]) == pytest.approx(
                 smoothed[t, j] + Z95 * sd[t, j], abs=5e-4 + 1e-4 * sd[t, j])
-            assert row[f"{state} filtered"] == fmt(filtered[t, j])
+            assert row[f"{state} using earlier prompts only (filtered)"] == fmt(filtered[t, j])
 
 
 def test_window_estimators_get_a_plain_message(view):

@@ -19,8 +19,7 @@ from PySide6.QtGui import QColor, QImage, QTextDocument
 from PySide6.QtWidgets import QGraphicsPolygonItem
 
 from lagwise.desktop.results import ResultsView
-from lagwise.desktop.results.tables import SORT_ROLE
-from lagwise.models.kinds import Kind
+from lagwise.desktop.results.parameters import Group, parameter_name
 from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import save
 from lagwise.desktop.results.palette import sign_color
@@ -31,7 +30,6 @@ from results_fixture import demo_result, demo_variant
 ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
 DISPLAY = Qt.ItemDataRole.DisplayRole
 
-KIND_NAMES = {kind: kind.label for kind in Kind}
 
 
 def cell(model, row: int, header: str) -> str:
@@ -91,34 +89,32 @@ def test_loadings_table_shows_engine_numbers(view):
 def test_parameter_table_shows_every_engine_parameter(view):
     result = demo_result()
     model = view.parameters.proxy
-    assert model.rowCount() == len(result.parameters)
-    kinds = {words: kind for kind, words in KIND_NAMES.items()}
+    groups = [r for r in range(model.rowCount()) if isinstance(view.parameters.model.row_record(r), Group)]
+    assert model.rowCount() == len(result.parameters) + len(groups)
+    by_name = {parameter_name(p): p for p in result.parameters}
     seen = set()
     for row in range(model.rowCount()):
-        kind = kinds[cell(model, row, "Kind")]
-        p = result.get(kind, cell(model, row, "From"), cell(model, row, "To"))
+        if row in groups:
+            continue
+        p = by_name[cell(model, row, "Parameter")]
         seen.add((p.kind, p.from_, p.to))
-        for header, text in expected_row(p).items():
-            assert cell(model, row, header) == text, (p, header)
-        assert cell(model, row, "z") == fmt(p.z)
+        ci = p.ci
+        assert cell(model, row, "Value") == fmt(p.estimate) + ("" if p.free else " (fixed)")
+        assert cell(model, row, "In SD units") == fmt(p.standardized)
+        assert cell(model, row, "± SE") == fmt(p.se)
+        assert cell(model, row, "95% range") == ("—" if ci is None else f"[{fmt(ci[0])}, {fmt(ci[1])}]")
         assert cell(model, row, "p") == fmt(p.p, "p")
-        assert cell(model, row, "Status") == ("free" if p.free else "fixed")
-        assert cell(model, row, "Lag") == (f"t-{p.lag}" if p.lag else "")
     assert len(seen) == len(result.parameters)
 
 
-def test_parameter_table_sorts_by_number_and_filters(view):
+def test_parameter_table_filters_by_kind_and_name(view):
     result = demo_result()
     panel = view.parameters
-    column = panel.model.column_of("Estimate")
-    panel.table.sortByColumn(column, Qt.SortOrder.DescendingOrder)
-    shown = [panel.proxy.data(panel.proxy.index(r, column), SORT_ROLE) for r in range(panel.proxy.rowCount())]
-    assert shown == sorted((float(p.estimate) for p in result.parameters), reverse=True)
     panel.kind_box.setCurrentIndex(panel.kind_box.findData("cross_lagged"))
-    assert panel.proxy.rowCount() == len(result.table("cross_lagged"))
+    assert panel.proxy.rowCount() == len(result.table("cross_lagged")) + 1   # with its group header
     panel.search.setText("ENERGY")
     expected = [p for p in result.table("cross_lagged") if "energy" in (p.from_, p.to)]
-    assert panel.proxy.rowCount() == len(expected) > 0
+    assert panel.proxy.rowCount() == len(expected) + 1 > 1
 
 
 def test_dynamics_table_lists_free_lagged_paths(view):

@@ -34,6 +34,7 @@ from lagwise.desktop.app import DEMO_DIARY, DEMO_TRUTH, load_demo, run_demo
 from lagwise.desktop.export import save_widget_png, table_rows
 from lagwise.desktop.mainwindow import PAGES, MainWindow
 from lagwise.desktop.pages.states_page import ITEMS_MIME, NAME_ROLE
+from lagwise.desktop.results.parameters import parameter_name
 from lagwise.desktop.worker import Worker
 from lagwise.models.diary import TimeSettings
 from lagwise.models.errors import DataError
@@ -263,13 +264,14 @@ def test_from_csv_to_fitted_model_by_pointing_and_clicking(qtbot, window, diary_
         assert_shows(row["95% low"], None if p.ci is None else p.ci[0], where)
         assert_shows(row["95% high"], None if p.ci is None else p.ci[1], where)
         assert_shows(row["R²"], float(engine.r_squared[engine.items.index(row["Item"])]), where)
-    parameters = rows_as_dicts(results.parameters.tables()["parameters as shown"])
+    parameters = {row["Parameter"]: row for row in
+                  rows_as_dicts(results.parameters.tables()["parameters as shown"]) if row["Value"]}
     assert len(parameters) == len(engine.parameters)
-    for row, p in zip(parameters, engine.parameters):
+    for p in engine.parameters:
         where = f"{p.kind} {p.from_} -> {p.to}"
-        assert (row["From"], row["To"]) == (p.from_, p.to)
-        for column, value in (("Estimate", p.estimate), ("Standardized", p.standardized),
-                              ("SE", p.se), ("z", p.z), ("p", p.p)):
+        row = parameters[parameter_name(p)]
+        assert_shows(row["Value"].removesuffix(" (fixed)"), p.estimate, where)
+        for column, value in (("In SD units", p.standardized), ("± SE", p.se), ("p", p.p)):
             assert_shows(row[column], value, where)
     paths = rows_as_dicts(results.dynamics.tables()["lagged paths"])
     assert len(paths) == int(truth_mask.sum())

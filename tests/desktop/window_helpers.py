@@ -11,9 +11,14 @@ from lagwise.desktop.mainwindow import MainWindow
 
 
 def settle(qtbot, ms: int = 0) -> None:
-    """Let queued events (deferred page refreshes, queued worker signals) run."""
+    """Let queued events (deferred page refreshes, queued worker signals) run, and project
+    files being opened (read in a worker) arrive in their windows."""
     qtbot.wait(ms)
     QApplication.processEvents()
+    windows = [w for w in QApplication.topLevelWidgets() if isinstance(w, MainWindow)]
+    if any(w.files.reading for w in windows):
+        qtbot.waitUntil(lambda: not any(w.files.reading for w in windows), timeout=30_000)
+        QApplication.processEvents()
 
 
 def open_window(qtbot, width: int = 1400, height: int = 900) -> MainWindow:
@@ -35,3 +40,4 @@ def import_file(qtbot, window: MainWindow, path: Path) -> None:
     assert ok.isEnabled()
     qtbot.mouseClick(ok, Qt.MouseButton.LeftButton)
     settle(qtbot)
+
