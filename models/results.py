@@ -1,11 +1,14 @@
 """The result object every estimator returns, and its JSON form.
 
-Standard errors come from the observed information of the window pseudo-likelihood; the
-windows overlap, so they are approximate (they treat overlapping rows as independent).
+Each parameter's `se` is the error shown: for the window estimators the robust (sandwich)
+error by default, which allows for overlapping windows (models.robust), with the model-based
+(inverse information) error beside it as `se_model`; for the exact estimator the inverse of
+the observed information of the exact likelihood.
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from functools import partial
 
@@ -112,7 +115,8 @@ class Parameter:
     @property
     def p(self) -> float | None:
         z = self.z
-        return None if z is None else float(2 * norm.sf(abs(z)))
+        # two-sided normal p = 2 (1 - Phi(|z|)) = erfc(|z| / sqrt 2) (common practice)
+        return None if z is None else math.erfc(abs(z) / math.sqrt(2.0))
 
     @property
     def ci(self) -> tuple[float, float] | None:

@@ -47,6 +47,7 @@ class DataPage(QWidget):
         self._session = session
         self._summary: dict | None = None
         self._screened: tuple | None = None  # the inputs the screening view last got
+        self._series_stale = False  # the diary changed while the page was hidden: drawn when shown
         self._build()
         session.dataChanged.connect(self.refresh)
         for signal in (session.specChanged, session.optionsChanged, session.preparationChanged):
@@ -167,7 +168,9 @@ class DataPage(QWidget):
                 self.item_list.addItem(entry)
         self.item_list.blockSignals(False)
         self._show_summary()
-        self._draw_series()
+        self._series_stale = not self.isVisible()   # drawing every series takes a while:
+        if not self._series_stale:                  # a hidden page draws them when shown
+            self._draw_series()
         self._draw_compliance()
         self._fill_missing()
         self.update_screening()
@@ -207,6 +210,9 @@ class DataPage(QWidget):
 
     def showEvent(self, event) -> None:
         super().showEvent(event)
+        if self._series_stale:
+            self._series_stale = False
+            self._draw_series()
         self.update_screening()
 
     def _steps_chosen(self, steps: tuple) -> None:

@@ -362,7 +362,7 @@ class DiagramView(QGraphicsView):
         self.setRenderHint(QPainter.RenderHint.TextAntialiasing)
         self.setFrameShape(QGraphicsView.Shape.StyledPanel)
         self.setBackgroundBrush(QBrush(QColor("white")))
-        self.setMinimumSize(320, 260)
+        self.setMinimumSize(320, 220)   # leaves the table below room at 1280x800 (it scrolls)
         scene.redrawn.connect(self.fit)
 
     def fit(self) -> None:

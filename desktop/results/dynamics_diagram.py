@@ -99,6 +99,7 @@ class DynamicsPanel(ResultsPanel):
         self.scene = DynamicsDiagram(self)
         self.diagram_view = DiagramView(self.scene)
         self.chart = plot_widget()
+        self.chart.setMinimumHeight(190)   # with its note, no taller than the diagram's minimum
         style_plot(self.chart.getPlotItem(), "Inertia with 95% interval")
         self.chart_note = note_label()
         chart_box = QWidget()
@@ -149,13 +150,14 @@ class DynamicsPanel(ResultsPanel):
         self._fit_table()
 
     def _fit_table(self) -> None:
-        """Give the table of lagged paths the height of all its rows, up to half the panel."""
+        """Give the table of lagged paths the height of all its rows, up to 55% of the panel."""
         view = self.paths_view
-        rows = view.verticalHeader().length() + view.horizontalHeader().height() + 2 * view.frameWidth() + 2
-        want = rows + view.parentWidget().layout().itemAt(0).sizeHint().height() + 4
+        rows = view.verticalHeader().length() + view.horizontalHeader().height() + 2 * view.frameWidth() + 4
+        column = view.parentWidget().layout()
+        want = rows + column.itemAt(0).sizeHint().height() + max(column.spacing(), 0) + 4
         total = sum(self.split.sizes())
         if total > 0:
-            want = min(want, total // 2)
+            want = min(want, int(0.55 * total))
             self.split.setSizes([total - want, want])
 
     def _show_inertia(self, result: FitResult) -> None:

@@ -100,6 +100,11 @@ class ResultsView(QWidget):
         running = self._worker.busy and self._worker.job == self._job
         self.empty.setText(ESTIMATING_MESSAGE if running else EMPTY_MESSAGE)
 
+    def heightForWidth(self, width: int) -> int:  # noqa: N802 (Qt's name)
+        """-1 (none): the page holding the tabs sizes them by their minimum, not by the tallest
+        tab's wrapped text at the present width (which would make the whole page scroll)."""
+        return -1
+
     @property
     def result(self) -> FitResult | None:
         return self._result
