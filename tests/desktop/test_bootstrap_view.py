@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 from PySide6.QtCore import QTimer, Qt
 
-from window_helpers import open_window, settle
+from window_helpers import open_window, settle, steady_heap
 
 from lagwise.desktop.app import load_demo
 from lagwise.desktop.export import save_table_csv, save_widget_png
@@ -55,6 +55,7 @@ def _shown(view, model) -> list[list[str]]:
             for r in range(proxy.rowCount())]
 
 
+@steady_heap()
 def _run(qtbot, win, replicates: int) -> list[float]:
     """Press the button; while the bootstrap runs (until its result arrives), a 10 ms timer
     measures how late the event loop serves it. Returns the gaps between ticks (seconds)."""

@@ -23,7 +23,7 @@ from lagwise.desktop.session import ImportSettings
 from lagwise.models.diary import TimeSettings
 from lagwise.models.preparation import Step
 from lagwise.models.screening import item_findings, screen_diary
-from window_helpers import open_window, settle
+from window_helpers import open_window, settle, steady_heap
 
 GRID = TimeSettings(mode="grid", day="day", prompt="prompt")
 TIMEOUT_MS = 60_000
@@ -190,6 +190,7 @@ def test_every_item_is_visible_at_1280x800(qtbot, lagwise_app):
 
 # ----------------------------------------------------------------------------- worker
 
+@steady_heap()
 def test_screening_runs_in_the_worker_and_the_window_keeps_answering(page, qtbot, monkeypatch):
     threads = []
     original = screening_module.screen_diary

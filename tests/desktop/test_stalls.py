@@ -14,12 +14,13 @@ from lagwise.desktop.app import load_demo
 from lagwise.desktop.mainwindow import PAGES
 from lagwise.models.lag2check import lag2_check
 from results_fixture import demo_diary, demo_result, demo_spec
-from window_helpers import open_window, settle
+from window_helpers import open_window, settle, steady_heap
 
 LIMIT_S = 0.100
 RUNS = 3
 
 
+@steady_heap()
 def longest_wait(qtbot, action, after_s: float = 1.0) -> float:
     """The longest gap between ticks of a 10 ms timer while `action` runs in the event loop and
     for `after_s` seconds after it (deferred work included)."""
