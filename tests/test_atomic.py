@@ -9,6 +9,8 @@ import sys
 
 import pytest
 
+from full_disk import fill_disk
+
 from lagwise.models.atomic import write_atomic
 
 OLD = b"the previous content\n"
@@ -32,24 +34,6 @@ def test_the_replaced_file_keeps_its_permissions(tmp_path):
     assert stat.S_IMODE(target.stat().st_mode) == 0o600
 
 
-class _FullDisk:
-    """An open file whose write fails halfway like a full disk (and closes its handle)."""
-
-    def __init__(self, handle: int) -> None:
-        self.handle = handle
-
-    def __enter__(self):
-        return self
-
-    def __exit__(self, *exc):
-        os.close(self.handle)
-        return False
-
-    def write(self, data):
-        os.write(self.handle, data[: len(data) // 2])  # half of it reached the temporary file
-        raise OSError(28, "No space left on device")
-
-
 def _fail(*args, **kwargs):
     raise OSError(5, "Input/output error")
 
@@ -59,7 +43,7 @@ def test_a_failure_at_any_step_leaves_the_old_file_and_no_temporary(tmp_path, mo
     target = tmp_path / "robin.lagwise"
     target.write_bytes(OLD)
     if step == "write":
-        monkeypatch.setattr(os, "fdopen", lambda handle, *a, **k: _FullDisk(handle))
+        fill_disk(monkeypatch)   # half of the bytes reach the temporary file, then ENOSPC
     else:
         monkeypatch.setattr(os, step, _fail)
     with pytest.raises(OSError):

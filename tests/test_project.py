@@ -25,6 +25,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from full_disk import fill_disk
+
 from lagwise.desktop.cli import main
 from lagwise.models.diary import TimeSettings
 from lagwise.models.errors import DataError, LagwiseError, ProjectError, SpecError
@@ -297,7 +299,7 @@ def test_an_interrupted_save_leaves_the_previous_file_byte_identical(demo, tmp_p
         raise OSError(28, "No space left on device")
 
     if step == "write":
-        monkeypatch.setattr(os, "fdopen", lambda handle, *a, **k: _FailingFile(handle))
+        fill_disk(monkeypatch)
     else:
         monkeypatch.setattr(os, step, fail)
     with pytest.raises(ProjectError) as caught:
@@ -307,23 +309,6 @@ def test_an_interrupted_save_leaves_the_previous_file_byte_identical(demo, tmp_p
     monkeypatch.undo()
     assert path.read_bytes() == before
     assert [p.name for p in tmp_path.iterdir()] == ["robin.lagwise"]  # no temporary left
-
-
-class _FailingFile:
-    """An open file whose write fails like a full disk (it closes its handle as files do)."""
-
-    def __init__(self, handle: int) -> None:
-        self.handle = handle
-
-    def __enter__(self):
-        return self
-
-    def __exit__(self, *exc):
-        os.close(self.handle)
-        return False
-
-    def write(self, data):
-        raise OSError(28, "No space left on device")
 
 
 def test_a_save_into_a_missing_folder_says_why(demo, tmp_path):
