@@ -5,7 +5,8 @@ Every view that shows numbers can export them and every picture can be saved
 a QGraphicsView or a QGraphicsScene. Tables are saved from their Qt item model exactly
 as the user sees them (the display text of every cell, header row first); a table of results
 ends with one comment line, "# Caution: ...", the fit's cautions (read the file with
-`comment="#"` in pandas, or skip the last line).
+`comment="#"` in pandas, or skip the last line); a picture of results carries the same
+cautions as a caption band below it.
 """
 
 from __future__ import annotations
@@ -18,7 +19,7 @@ from pathlib import Path
 from PySide6.QtCore import (
     QAbstractItemModel, QBuffer, QIODevice, QModelIndex, QPoint, QRectF, QSize, Qt,
 )
-from PySide6.QtGui import QAction, QColor, QGuiApplication, QImage, QPainter
+from PySide6.QtGui import QAction, QColor, QFont, QFontMetricsF, QGuiApplication, QImage, QPainter
 from PySide6.QtSvg import QSvgGenerator
 from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMenu, QMessageBox, QPushButton, QWidget
 
@@ -30,8 +31,10 @@ Picture = QWidget | QGraphicsScene
 DEFAULT_DPI = 96  # the usual logical resolution of a desktop screen (common practice)
 
 
-def save_widget_png(target: Picture, path: str | Path, scale: float = 2.0) -> Path:
-    """Render a widget, view or scene into a PNG file (`scale` x its size for sharp print).
+def save_widget_png(target: Picture, path: str | Path, scale: float = 2.0,
+                    caption: str = "") -> Path:
+    """Render a widget, view or scene into a PNG file (`scale` x its size for sharp print),
+    with `caption` (if any) wrapped in a band below it.
 
     The file is replaced in one step (models.atomic); a failure raises one OutputError line.
     """
@@ -40,6 +43,8 @@ def save_widget_png(target: Picture, path: str | Path, scale: float = 2.0) -> Pa
         image = _scene_image(target, scale)
     else:
         image = _widget_image(target, scale)
+    if caption:
+        image = _with_caption(image, scale, caption)
     buffer = QBuffer()
     buffer.open(QIODevice.OpenModeFlag.WriteOnly)
     if not image.save(buffer, "PNG"):
@@ -47,18 +52,21 @@ def save_widget_png(target: Picture, path: str | Path, scale: float = 2.0) -> Pa
     return write_output(path, bytes(buffer.data()), "the picture")
 
 
-def save_scene_svg(target: Picture, path: str | Path, title: str = "Lagwise") -> Path:
-    """Write a scene, view or widget as a vector SVG picture (replaced in one step)."""
+def save_scene_svg(target: Picture, path: str | Path, title: str = "Lagwise",
+                   caption: str = "") -> Path:
+    """Write a scene, view or widget as a vector SVG picture (replaced in one step), with
+    `caption` (if any) wrapped in a band below it."""
     path = _in_folder(path)
     rect = _picture_rect(target)
+    band = _caption_height(caption, rect.width()) if caption else 0.0
     buffer = QBuffer()
     buffer.open(QIODevice.OpenModeFlag.WriteOnly)
     generator = QSvgGenerator()
     generator.setOutputDevice(buffer)
     generator.setTitle(title)
     generator.setResolution(svg_resolution(target))
-    generator.setSize(QSize(max(1, round(rect.width())), max(1, round(rect.height()))))
-    generator.setViewBox(QRectF(0, 0, rect.width(), rect.height()))
+    generator.setSize(QSize(max(1, round(rect.width())), max(1, round(rect.height() + band))))
+    generator.setViewBox(QRectF(0, 0, rect.width(), rect.height() + band))
     painter = QPainter()
     if not painter.begin(generator):
         raise OutputError(f"{path}: could not draw the picture; nothing was written")
@@ -68,6 +76,8 @@ def save_scene_svg(target: Picture, path: str | Path, title: str = "Lagwise") ->
             target.render(painter, QRectF(0, 0, rect.width(), rect.height()), rect)
         else:
             QWidget.render(target, painter, QPoint())
+        if caption:
+            _draw_caption(painter, QRectF(0, rect.height(), rect.width(), band), caption)
     finally:
         painter.end()
     return write_output(path, bytes(buffer.data()), "the picture")
@@ -91,11 +101,11 @@ def svg_resolution(target: Picture | None = None) -> int:
     return max(1, round(screen.logicalDotsPerInch()))
 
 
-def save_picture(target: Picture, path: str | Path) -> Path:
-    """Save as SVG when the file name ends in .svg, otherwise as PNG."""
+def save_picture(target: Picture, path: str | Path, caption: str = "") -> Path:
+    """Save as SVG when the file name ends in .svg, otherwise as PNG (`caption` below it)."""
     if Path(path).suffix.lower() == ".svg":
-        return save_scene_svg(target, path)
-    return save_widget_png(target, path)
+        return save_scene_svg(target, path, caption=caption)
+    return save_widget_png(target, path, caption=caption)
 
 
 def table_rows(model: QAbstractItemModel) -> list[list[str]]:
@@ -231,6 +241,49 @@ def _scene_image(scene: QGraphicsScene, scale: float) -> QImage:
     scene.render(painter, QRectF(0, 0, image.width(), image.height()), rect)
     painter.end()
     return image
+
+
+CAPTION_PAD = 8.0          # logical pixels around the caption text
+CAPTION_POINTS = 8.5      # the caption's font size
+CAPTION_INK = "#4a5358"   # the muted text colour of notes
+
+
+def _caption_font() -> QFont:
+    font = QFont()
+    font.setPointSizeF(CAPTION_POINTS)
+    return font
+
+
+def _caption_height(caption: str, width: float) -> float:
+    """The height of the band that holds `caption` wrapped to `width` (logical pixels)."""
+    box = QFontMetricsF(_caption_font()).boundingRect(
+        QRectF(0, 0, max(width - 2 * CAPTION_PAD, 40.0), 1e6),
+        int(Qt.TextFlag.TextWordWrap), caption)
+    return box.height() + 2 * CAPTION_PAD
+
+
+def _draw_caption(painter: QPainter, band: QRectF, caption: str) -> None:
+    painter.fillRect(band, QColor("white"))
+    painter.setFont(_caption_font())
+    painter.setPen(QColor(CAPTION_INK))
+    painter.drawText(band.adjusted(CAPTION_PAD, CAPTION_PAD, -CAPTION_PAD, -CAPTION_PAD),
+                     int(Qt.TextFlag.TextWordWrap), caption)
+
+
+def _with_caption(image: QImage, scale: float, caption: str) -> QImage:
+    """`image` (made at `scale`) with a band below it holding `caption`."""
+    width = image.width() / scale
+    band = _caption_height(caption, width)
+    out = QImage(image.width(), round(image.height() + band * scale),
+                 QImage.Format.Format_ARGB32_Premultiplied)
+    out.fill(QColor("white"))
+    painter = QPainter(out)
+    painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+    painter.drawImage(0, 0, image)
+    painter.scale(scale, scale)
+    _draw_caption(painter, QRectF(0, image.height() / scale, width, band), caption)
+    painter.end()
+    return out
 
 
 def _text(value) -> str:

@@ -9,7 +9,7 @@ from PySide6.QtGui import QAction
 from PySide6.QtWidgets import (QAbstractItemView, QFileDialog, QHBoxLayout, QHeaderView, QLabel,
                                QMessageBox, QSizePolicy, QTableView, QVBoxLayout, QWidget)
 
-from lagwise.desktop.export import Picture, menu_button, save_scene_svg, save_table_csv, save_widget_png
+from lagwise.desktop.export import Picture, menu_button, save_picture, save_table_csv
 from lagwise.desktop.style import plain
 from lagwise.models.results import FitResult
 
@@ -89,13 +89,11 @@ class ResultsPanel(QWidget):
 
 
 def save(target, path: str | Path, caution: str = "") -> Path:
-    """Save a picture (PNG or SVG by suffix) or a table model (CSV, `caution` its last line)."""
-    suffix = Path(path).suffix.lower()
-    if suffix == ".csv":
+    """Save a picture (PNG or SVG by suffix, `caution` as its caption) or a table model (CSV,
+    `caution` its last line)."""
+    if Path(path).suffix.lower() == ".csv":
         return save_table_csv(target, path, caution)
-    if suffix == ".svg":
-        return save_scene_svg(target, path)
-    return save_widget_png(target, path)
+    return save_picture(target, path, caution)
 
 
 def section_label(text: str) -> QLabel:

@@ -189,6 +189,30 @@ def test_exported_csv_ends_with_the_caution(qtbot, demo_window, tmp_path, monkey
     assert len(table) == model.rowCount()          # the comment line is skipped by readers
 
 
+def test_exported_pictures_carry_the_caution_below_them(qtbot, demo_window, tmp_path, monkeypatch):
+    # The PNG grows by a caption band that holds dark text; the SVG holds the caution's words.
+    from PySide6.QtGui import QImage
+    from lagwise.desktop.export import save_widget_png
+
+    panel = demo_window.results.dynamics
+    label, picture = next(iter(panel.pictures().items()))
+    bare = tmp_path / "bare.png"
+    save_widget_png(picture, bare)
+    for kind in ("png", "svg"):
+        target = tmp_path / f"dynamics.{kind}"
+        monkeypatch.setattr(QFileDialog, "getSaveFileName", lambda *a, t=target, **k: (str(t), ""))
+        panel._ask(picture, kind, label)              # what the Export menu's action runs
+    plain_image, captioned = QImage(str(bare)), QImage(str(tmp_path / "dynamics.png"))
+    assert captioned.width() == plain_image.width() and captioned.height() > plain_image.height()
+    band = [captioned.pixelColor(x, y).lightness()
+            for y in range(plain_image.height(), captioned.height(), 2)
+            for x in range(0, captioned.width(), 4)]
+    assert min(band) < 128                           # text was drawn in the band
+    svg = (tmp_path / "dynamics.svg").read_text(encoding="utf-8")
+    first_words = " ".join(demo_window.session.result.cautions[0].split()[:3])
+    assert first_words.replace("'", "&apos;") in svg or first_words in svg
+
+
 # ----- the exact estimator's Fit tab ----------------------------------------------------------
 def test_exact_fit_tab_shows_only_what_applies(qtbot, lagwise_app):
     window = open_window(qtbot, 1280, 800)
