@@ -54,3 +54,21 @@ def session(lagwise_app):
     s = Session()
     load_demo(s)
     return s
+
+
+@pytest.fixture
+def screening_threads(monkeypatch):
+    """The threads that screen are recorded."""
+    import threading
+
+    import lagwise.desktop.pages.screening_view as screening_view
+
+    threads = []
+    original = screening_view.screen_diary
+
+    def recorded(*args, **kwargs):
+        threads.append(threading.current_thread())
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(screening_view, "screen_diary", recorded)
+    return threads

@@ -17,7 +17,6 @@ import pandas as pd
 import pytest
 from PySide6.QtCore import QPoint, Qt, QTimer
 
-import lagwise.desktop.pages.screening_view as screening_module
 from lagwise.desktop.pages.data_page import DataPage
 from lagwise.desktop.session import ImportSettings
 from lagwise.models.diary import TimeSettings
@@ -191,15 +190,8 @@ def test_every_item_is_visible_at_1280x800(qtbot, lagwise_app):
 # ----------------------------------------------------------------------------- worker
 
 @steady_heap()
-def test_screening_runs_in_the_worker_and_the_window_keeps_answering(page, qtbot, monkeypatch):
-    threads = []
-    original = screening_module.screen_diary
-
-    def recorded(*args, **kwargs):
-        threads.append(threading.current_thread())
-        return original(*args, **kwargs)
-
-    monkeypatch.setattr(screening_module, "screen_diary", recorded)
+def test_screening_runs_in_the_worker_and_the_window_keeps_answering(page, qtbot,
+                                                                  screening_threads):
     page.resize(1280, 800)
     settle(qtbot, 50)
     gaps, last = [], [time.monotonic()]
@@ -221,5 +213,5 @@ def test_screening_runs_in_the_worker_and_the_window_keeps_answering(page, qtbot
                     timeout=TIMEOUT_MS)
     settle(qtbot, 30)
     timer.stop()
-    assert threads and all(t is not threading.main_thread() for t in threads)
+    assert screening_threads and all(t is not threading.main_thread() for t in screening_threads)
     assert len(gaps) >= 3 and max(gaps) < 0.100, " ".join(f"{g:.3f}" for g in gaps)

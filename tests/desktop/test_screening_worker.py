@@ -5,29 +5,13 @@ from __future__ import annotations
 
 import threading
 
-import pytest
 
-import lagwise.desktop.pages.screening_view as screening_module
 from lagwise.desktop.pages.screening_view import ScreeningView
 from lagwise.models.diary import TimeSettings
 from lagwise.models.preparation import Step, apply_steps
 from lagwise.models.recipe import load_diary
 from lagwise.models.screening import screen_diary
 from lagwise.resources import demo_diary_path
-
-
-@pytest.fixture
-def screening_threads(monkeypatch):
-    """The threads that screen are recorded."""
-    threads = []
-    original = screening_module.screen_diary
-
-    def recorded(*args, **kwargs):
-        threads.append(threading.current_thread())
-        return original(*args, **kwargs)
-
-    monkeypatch.setattr(screening_module, "screen_diary", recorded)
-    return threads
 
 
 def test_diary_is_screened_in_the_worker(lagwise_app, qtbot, screening_threads):
