@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import threading
 
-
 from lagwise.desktop.pages.screening_view import ScreeningView
 from lagwise.models.diary import TimeSettings
 from lagwise.models.preparation import Step, apply_steps
