@@ -29,6 +29,8 @@ from lagwise.desktop.style import plain
 from lagwise.desktop.worker import Worker
 from lagwise.models.atomic import remove_stale_temporaries
 from lagwise.models.errors import LagwiseError, ProjectError
+from lagwise.models.diary import Diary
+from lagwise.models.preparation import apply_steps, steps_from_json
 from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.project import (
     SUFFIX, LinkedDataChanged, LinkedDataMissing, Project, Recovery, discard_recovery,
@@ -47,26 +49,29 @@ Button = QMessageBox.StandardButton
 
 @dataclass(frozen=True)
 class ReadProject:
-    """A project file read off the window's thread: the project, its raw table, and the
-    linked-data problem to ask the user about (then the table is None)."""
+    """A project file read off the window's thread: the project, its raw table and its diary
+    (before and after the preparation steps), or the linked-data problem to ask the user about
+    (then the table and the diaries are None)."""
 
     project: Project
     table: Any
+    diaries: tuple[Diary, Diary] | None = None
     problem: LinkedDataMissing | LinkedDataChanged | None = None
 
 
 def read_project(path: Path, monitor: Monitor | None = None) -> ReadProject:
-    """Read and check a project file, read its data and build its diary once (the check that
-    it builds); ProjectError when the file is unusable. Runs in a worker."""
+    """Read and check a project file, read its data and build its diary (the window's thread
+    then only shows it); ProjectError when the file is unusable. Runs in a worker."""
     remove_stale_temporaries(path)  # left beside it by a save that was killed
     project = open_project(path)
     checkpoint(monitor, 0.5, "Reading the data")
     try:
         table = project_table(project)
-        project_diary(project, table)
+        raw = project_diary(project, table, prepared=False)
     except (LinkedDataMissing, LinkedDataChanged) as exc:
-        return ReadProject(project, None, exc)
-    return ReadProject(project, table)
+        return ReadProject(project, None, problem=exc)
+    steps = steps_from_json(list(project.preparation))
+    return ReadProject(project, table, (raw, apply_steps(raw, steps) if steps else raw))
 
 
 class ProjectFiles(QObject):
@@ -158,7 +163,8 @@ class ProjectFiles(QObject):
         if ready is None:
             return
         project, table, relinked = ready
-        self.confirm_discard(lambda: self._load(project, table, saved=not relinked),
+        diaries = read.diaries if read.problem is None else None
+        self.confirm_discard(lambda: self._load(project, table, not relinked, diaries),
                              "opening another project")
 
     def _read_error(self, message: str, _details: str) -> None:
@@ -212,9 +218,10 @@ class ProjectFiles(QObject):
         data = exc.project.data
         return replace(exc.project, data=replace(data, link=Path(path).absolute(), table=None))
 
-    def _load(self, project: Project, table, saved: bool) -> None:
+    def _load(self, project: Project, table, saved: bool,
+              diaries: tuple[Diary, Diary] | None = None) -> None:
         try:
-            self._session.load_project(project, table, saved=saved)
+            self._session.load_project(project, table, saved=saved, diaries=diaries)
         except LagwiseError as exc:
             self._refuse("Could not open the project", exc)
             return

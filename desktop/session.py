@@ -18,7 +18,7 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-from PySide6.QtCore import QObject, Signal, Slot
+from PySide6.QtCore import QObject, QTimer, Signal, Slot
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
 from lagwise.models.diary import Diary, TimeSettings
@@ -112,6 +112,12 @@ class Session(QObject):
         self._unsaved = False
         self._document = 0
         self.undo_stack.cleanChanged.connect(self._clean_changed)
+        # a reopened project's results are announced by a timer, so the event loop serves
+        # painting and other timers between showing the diary and showing the results
+        self._announcer = QTimer(self)
+        self._announcer.setSingleShot(True)
+        self._announcer.setInterval(0)
+        self._announcer.timeout.connect(self.resultChanged)
 
     # ----- reading -------------------------------------------------------------------
     @property
@@ -137,6 +143,11 @@ class Session(QObject):
     @property
     def items(self) -> tuple[str, ...]:
         return () if self._diary is None else self._diary.items
+
+    @property
+    def announcing(self) -> bool:
+        """A reopened project's results are still to be announced (resultChanged)."""
+        return self._announcer.isActive()
 
     @property
     def preparation(self) -> tuple[Step, ...]:
@@ -316,19 +327,24 @@ class Session(QObject):
             responses=None if self._result is None else self._responses, notes=self._notes,
             created=self._created, file=self._file)
 
-    def load_project(self, project: Project, table, saved: bool = True) -> None:
+    def load_project(self, project: Project, table, saved: bool = True,
+                     diaries: tuple[Diary, Diary] | None = None) -> None:
         """Put an opened project into the session: its data (`table`: the project's raw
         table, models.project.project_table), steps, model, settings, notes and stored
         results, shown without refitting.
 
-        The diary is rebuilt and the steps tried before anything changes, so a DataError
-        leaves the session untouched. `saved` False (a restored autosave): the document
-        counts as unsaved.
+        `diaries`: the project's diary before and after its steps when already built (a
+        worker reads projects); otherwise the diary is rebuilt and the steps tried here, before
+        anything changes, so a DataError leaves the session untouched. `saved` False (a
+        restored autosave): the document counts as unsaved. The stored results are announced
+        (resultChanged) in the next turn of the event loop, so the window answers between
+        showing the diary and showing the results.
         """
-        raw = project_diary(project, table, prepared=False)
         steps = steps_from_json(list(project.preparation))
-        if steps:
-            apply_steps(raw, steps)
+        if diaries is None:
+            raw = project_diary(project, table, prepared=False)
+            diaries = (raw, apply_steps(raw, steps) if steps else raw)
+        raw, prepared = diaries
         data = project.data
         source = str(data.link) if data is not None and data.link is not None else (
             data.file_name if data is not None else "table")
@@ -341,6 +357,7 @@ class Session(QObject):
         self.load_data(table, raw, settings, spec=project.spec or EMPTY_SPEC,
                        options=project.options, preparation=steps, notes=project.notes,
                        data=data)
+        self._prepared = (raw, self._preparation, prepared)
         self._file, self._created = project.file, project.created
         self.fileChanged.emit()
         result = project.result
@@ -352,7 +369,7 @@ class Session(QObject):
             self._responses = project.responses
             self._result, self._result_inputs = result, self.snapshot() if current else None
             self._set_unsaved(True)
-            self.resultChanged.emit()
+            self._announcer.start()
         if saved:
             self.mark_saved(project.file)
 
