@@ -23,6 +23,11 @@ from lagwise.models.numbers import fmt
 from lagwise.models.results import FitResult, Parameter
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
+_DISPLAY = Qt.ItemDataRole.DisplayRole
+_ALIGNMENT = Qt.ItemDataRole.TextAlignmentRole
+_RECORD_ROLES = frozenset((_DISPLAY, SORT_ROLE, _ALIGNMENT))
+_LEFT = int(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter)
+_RIGHT = int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
 
 
 @dataclass(frozen=True)
@@ -45,10 +50,12 @@ class RecordsModel(QAbstractTableModel):
         super().__init__(parent)
         self._columns = tuple(columns)
         self._rows: tuple[Any, ...] = tuple(rows)
+        self._shown: dict[tuple[int, int], str] = {}  # display texts, asked for on every paint
 
     def set_rows(self, rows: Sequence[Any]) -> None:
         self.beginResetModel()
         self._rows = tuple(rows)
+        self._shown = {}
         self.endResetModel()
 
     def row_record(self, row: int) -> Any:
@@ -69,21 +76,24 @@ class RecordsModel(QAbstractTableModel):
     def columnCount(self, parent: QModelIndex | QPersistentModelIndex = QModelIndex()) -> int:
         return 0 if parent.isValid() else len(self._columns)
 
-    def data(self, index, role=Qt.ItemDataRole.DisplayRole):
-        if not index.isValid():
+    def data(self, index, role=_DISPLAY):
+        if role not in _RECORD_ROLES or not index.isValid():
             return None
-        column = self._columns[index.column()]
-        value = column.value(self._rows[index.row()])
-        if role == Qt.ItemDataRole.DisplayRole:
-            return str(value) if column.style == "text" else fmt(value, column.style)
-        if role == SORT_ROLE:
-            if column.style == "text":
-                return str(value)
-            return None if value is None or not math.isfinite(float(value)) else float(value)
-        if role == Qt.ItemDataRole.TextAlignmentRole:
-            horizontal = Qt.AlignmentFlag.AlignLeft if column.style == "text" else Qt.AlignmentFlag.AlignRight
-            return int(horizontal | Qt.AlignmentFlag.AlignVCenter)
-        return None
+        row, col = index.row(), index.column()
+        column = self._columns[col]
+        if role == _ALIGNMENT:
+            return _LEFT if column.style == "text" else _RIGHT
+        if role == _DISPLAY:
+            shown = self._shown.get((row, col))
+            if shown is None:
+                value = column.value(self._rows[row])
+                shown = str(value) if column.style == "text" else fmt(value, column.style)
+                self._shown[(row, col)] = shown
+            return shown
+        value = column.value(self._rows[row])
+        if column.style == "text":
+            return str(value)
+        return None if value is None or not math.isfinite(float(value)) else float(value)
 
     def headerData(self, section, orientation, role=Qt.ItemDataRole.DisplayRole):
         if orientation != Qt.Orientation.Horizontal:

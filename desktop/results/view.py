@@ -11,7 +11,7 @@ line carries the fit's cautions, which every exported table repeats.
 
 from __future__ import annotations
 
-from PySide6.QtCore import Qt
+from PySide6.QtCore import Qt, QTimer
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QStackedWidget, QTabWidget, QVBoxLayout, QWidget
 
 from lagwise.desktop.results.dynamics_diagram import DynamicsPanel
@@ -69,6 +69,14 @@ class ResultsView(QWidget):
         self.warnings = WarningsStrip()
         self.caution = CautionLine()
         self.lag2.check_changed.connect(self._show_warnings)
+        self._unfilled: set[ResultsPanel] = set()
+        # a timer, not a posted call: the event loop serves other timers and painting between
+        # two fills (posted calls that post again all run in one pass)
+        self._filler = QTimer(self)
+        self._filler.setSingleShot(True)
+        self._filler.setInterval(0)
+        self._filler.timeout.connect(self._fill_rest)
+        self.tabs.currentChanged.connect(lambda _index: self._fill(self.tabs.currentWidget()))
         self.empty = QLabel(EMPTY_MESSAGE)
         self.empty.setAlignment(Qt.AlignmentFlag.AlignCenter)
         self.empty.setWordWrap(True)
@@ -128,6 +136,7 @@ class ResultsView(QWidget):
         """Show a result in every tab, or the empty message for None."""
         self._result = result
         if result is None:
+            self._unfilled.clear()
             self.stack.setCurrentWidget(self.empty_page)
             self.warnings.hide()
             self.caution.hide()
@@ -136,8 +145,12 @@ class ResultsView(QWidget):
         caution = caution_line(result)
         for panel in (*self.all_panels(), self.stability):
             panel.caution = caution
+        self._unfilled = {panel for panel in self.all_panels() if panel in self.deferred()}
         for panel in self.all_panels():
-            panel.show_result(result)
+            if panel not in self._unfilled:
+                panel.show_result(result)
+        if self._unfilled:
+            self._filler.start()
         self.caution.show_result(result)
         self._show_warnings()
         self.stability.show_result(result)
@@ -146,6 +159,37 @@ class ResultsView(QWidget):
         self.stack.setCurrentWidget(self.tabs)
         self.warnings.show()
         self.caution.show()
+
+    def deferred(self) -> tuple[ResultsPanel, ...]:
+        """The tabs whose whole content is their result: they are filled in the following turns
+        of the event loop, one per turn and the shown one first (or at once when a tab is
+        chosen), so showing a result keeps the window answering (the Measurement charts alone
+        take tens of milliseconds)."""
+        return (self.measurement, self.dynamics, self.innovations, self.fit)
+
+    def _fill(self, panel) -> None:
+        if panel in self._unfilled:
+            self._unfilled.discard(panel)
+            panel.show_result(self._result)
+
+    def _fill_rest(self) -> None:
+        """Fill one tab left to fill per turn of the event loop, the shown one first."""
+        if self._unfilled:
+            shown = self.tabs.currentWidget()
+            self._fill(shown if shown in self._unfilled else
+                       next(p for p in self.all_panels() if p in self._unfilled))
+        if self._unfilled:
+            self._filler.start()
+
+    @property
+    def filling(self) -> bool:
+        """Some tab still waits to be filled with the shown result."""
+        return bool(self._unfilled)
+
+    def filled(self) -> None:
+        """Fill every tab not filled yet now (before reading or exporting hidden tabs)."""
+        for panel in tuple(self._unfilled):
+            self._fill(panel)
 
     def _show_warnings(self) -> None:
         if self._result is not None:

@@ -34,6 +34,7 @@ class _FoldingLine(QFrame):
     def __init__(self, name: str, parent=None):
         super().__init__(parent)
         self.setObjectName(name)
+        self._tone = ""
         self.line = QLabel()
         self.line.setObjectName(name + "Line")
         self.line.setTextFormat(Qt.TextFormat.PlainText)
@@ -69,7 +70,9 @@ class _FoldingLine(QFrame):
         self._full = line
         self.line.setToolTip(plain(line))
         self.details.setText(details)
-        self.setStyleSheet(f"#{self.objectName()} {{{_TONES[tone]}}}")
+        if tone != self._tone:  # restyling costs milliseconds: only when the tone changes
+            self._tone = tone
+            self.setStyleSheet(f"#{self.objectName()} {{{_TONES[tone]}}}")
         self.toggle.setVisible(foldable)
         if not foldable:
             self.toggle.setChecked(False)

@@ -51,6 +51,7 @@ def view(lagwise_app, qtbot):
     widget.resize(1280, 820)
     widget.show()
     widget.show_result(demo_result())
+    qtbot.waitUntil(lambda: not widget.filling)  # hidden tabs fill one per turn of the loop
     return widget
 
 
@@ -240,6 +241,7 @@ def test_paths_both_ways_are_curved_and_lag_two_is_drawn(lagwise_app, qtbot):
     widget = ResultsView()
     qtbot.addWidget(widget)
     widget.show_result(result)
+    qtbot.waitUntil(lambda: not widget.filling)
     arrows = widget.dynamics.scene.arrows()
     assert len(arrows) == sum(p.free for p in result.table("cross_lagged")) == 6
     for arrow in arrows:

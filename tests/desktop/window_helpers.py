@@ -7,6 +7,7 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
+import shiboken6
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QApplication, QDialogButtonBox
 
@@ -14,13 +15,19 @@ from lagwise.desktop.mainwindow import MainWindow
 
 
 def settle(qtbot, ms: int = 0) -> None:
-    """Let queued events (deferred page refreshes, queued worker signals) run, and project
-    files being opened (read in a worker) arrive in their windows."""
+    """Let queued events (deferred page refreshes, queued worker signals) run, project files
+    being opened (read in a worker) arrive in their windows, and results being shown (one tab
+    per turn of the event loop) fill every tab."""
     qtbot.wait(ms)
     QApplication.processEvents()
     windows = [w for w in QApplication.topLevelWidgets() if isinstance(w, MainWindow)]
-    if any(w.files.reading for w in windows):
-        qtbot.waitUntil(lambda: not any(w.files.reading for w in windows), timeout=30_000)
+
+    def pending() -> bool:
+        live = [w for w in windows if shiboken6.isValid(w) and shiboken6.isValid(w.session)]
+        return any(w.files.reading or w.session.announcing or w.results.filling for w in live)
+
+    if pending():
+        qtbot.waitUntil(lambda: not pending(), timeout=30_000)
         QApplication.processEvents()
 
 
