@@ -27,13 +27,12 @@ STYLE = """
 body { font-family: 'Helvetica Neue', Arial, sans-serif; font-size: 10pt; color: #1f2a2e;
        max-width: 60em; margin: 2em auto; line-height: 1.4; }
 h1 { font-size: 16pt; margin-bottom: 0.2em; } h2 { font-size: 12.5pt; margin-top: 1.4em; }
-table { border-collapse: collapse; margin: 0.6em 0; }
+table { border-collapse: collapse; margin: 0.6em 0; font-size: 9pt; }
 th, td { padding: 2px 8px; }
 thead th { border-top: 1.5px solid #1f2a2e; border-bottom: 1px solid #1f2a2e; text-align: left; }
-tbody tr:last-child td { border-bottom: 1.5px solid #1f2a2e; }
 caption { text-align: left; font-weight: bold; padding-bottom: 4px; }
 p.note, p.small { font-size: 8.5pt; color: #4a5358; }
-figure { margin: 1em 0; } figcaption { font-size: 9pt; color: #4a5358; }
+figure { margin: 1em 0; }
 svg { max-width: 100%; height: auto; }
 """
 
@@ -62,7 +61,7 @@ def report_html(inp: ReportInput, figures: Sequence[Figure] = (), when: str | No
     body += ["<h2>Warnings</h2>", *warnings_section(inp), "<h2>Results</h2>"]
     body += [table_html(t) for t in result_tables(result)]
     for figure in figures:
-        body.append(f"<figure>{figure.markup}<figcaption>{escape(figure.caption)}</figcaption>"
+        body.append(f"<figure>{figure.markup}<p class=\"note\">{escape(figure.caption)}</p>"
                     "</figure>")
     if inp.check is not None:
         body += ["<h2>Lag-2 check</h2>", table_html(lag2_table(inp.check))]

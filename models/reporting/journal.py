@@ -71,11 +71,14 @@ def loading_table(result: FitResult) -> Table:
 
 
 def lagged_table(result: FitResult) -> Table:
-    rows = tuple((f"{p.from_} (t-{p.lag or 1})", p.to, Kind(p.kind).label, *_numbers(p))
-                 for p in result.parameters if p.kind in LAGGED)
-    return Table("Carry-over (inertia) and cross-lagged effects", ("From", "To", "Effect",
-                 *_NUMBER_HEAD), rows, "lllrrrrr",
-                 "Row: the state at t-1 (or t-2) predicting the state at t. " + _NOTE)
+    """One row per lagged path; the lag is a column of its own in a lag-2 model."""
+    second = result.spec.lags > 1
+    rows = tuple((p.from_, *((f"t-{p.lag or 1}",) if second else ()), p.to, Kind(p.kind).label,
+                  *_numbers(p)) for p in result.parameters if p.kind in LAGGED)
+    header = ("From", "Lag", "To") if second else ("From (t-1)", "To (t)")
+    return Table("Carry-over (inertia) and cross-lagged effects", (*header, "Effect",
+                 *_NUMBER_HEAD), rows, "l" * len(header) + "lrrrrr",
+                 "From: the state at an earlier prompt; to: the state it predicts. " + _NOTE)
 
 
 def innovation_table(result: FitResult) -> Table:
@@ -199,13 +202,15 @@ def table_html(table: Table) -> str:
     head = "".join(f"<th>{escape(h)}</th>" for h in table.header)
     head = f"<thead><tr>{head}</tr></thead>" if any(table.header) else ""
     rows = []
-    for row in table.rows:
+    for n, row in enumerate(table.rows):
+        rule = " border-bottom: 1.5px solid #1f2a2e;" if n == len(table.rows) - 1 else ""
         cells = "".join(
-            f'<td style="text-align: right; white-space: nowrap">{escape(c)}</td>'
-            if a == "r" else f"<td>{escape(c)}</td>" for c, a in zip(row, table.align))
+            f'<td style="text-align: right; white-space: nowrap;{rule}">{escape(c)}</td>'
+            if a == "r" else f'<td style="{rule.strip()}">{escape(c)}</td>'
+            for c, a in zip(row, table.align))
         rows.append(f"<tr>{cells}</tr>")
     caption = f"<caption>{escape(table.title)}</caption>" if table.title else ""
-    out = f"<table>{caption}{head}<tbody>{''.join(rows)}</tbody></table>"
+    out = f'<table width="100%">{caption}{head}<tbody>{"".join(rows)}</tbody></table>'
     if table.note:
         out += f'\n<p class="note">{escape(table.note)}</p>'
     return out
