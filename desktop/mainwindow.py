@@ -34,6 +34,7 @@ from lagwise.desktop.pages.data_page import DataPage
 from lagwise.desktop.pages.dynamics_page import DynamicsPage
 from lagwise.desktop.pages.states_page import StatesPage
 from lagwise.desktop.project_files import ProjectFiles
+from lagwise.desktop.report_output import ReportExport
 from lagwise.desktop.results import ResultsView
 from lagwise.desktop.session import Session, Snapshot
 from lagwise.desktop.worker import Worker
@@ -88,6 +89,7 @@ class MainWindow(QMainWindow):
         self.session = session if session is not None else Session(self)
         self.worker = Worker(self)
         self.files = ProjectFiles(self, self.session)
+        self.report_export = ReportExport(self, self.session, lambda: self.results.lag2.check)
         self._running: Snapshot | None = None
         self._running_document = -1
         self._bootstrapped = None   # the estimate the running bootstrap checks
@@ -199,6 +201,8 @@ class MainWindow(QMainWindow):
                                           "Read a diary from a CSV, TSV, Excel, SPSS or Stata file")
         self.demo_action = self._action("Open &demo", None, self.open_demo,
                                         "Open the invented demo diary with its model")
+        self.report_action = self._action("Export &report…", None, self.report_export.ask,
+                                          "Write the report of the results as HTML or PDF")
         self.quit_action = self._action("&Quit", K.Quit, self.close)
         self.undo_action = self.session.undo_stack.createUndoAction(self, "&Undo")
         self.undo_action.setShortcuts(QKeySequence.keyBindings(K.Undo))
@@ -226,6 +230,7 @@ class MainWindow(QMainWindow):
         file_menu.addSeparator()
         file_menu.addAction(self.save_action)
         file_menu.addAction(self.save_as_action)
+        file_menu.addAction(self.report_action)
         file_menu.addSeparator()
         file_menu.addAction(self.import_action)
         file_menu.addAction(self.demo_action)
@@ -533,6 +538,7 @@ class MainWindow(QMainWindow):
         self.cancel_action.setEnabled(self.worker.busy)
         self.save_action.setEnabled(has_data)
         self.save_as_action.setEnabled(has_data)
+        self.report_action.setEnabled(has_data)
 
     # ----- the lag-2 check -----------------------------------------------------------
     def _connect_lag2(self) -> None:
