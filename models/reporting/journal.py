@@ -161,26 +161,22 @@ RESPONSE_PROMPTS = 3   # prompts after the rise shown in the report's table
 
 def response_table(responses: Responses) -> Table:
     """Unit responses in the states' own units one to three prompts after a rise of 1, with
-    their bands: one row per (rising state, responding state)."""
+    their bands: one row per (rising state, responding state, prompts later)."""
     curve = responses.curve("unit")
     states = responses.states
-    steps = range(1, min(responses.horizon, RESPONSE_PROMPTS) + 1)
     rows = []
     for j, shock in enumerate(states):
         for i, state in enumerate(states):
-            cells = [shock, state]
-            for h in steps:
-                cells.append(fmt(curve.estimate[h, i, j]))
-                cells.append(MISSING if curve.lower is None or curve.upper is None
-                             else interval(curve.lower[h, i, j], curve.upper[h, i, j]))
-            rows.append(tuple(cells))
-    header = ("Rise in", "Response of", *(f"{name} {h}" for h in steps
-                                          for name in ("After", "95% band")))
+            for h in range(1, min(responses.horizon, RESPONSE_PROMPTS) + 1):
+                band = (MISSING if curve.lower is None or curve.upper is None
+                        else interval(curve.lower[h, i, j], curve.upper[h, i, j]))
+                rows.append((shock, state, str(h), fmt(curve.estimate[h, i, j]), band))
     halves = ", ".join(f"{s} {'more than ' + str(responses.horizon) if h is None else h}"
                        for s, h in zip(states, responses.half_life))
-    return Table("Impulse responses (a rise of 1, the states' own units)", header, tuple(rows),
-                 "ll" + "rr" * len(steps), "After h: the response h prompts after the rise. "
-                 + " ".join(responses.notes) + f" Half-lives in prompts: {halves}.")
+    return Table("Impulse responses (a rise of 1, the states' own units)",
+                 ("Rise in", "Response of", "Prompts later", "Response", "95% band"),
+                 tuple(rows), "llrrr", " ".join(responses.notes)
+                 + f" Half-lives in prompts: {halves}.")
 
 
 def result_tables(result: FitResult) -> tuple[Table, ...]:
