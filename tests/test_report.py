@@ -189,3 +189,27 @@ def test_lagwise_report_writes_html(saved, tmp_path, capsys):
     assert main(["report", str(saved), "--out", str(out)]) == 0
     page = Page(out.read_text(encoding="utf-8"))
     assert "svg" in page.tags and "script" not in page.tags
+
+
+def test_the_readme_report_line_runs(tmp_path, monkeypatch, capsys):
+    from test_readme_commands import readme_commands
+
+    monkeypatch.chdir(tmp_path)
+    commands = readme_commands()
+    chosen = [c for c in commands if c[:2] == ["lagwise", "demo"]][:1]
+    chosen += [c for c in commands if c[:2] == ["lagwise", "fit"] and "--save" in c][:1]
+    chosen += [c for c in commands if c[:2] == ["lagwise", "report"]]
+    assert [c[1] for c in chosen] == ["demo", "fit", "report"]
+    for argv in chosen:
+        assert main(argv[1:]) == 0, " ".join(argv)
+    out = Path(chosen[-1][chosen[-1].index("--out") + 1])
+    page = Page(out.read_text(encoding="utf-8"))
+    assert "svg" in page.tags and "script" not in page.tags
+    assert "Lag-2 check" not in page.text      # not saved with the project
+
+
+def test_the_guide_explains_the_report():
+    guide = " ".join(guide_html().split())
+    section = guide.split('<a name="report"></a>')[1].split("<a name=")[0]
+    assert "Export report" in section and "lagwise report PROJECT.lagwise" in section
+    assert "Copy table" in section and "Ctrl+Shift+C" in section
