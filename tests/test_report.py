@@ -213,3 +213,11 @@ def test_the_guide_explains_the_report():
     section = guide.split('<a name="report"></a>')[1].split("<a name=")[0]
     assert "Export report" in section and "lagwise report PROJECT.lagwise" in section
     assert "Copy table" in section and "Ctrl+Shift+C" in section
+
+
+def test_an_estimate_older_than_its_model_is_said_to_be(demo_project):
+    from lagwise.models.reporting.html import OUT_OF_DATE
+
+    assert OUT_OF_DATE not in report_html(report_input(demo_project))
+    stale = replace(demo_project, result_current=False)
+    assert OUT_OF_DATE in " ".join(Page(report_html(report_input(stale))).text)

@@ -115,8 +115,13 @@ def data_section(inp: ReportInput) -> list[str]:
     return out
 
 
+OUT_OF_DATE = ("The data, the model or the estimator settings changed after this estimate: "
+               "the report describes the estimate as it was made; estimate again to update it.")
+
+
 def warnings_section(inp: ReportInput) -> list[str]:
+    out = [] if inp.current else [f"<p><b>{escape(OUT_OF_DATE)}</b></p>"]
     if not inp.warnings:
-        return [f"<p>{escape(all_clear(None))}</p>"]
-    return ["<ul>", *(f"<li><b>{escape(a.title)}.</b> {escape(a.explanation)}</li>"
-                      for a in inp.warnings), "</ul>"]
+        return out + [f"<p>{escape(all_clear(None))}</p>"]
+    return out + ["<ul>", *(f"<li><b>{escape(a.title)}.</b> {escape(a.explanation)}</li>"
+                            for a in inp.warnings), "</ul>"]

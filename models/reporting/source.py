@@ -60,6 +60,7 @@ class ReportInput:
     bootstrap: Bootstrap | None = None
     responses: Responses | None = None
     version: str = ""
+    current: bool = True     # False: the data, model or settings changed after the estimate
 
 
 def report_input(project: Project, run: str | None = None, *, check: Lag2Check | None = None,
@@ -89,7 +90,7 @@ def report_input(project: Project, run: str | None = None, *, check: Lag2Check |
     return ReportInput(title=project.name, run=run, result=result, diary=facts,
                        warnings=warnings, notes=project.notes, check=check,
                        bootstrap=project.bootstrap, responses=responses,
-                       version=lagwise_version())
+                       version=lagwise_version(), current=project.result_current)
 
 
 def diary_facts(diary: Diary, project: Project,

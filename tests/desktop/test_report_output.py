@@ -38,12 +38,14 @@ class Page(HTMLParser):
     def __init__(self, text: str) -> None:
         super().__init__(convert_charrefs=True)
         self.tags: list[str] = []
+        self.links: list[str] = []
         self.text: list[str] = []
         self.feed(text)
         self.close()
 
     def handle_starttag(self, tag, attrs):
         self.tags.append(tag)
+        self.links += [v or "" for name, v in attrs if name in ("src", "href", "xlink:href")]
 
     def handle_data(self, data):
         self.text.append(data)
@@ -83,6 +85,7 @@ def test_the_html_report_holds_every_number_of_the_parameters_tab(lagwise_app, d
     page = Page(text)
     assert "script" not in page.tags
     assert page.tags.count("svg") == len(diagram_scenes(demo_input.result)) == 2
+    assert [link for link in page.links if not link.startswith("data:")] == []  # loads nothing
     report = set(NUMBER.findall(" ".join(page.text)))
     shown = shown_numbers(lagwise_app, demo_input.result)
     assert len(shown) > 100
