@@ -7,7 +7,8 @@ model and settings to `models.estimate.fit` off the UI thread; the lag-2 check t
 "Run" sends one to `models.lag2check.lag2_check` through the same worker, and the Stability
 tab's "Check stability (bootstrap)" one to `models.bootstrap.bootstrap`. Progress shows
 in the status bar with a Cancel button; a LagwiseError becomes a dialog; a cancelled run
-leaves the shown results as they were. The title shows the project's name and a mark for
+leaves the shown results as they were. File ▸ Export report… writes the shown estimate
+as HTML or PDF (desktop.report_output). The title shows the project's name and a mark for
 unsaved changes; closing with unsaved changes asks first. Window size, position and the
 splitter layout are remembered between runs (QSettings).
 """

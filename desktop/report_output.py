@@ -119,15 +119,14 @@ class Pages:
         self.document = QTextDocument()
         self.document.documentLayout().setPaintDevice(self.writer)
         width = round(self.paint.width() * 0.8)
-        screen = svg_resolution()        # DPI over the screen's (Qt's rich-text image handler)
+        screen = svg_resolution()   # the text layout scales pictures by the writer's DPI over this
         figures = []
         for n, (caption, scene, _owner) in enumerate(diagram_scenes(inp.result)):
             name = f"figure-{n + 1}"
             image = _scene_image(scene, width)
+            image.setDevicePixelRatio(RESOLUTION / screen)   # shown `width` writer pixels wide
             self.document.addResource(QTextDocument.ResourceType.ImageResource, QUrl(name), image)
-            shown = screen / RESOLUTION       # the text layout scales pictures by the writer's
-            figures.append(Figure(caption, f'<img src="{name}" width="{round(width * shown)}" '
-                                           f'height="{round(image.height() * shown)}">'))
+            figures.append(Figure(caption, f'<img src="{name}">'))
         self.document.setHtml(report_html(inp, figures))
         self.document.setPageSize(QSizeF(self.paint.width(), self.paint.height() - self.footer))
 

@@ -32,7 +32,7 @@ th, td { padding: 2px 8px; }
 thead th { border-top: 1.5px solid #1f2a2e; border-bottom: 1px solid #1f2a2e; text-align: left; }
 caption { text-align: left; font-weight: bold; padding-bottom: 4px; }
 p.note, p.small { font-size: 8.5pt; color: #4a5358; }
-figure { margin: 1em 0; }
+figure { margin: 1em 0; } div.picture { line-height: 100%; }
 svg { max-width: 100%; height: auto; }
 """
 
@@ -61,8 +61,8 @@ def report_html(inp: ReportInput, figures: Sequence[Figure] = (), when: str | No
     body += ["<h2>Warnings</h2>", *warnings_section(inp), "<h2>Results</h2>"]
     body += [table_html(t) for t in result_tables(result)]
     for figure in figures:
-        body.append(f"<figure>{figure.markup}<p class=\"note\">{escape(figure.caption)}</p>"
-                    "</figure>")
+        body.append(f'<figure><div class="picture">{figure.markup}</div>'
+                    f'<p class="note">{escape(figure.caption)}</p></figure>')
     if inp.check is not None:
         body += ["<h2>Lag-2 check</h2>", table_html(lag2_table(inp.check))]
     if inp.bootstrap is not None:
