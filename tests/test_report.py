@@ -136,8 +136,9 @@ def test_the_report_shows_the_data_and_the_warnings(demo_project):
     text = " ".join(Page(report_html(inp)).text)
     facts = inp.diary
     assert facts.sha256 in text and "demo_diary.csv" in text
-    # the demo diary: 42 days of 6 prompts (resources/demo/README.md)
-    assert facts.days == 42 and facts.prompts == 42 * 6
+    # the demo diary: 42 days of 6 prompts, 50 of them missed (resources/demo/README.md)
+    assert facts.days == 42 and facts.prompts == 42 * 6 and facts.answered == 42 * 6 - 50
+    assert f"{100 * (42 * 6 - 50) / (42 * 6):.1f}%" in text
     for advice in inp.warnings:
         assert advice.explanation in text
     for caution in demo_project.result.cautions:
@@ -221,3 +222,22 @@ def test_an_estimate_older_than_its_model_is_said_to_be(demo_project):
     assert OUT_OF_DATE not in report_html(report_input(demo_project))
     stale = replace(demo_project, result_current=False)
     assert OUT_OF_DATE in " ".join(Page(report_html(report_input(stale))).text)
+
+
+def test_the_lag2_check_and_the_bootstrap_are_reported_when_present(demo_project):
+    from lagwise.models.bootstrap import bootstrap
+    from lagwise.models.lag2check import lag2_check
+
+    result = demo_project.result
+    diary = load_diary(demo_diary_path(), time=TIME)
+    check = lag2_check(diary, result.spec, result.options)
+    boot = bootstrap(diary, result.spec, result.options, result, replicates=10, seed=1, jobs=1)
+    plain = " ".join(Page(report_html(report_input(demo_project))).text)
+    assert "Lag-2 check" not in plain and "bootstrap" not in plain.lower()
+    inp = report_input(replace(demo_project, bootstrap=boot), check=check)
+    text = " ".join(Page(report_html(inp)).text)
+    assert check.verdict in text and "Holm's procedure (Holm, 1979)" in text
+    assert REFERENCES["holm"] in text and REFERENCES["efron"] in text
+    assert f"{boot.used} of 10 replicates" in text
+    for path in boot.stability():        # every lagged path's stability row
+        assert f"{path.same_sign:.3f}" in text
