@@ -12,7 +12,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from PySide6.QtCore import QBuffer, QIODevice, QMarginsF, QObject, QPointF, QRectF, QSizeF, Qt, QUrl
+from PySide6.QtCore import QBuffer, QIODevice, QMarginsF, QObject, QRectF, QSizeF, Qt, QUrl
 from PySide6.QtGui import (QColor, QImage, QPageLayout, QPageSize, QPainter, QPdfWriter,
                            QTextDocument)
 from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMessageBox, QWidget
@@ -33,7 +33,7 @@ PAGE_SIZES = {"a4": QPageSize.PageSizeId.A4, "letter": QPageSize.PageSizeId.Lett
 SUFFIXES = (".html", ".pdf")
 RESOLUTION = 300          # dots per inch of the PDF's layout and pictures
 MARGIN_MM = 18.0
-FOOTER_POINTS = 8.0
+FOOTER_POINTS = 8.0       # the page number's size; the footer band is 2.5 lines of it
 
 
 def report_suffix(path: str | Path) -> str:
@@ -115,7 +115,7 @@ class Pages:
         layout = self.writer.pageLayout()
         self.full = QRectF(layout.fullRectPixels(RESOLUTION))
         self.paint = QRectF(layout.paintRectPixels(RESOLUTION))
-        self.footer = FOOTER_POINTS * 2.5 * RESOLUTION / 72
+        self.footer = 2.5 * FOOTER_POINTS * RESOLUTION / 72    # writer pixels (72 points an inch)
         self.document = QTextDocument()
         self.document.documentLayout().setPaintDevice(self.writer)
         width = round(self.paint.width() * 0.8)
