@@ -202,3 +202,8 @@ def test_copy_table_puts_text_and_html_on_the_clipboard(qtbot, estimated):
     page = Page(mime.html())
     cells = [t for t in page.text if t.strip()]
     assert [c for row in shown for c in row if c] == cells
+    QGuiApplication.clipboard().clear()
+    panel._fill_export_menu()                                  # the Export menu copies too
+    menu = panel.export_button.menu()
+    next(a for a in menu.actions() if a.text() == "Copy parameters as shown").trigger()
+    assert QGuiApplication.clipboard().mimeData().text().splitlines() == lines
