@@ -57,6 +57,15 @@ def save_scene_svg(target: Picture, path: str | Path, title: str = "Lagwise",
     """Write a scene, view or widget as a vector SVG picture (replaced in one step), with
     `caption` (if any) wrapped in a band below it."""
     path = _in_folder(path)
+    data = svg_bytes(target, title, caption)
+    if data is None:
+        raise OutputError(f"{path}: could not draw the picture; nothing was written")
+    return write_output(path, data, "the picture")
+
+
+def svg_bytes(target: Picture, title: str = "Lagwise", caption: str = "") -> bytes | None:
+    """A scene, view or widget as SVG text (`caption`, if any, in a band below it); None
+    when it cannot be drawn."""
     rect = _picture_rect(target)
     band = _caption_height(caption, rect.width()) if caption else 0.0
     buffer = QBuffer()
@@ -69,7 +78,7 @@ def save_scene_svg(target: Picture, path: str | Path, title: str = "Lagwise",
     generator.setViewBox(QRectF(0, 0, rect.width(), rect.height() + band))
     painter = QPainter()
     if not painter.begin(generator):
-        raise OutputError(f"{path}: could not draw the picture; nothing was written")
+        return None
     try:
         painter.setRenderHint(QPainter.RenderHint.Antialiasing)
         if isinstance(target, QGraphicsScene):
@@ -80,7 +89,7 @@ def save_scene_svg(target: Picture, path: str | Path, title: str = "Lagwise",
             _draw_caption(painter, QRectF(0, rect.height(), rect.width(), band), caption)
     finally:
         painter.end()
-    return write_output(path, bytes(buffer.data()), "the picture")
+    return bytes(buffer.data())
 
 
 def svg_resolution(target: Picture | None = None) -> int:

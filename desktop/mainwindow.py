@@ -7,7 +7,8 @@ model and settings to `models.estimate.fit` off the UI thread; the lag-2 check t
 "Run" sends one to `models.lag2check.lag2_check` through the same worker, and the Stability
 tab's "Check stability (bootstrap)" one to `models.bootstrap.bootstrap`. Progress shows
 in the status bar with a Cancel button; a LagwiseError becomes a dialog; a cancelled run
-leaves the shown results as they were. The title shows the project's name and a mark for
+leaves the shown results as they were. File ▸ Export report… writes the shown estimate
+as HTML or PDF (desktop.report_output). The title shows the project's name and a mark for
 unsaved changes; closing with unsaved changes asks first. Window size, position and the
 splitter layout are remembered between runs (QSettings).
 """
@@ -34,6 +35,7 @@ from lagwise.desktop.pages.data_page import DataPage
 from lagwise.desktop.pages.dynamics_page import DynamicsPage
 from lagwise.desktop.pages.states_page import StatesPage
 from lagwise.desktop.project_files import ProjectFiles
+from lagwise.desktop.report_output import ReportExport
 from lagwise.desktop.results import ResultsView
 from lagwise.desktop.session import Session, Snapshot
 from lagwise.desktop.worker import Worker
@@ -88,6 +90,7 @@ class MainWindow(QMainWindow):
         self.session = session if session is not None else Session(self)
         self.worker = Worker(self)
         self.files = ProjectFiles(self, self.session)
+        self.report_export = ReportExport(self, self.session, lambda: self.results.lag2.check)
         self._running: Snapshot | None = None
         self._running_document = -1
         self._bootstrapped = None   # the estimate the running bootstrap checks
@@ -199,6 +202,8 @@ class MainWindow(QMainWindow):
                                           "Read a diary from a CSV, TSV, Excel, SPSS or Stata file")
         self.demo_action = self._action("Open &demo", None, self.open_demo,
                                         "Open the invented demo diary with its model")
+        self.report_action = self._action("Export &report…", None, self.report_export.ask,
+                                          "Write the report of the results as HTML or PDF")
         self.quit_action = self._action("&Quit", K.Quit, self.close)
         self.undo_action = self.session.undo_stack.createUndoAction(self, "&Undo")
         self.undo_action.setShortcuts(QKeySequence.keyBindings(K.Undo))
@@ -226,6 +231,7 @@ class MainWindow(QMainWindow):
         file_menu.addSeparator()
         file_menu.addAction(self.save_action)
         file_menu.addAction(self.save_as_action)
+        file_menu.addAction(self.report_action)
         file_menu.addSeparator()
         file_menu.addAction(self.import_action)
         file_menu.addAction(self.demo_action)
@@ -533,6 +539,7 @@ class MainWindow(QMainWindow):
         self.cancel_action.setEnabled(self.worker.busy)
         self.save_action.setEnabled(has_data)
         self.save_as_action.setEnabled(has_data)
+        self.report_action.setEnabled(has_data)
 
     # ----- the lag-2 check -----------------------------------------------------------
     def _connect_lag2(self) -> None:

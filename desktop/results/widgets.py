@@ -1,19 +1,22 @@
-"""Small building blocks shared by the results tabs: panel base, titles, tables, export menu."""
+"""Small building blocks shared by the results tabs: panel base, titles, tables, export menu,
+and "Copy table" (every results table: its context menu, Ctrl+Shift+C, and the Export menu)."""
 
 from __future__ import annotations
 
 from pathlib import Path
 
-from PySide6.QtCore import QAbstractItemModel, Qt
-from PySide6.QtGui import QAction
+from PySide6.QtCore import QAbstractItemModel, QMimeData, Qt
+from PySide6.QtGui import QAction, QGuiApplication, QKeySequence
 from PySide6.QtWidgets import (QAbstractItemView, QFileDialog, QHBoxLayout, QHeaderView, QLabel,
                                QMessageBox, QSizePolicy, QTableView, QVBoxLayout, QWidget)
 
-from lagwise.desktop.export import Picture, menu_button, save_picture, save_table_csv
+from lagwise.desktop.export import Picture, menu_button, save_picture, save_table_csv, table_rows
 from lagwise.desktop.style import plain
+from lagwise.models.reporting.journal import shown_table, table_html, tsv
 from lagwise.models.results import FitResult
 
 _FILTERS = {"png": "PNG picture (*.png)", "svg": "SVG picture (*.svg)", "csv": "CSV table (*.csv)"}
+COPY_SHORTCUT = "Ctrl+Shift+C"
 
 
 class ResultsPanel(QWidget):
@@ -74,6 +77,10 @@ class ResultsPanel(QWidget):
             action = QAction(f"Save {label} as CSV…", menu)
             action.triggered.connect(lambda _=False, m=model, n=label: self._ask(m, "csv", n))
             menu.addAction(action)
+        for label, model in self.tables().items():
+            action = QAction(f"Copy {label}", menu)
+            action.triggered.connect(lambda _=False, m=model: copy_table(m))
+            menu.addAction(action)
 
     def _ask(self, target, kind: str, label: str) -> None:
         suggested = f"{self.name}-{label}".replace(" ", "-").lower() + "." + kind
@@ -94,6 +101,21 @@ def save(target, path: str | Path, caution: str = "") -> Path:
     if Path(path).suffix.lower() == ".csv":
         return save_table_csv(target, path, caution)
     return save_picture(target, path, caution)
+
+
+def table_mime(model: QAbstractItemModel) -> QMimeData:
+    """The table as shown (header first) as tab-separated text and as an HTML table, for
+    pasting into a spreadsheet or a word processor."""
+    rows = table_rows(model)
+    mime = QMimeData()
+    mime.setText(tsv(rows))
+    mime.setHtml(table_html(shown_table(rows)))
+    return mime
+
+
+def copy_table(model: QAbstractItemModel) -> None:
+    """Put the table on the clipboard (`table_mime`)."""
+    QGuiApplication.clipboard().setMimeData(table_mime(model))
 
 
 def section_label(text: str) -> QLabel:
@@ -128,6 +150,13 @@ def table_view(model: QAbstractItemModel, stretch_last: bool = False) -> QTableV
     header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
     header.setStretchLastSection(stretch_last)
     header.setDefaultAlignment(Qt.AlignmentFlag.AlignCenter)
+    copy = QAction("Copy table", view)
+    copy.setShortcut(QKeySequence(COPY_SHORTCUT))
+    copy.setShortcutContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
+    copy.setToolTip("Copy the whole table as shown (tab-separated text and HTML)")
+    copy.triggered.connect(lambda: copy_table(view.model()))
+    view.addAction(copy)
+    view.setContextMenuPolicy(Qt.ContextMenuPolicy.ActionsContextMenu)
     return view
 
 

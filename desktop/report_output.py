@@ -1,0 +1,244 @@
+"""The report of an analysis as a file: HTML with the diagrams inline as SVG, or PDF.
+
+The text comes from models.reporting (one `ReportInput`); this module draws the window's own
+diagram scenes offscreen (the lagged paths, the innovations) and writes the file through
+models.atomic.write_output. The PDF is Qt's own: the same HTML, laid out by a QTextDocument
+on A4 or Letter pages with the diagrams as 300-dpi pictures, each page numbered, painted by
+QPdfWriter; `png_pages` paints the same pages into pictures. `ReportExport` is the window's
+File ▸ Export report… (the input is gathered in a worker; drawing and writing are quick).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtCore import QBuffer, QIODevice, QMarginsF, QObject, QRectF, QSizeF, Qt, QUrl
+from PySide6.QtGui import (QColor, QImage, QPageLayout, QPageSize, QPainter, QPdfWriter,
+                           QTextDocument)
+from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMessageBox, QWidget
+
+from lagwise.desktop.export import svg_bytes, svg_resolution
+from lagwise.desktop.results.dynamics_diagram import DynamicsDiagram
+from lagwise.desktop.results.innovations import InnovationsPanel
+from lagwise.desktop.style import plain
+from lagwise.desktop.worker import Worker
+from lagwise.models.atomic import write_output
+from lagwise.models.errors import OutputError
+from lagwise.models.lag2check import Lag2Check, lag1_version
+from lagwise.models.reporting.html import Figure, report_html
+from lagwise.models.reporting.source import ReportInput, report_input
+from lagwise.models.results import FitResult
+
+PAGE_SIZES = {"a4": QPageSize.PageSizeId.A4, "letter": QPageSize.PageSizeId.Letter}
+SUFFIXES = (".html", ".pdf")
+RESOLUTION = 300          # dots per inch of the PDF's layout and pictures
+MARGIN_MM = 18.0
+FOOTER_POINTS = 8.0       # the page number's size; the footer band is 2.5 lines of it
+
+
+def report_suffix(path: str | Path) -> str:
+    """".html" or ".pdf" (any case); OutputError naming the choices otherwise."""
+    suffix = Path(path).suffix.lower()
+    if suffix not in SUFFIXES:
+        raise OutputError(f"{path}: a report is written as .html or .pdf, not "
+                          f"'{suffix or 'no suffix'}'")
+    return suffix
+
+
+def write_report(inp: ReportInput, path: str | Path, page_size: str = "a4") -> Path:
+    """Write the report of `inp` to `path` (HTML or PDF by its suffix), replaced in one step."""
+    if report_suffix(path) == ".html":
+        data = report_html(inp, svg_figures(inp.result)).encode("utf-8")
+    else:
+        data, _ = pdf_bytes(inp, page_size)
+    return write_output(path, data, "the report")
+
+
+# ----- diagrams ------------------------------------------------------------------------------
+def diagram_scenes(result: FitResult) -> list[tuple[str, QGraphicsScene, QObject]]:
+    """(caption, scene, owner) of every diagram the Results tabs draw for `result`; keep the
+    owner alive while the scene is used."""
+    out = []
+    for lag in range(1, result.spec.lags + 1):
+        scene = DynamicsDiagram()
+        scene.show_result(result, lag)
+        words = "Lag-1 dynamics" if lag == 1 else "Lag-2 paths"
+        out.append((f"{words}: standardized effects; faint paths have a 95% interval that "
+                    "includes 0.", scene, scene))
+    panel = InnovationsPanel()
+    panel.show_result(result)
+    out.append(("Innovation correlations; inside each circle the innovation variance.",
+                panel.scene, panel))
+    return out
+
+
+def svg_figures(result: FitResult) -> list[Figure]:
+    """The diagrams as inline SVG (vector) figures."""
+    figures = []
+    for caption, scene, _owner in diagram_scenes(result):
+        data = svg_bytes(scene, title=caption)
+        if data is not None:
+            text = data.decode("utf-8")
+            figures.append(Figure(caption, text[text.index("<svg"):]))
+    return figures
+
+
+def _scene_image(scene: QGraphicsScene, width: int) -> QImage:
+    rect = scene.itemsBoundingRect().adjusted(-10, -10, 10, 10)
+    height = max(1, round(width * rect.height() / max(rect.width(), 1.0)))
+    image = QImage(width, height, QImage.Format.Format_ARGB32_Premultiplied)
+    image.fill(QColor("white"))
+    painter = QPainter(image)
+    painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+    painter.setRenderHint(QPainter.RenderHint.TextAntialiasing)
+    scene.render(painter, QRectF(0, 0, width, height), rect)
+    painter.end()
+    return image
+
+
+# ----- pages ---------------------------------------------------------------------------------
+class Pages:
+    """The report laid out on pages of `page_size` for a QPdfWriter writing into memory."""
+
+    def __init__(self, inp: ReportInput, page_size: str = "a4") -> None:
+        if page_size not in PAGE_SIZES:
+            raise OutputError(f"unknown page size '{page_size}' (choose {' or '.join(PAGE_SIZES)})")
+        self.buffer = QBuffer()
+        self.buffer.open(QIODevice.OpenModeFlag.WriteOnly)
+        self.writer = QPdfWriter(self.buffer)
+        self.writer.setResolution(RESOLUTION)
+        self.writer.setTitle(f"Lagwise report: {inp.title}")
+        self.writer.setCreator("Lagwise")
+        self.writer.setPageLayout(QPageLayout(
+            QPageSize(PAGE_SIZES[page_size]), QPageLayout.Orientation.Portrait,
+            QMarginsF(MARGIN_MM, MARGIN_MM, MARGIN_MM, MARGIN_MM), QPageLayout.Unit.Millimeter))
+        layout = self.writer.pageLayout()
+        self.full = QRectF(layout.fullRectPixels(RESOLUTION))
+        self.paint = QRectF(layout.paintRectPixels(RESOLUTION))
+        self.footer = 2.5 * FOOTER_POINTS * RESOLUTION / 72    # writer pixels (72 points an inch)
+        self.document = QTextDocument()
+        self.document.documentLayout().setPaintDevice(self.writer)
+        width = round(self.paint.width() * 0.8)
+        screen = svg_resolution()   # the text layout scales pictures by the writer's DPI over this
+        figures = []
+        for n, (caption, scene, _owner) in enumerate(diagram_scenes(inp.result)):
+            name = f"figure-{n + 1}"
+            image = _scene_image(scene, width)
+            image.setDevicePixelRatio(RESOLUTION / screen)   # shown `width` writer pixels wide
+            self.document.addResource(QTextDocument.ResourceType.ImageResource, QUrl(name), image)
+            figures.append(Figure(caption, f'<img src="{name}">'))
+        self.document.setHtml(report_html(inp, figures))
+        self.document.setPageSize(QSizeF(self.paint.width(), self.paint.height() - self.footer))
+
+    @property
+    def count(self) -> int:
+        return self.document.pageCount()
+
+    def draw(self, painter: QPainter, page: int) -> None:
+        """Page `page` (from 0) in the writer's pixels, the paper's corner at (0, 0)."""
+        height = self.document.pageSize().height()
+        painter.save()
+        painter.translate(self.paint.left(), self.paint.top() - page * height)
+        self.document.drawContents(painter, QRectF(0, page * height, self.paint.width(), height))
+        painter.restore()
+        font = painter.font()
+        font.setPixelSize(round(FOOTER_POINTS * RESOLUTION / 72))
+        painter.setFont(font)
+        painter.setPen(QColor("#4a5358"))
+        painter.drawText(QRectF(self.paint.left(), self.paint.bottom() - self.footer * 0.6,
+                                self.paint.width(), self.footer * 0.6),
+                         int(Qt.AlignmentFlag.AlignCenter), f"{page + 1} / {self.count}")
+
+    def pdf(self) -> bytes:
+        painter = QPainter()
+        if not painter.begin(self.writer):
+            raise OutputError("could not start the PDF; nothing was written")
+        for page in range(self.count):
+            if page:
+                self.writer.newPage()
+            self.draw(painter, page)
+        painter.end()
+        return bytes(self.buffer.data())
+
+
+def pdf_bytes(inp: ReportInput, page_size: str = "a4") -> tuple[bytes, int]:
+    """The PDF report and its number of pages."""
+    pages = Pages(inp, page_size)
+    return pages.pdf(), pages.count
+
+
+def png_pages(inp: ReportInput, folder: str | Path, page_size: str = "a4",
+              dpi: int = 100) -> list[Path]:
+    """The PDF's pages painted into PNG pictures `page-1.png`, ... in `folder`."""
+    pages = Pages(inp, page_size)
+    scale = dpi / RESOLUTION
+    out = []
+    for page in range(pages.count):
+        image = QImage(round(pages.full.width() * scale), round(pages.full.height() * scale),
+                       QImage.Format.Format_ARGB32_Premultiplied)
+        image.fill(QColor("white"))
+        painter = QPainter(image)
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+        painter.scale(scale, scale)
+        pages.draw(painter, page)
+        painter.end()
+        buffer = QBuffer()
+        buffer.open(QIODevice.OpenModeFlag.WriteOnly)
+        image.save(buffer, "PNG")
+        out.append(write_output(Path(folder) / f"page-{page + 1}.png", bytes(buffer.data()),
+                                "the page"))
+    return out
+
+
+# ----- the window's command ------------------------------------------------------------------
+FILTERS = {"HTML report (*.html)": ("html", "a4"), "PDF report, A4 (*.pdf)": ("pdf", "a4"),
+           "PDF report, Letter (*.pdf)": ("pdf", "letter")}
+
+
+class ReportExport(QObject):
+    """File ▸ Export report…: asks for a file (HTML, or PDF on A4 or Letter), gathers the
+    report's input in a worker of its own, then draws and writes it."""
+
+    def __init__(self, window: QWidget, session, lag2_check) -> None:
+        super().__init__(window)
+        self._window, self._session, self._lag2_check = window, session, lag2_check
+        self.worker = Worker(self)
+        self.worker.done.connect(self._gathered)
+        self.worker.error.connect(self._failed)
+        self._target: tuple[Path, str] | None = None
+
+    def ask(self) -> None:
+        suggested = f"{self._session.name}-report.html"
+        path, chosen = QFileDialog.getSaveFileName(self._window, "Export report", suggested,
+                                                   ";;".join(FILTERS))
+        if not path:
+            return
+        kind, page_size = FILTERS.get(chosen, ("html", "a4"))
+        if Path(path).suffix.lower() not in SUFFIXES:
+            path += "." + kind
+        self.start(path, page_size)
+
+    def start(self, path: str | Path, page_size: str = "a4") -> None:
+        """Write the report of the shown result to `path` (HTML or PDF by its suffix)."""
+        result = self._session.result
+        if result is None:
+            QMessageBox.information(self._window, "Estimate first", "The report describes an "
+                                    "estimate: press Estimate (Ctrl+E) first.")
+            return
+        check: Lag2Check | None = self._lag2_check()
+        if check is not None and check.restricted.spec != lag1_version(result.spec):
+            check = None                  # a check of another model
+        self._target = (Path(path), page_size)
+        self.worker.start(report_input, self._session.to_project(), check=check, job="report")
+
+    def _gathered(self, inp: ReportInput) -> None:
+        path, page_size = self._target
+        try:
+            write_report(inp, path, page_size)
+        except OutputError as exc:
+            QMessageBox.warning(self._window, "Could not write the report", plain(str(exc)))
+            return
+        self._window.statusBar().showMessage(f"Report written to {path}.", 15000)
+
+    def _failed(self, message: str, *_details) -> None:
+        QMessageBox.warning(self._window, "Could not make the report", plain(message))
