@@ -3,6 +3,7 @@
     lagwise [PROJECT]         open the window (desktop.app.run_gui)
     lagwise inspect DATA ...  what a diary file holds (desktop.cli_inspect)
     lagwise fit DATA ...      fit a model (desktop.cli_fit)
+    lagwise batch DATA ...    one model per person of a long file (desktop.cli_batch)
     lagwise bench ...         speed of the estimators (desktop.cli_bench)
     lagwise demo ...          the bundled demo (desktop.app.run_demo)
 
@@ -38,6 +39,9 @@ COMMANDS: dict[str, Command] = {
                        "what a diary file holds: prompts, answers, days, lag windows, items"),
     "fit": Command("lagwise.desktop.cli_fit", "add_arguments", "run",
                    "fit a dynamic factor model to a diary and report it"),
+    "batch": Command("lagwise.desktop.cli_batch", "add_arguments", "run",
+                     "fit the same model to every person of a long file, one model per "
+                     "person"),
     "bench": Command("lagwise.desktop.cli_bench", "add_arguments", "run",
                      "measure how fast the estimators are"),
     "demo": Command("lagwise.desktop.app", "add_demo_arguments", "run_demo",

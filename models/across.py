@@ -116,7 +116,8 @@ def across_people(outcomes: Sequence[PersonOutcome]) -> Across:
         people=tuple(o.person for o in outcomes),
         fitted=tuple(o.person for o in fitted),
         rows=rows, paths=_path_shares(rows), inertias=_inertias(rows),
-        warned=tuple((o.person, tuple(c for c, _ in o.warnings)) for o in fitted if o.warnings),
+        warned=tuple((o.person, tuple(dict.fromkeys(c for c, _ in o.warnings)))
+                     for o in fitted if o.warnings),
         unfitted=tuple((o.person, o.status, o.reason or "") for o in outcomes
                        if o.status != FITTED))
 

@@ -116,7 +116,7 @@ def _on_cluster(todo: list[PersonDiary], settings: BatchSettings, prints: dict[s
     futures = [client.submit(fit_person, e, settings, prints[e.person], pure=False)
                for e in todo]
     try:
-        for future in as_completed(futures):
+        for future in as_completed(futures, loop=client.loop):
             yield future.result()
     finally:
         client.cancel(futures)
