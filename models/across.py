@@ -24,7 +24,7 @@ import numpy as np
 
 from lagwise.models.kinds import Kind
 from lagwise.models.numbers import fmt
-from lagwise.models.personfit import FITTED, PersonOutcome
+from lagwise.models.personfit import PersonOutcome
 from lagwise.models.results import Parameter
 
 NOT_MULTILEVEL = ("These are person-specific models, each estimated from one person's diary "
@@ -109,7 +109,7 @@ class Across:
 
 def across_people(outcomes: Sequence[PersonOutcome]) -> Across:
     """The summaries of `outcomes` (one per person, in study order)."""
-    fitted = [o for o in outcomes if o.status == FITTED and o.document is not None]
+    fitted = [o for o in outcomes if o.fitted]
     rows = tuple(Row(o.person, p, tuple(o.document.get("flag_codes", ())))
                  for o in fitted for p in _free_parameters(o.document))
     return Across(
@@ -119,7 +119,7 @@ def across_people(outcomes: Sequence[PersonOutcome]) -> Across:
         warned=tuple((o.person, tuple(dict.fromkeys(c for c, _ in o.warnings)))
                      for o in fitted if o.warnings),
         unfitted=tuple((o.person, o.status, o.reason or "") for o in outcomes
-                       if o.status != FITTED))
+                       if not o.fitted))
 
 
 def estimates_csv(across: Across) -> str:

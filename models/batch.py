@@ -23,9 +23,7 @@ from lagwise.models import batchfiles
 from lagwise.models.across import Across, across_people, estimates_csv
 from lagwise.models.atomic import write_output
 from lagwise.models.errors import LagwiseError
-from lagwise.models.personfit import (
-    FITTED, BatchSettings, PersonOutcome, data_fingerprint, fit_person,
-)
+from lagwise.models.personfit import BatchSettings, PersonOutcome, data_fingerprint, fit_person
 from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.study import PersonDiary, Study
 
@@ -35,16 +33,15 @@ CONNECT_TIMEOUT = "20s"
 @dataclass(frozen=True)
 class BatchOutcome:
     """Every person's outcome in study order, which of them were reused from an earlier run
-    into the same folder, the summaries across people, and the folder."""
+    into the same folder, and the summaries across people."""
 
     outcomes: tuple[PersonOutcome, ...]
     reused: tuple[str, ...]
     across: Across
-    folder: Path
 
     @property
     def not_fitted(self) -> tuple[PersonOutcome, ...]:
-        return tuple(o for o in self.outcomes if o.status != FITTED)
+        return tuple(o for o in self.outcomes if not o.fitted)
 
 
 def run_batch(study: Study, settings: BatchSettings, out: str | Path, *,
@@ -88,7 +85,7 @@ def run_batch(study: Study, settings: BatchSettings, out: str | Path, *,
     batchfiles.write_people(folder, outcomes)
     write_output(folder / batchfiles.SUMMARY, json.dumps(across.to_json(), indent=2, allow_nan=False), "the batch summary")
     write_output(folder / batchfiles.ESTIMATES, estimates_csv(across), "the estimates table")
-    return BatchOutcome(outcomes, reused, across, folder)
+    return BatchOutcome(outcomes, reused, across)
 
 
 def _locally(todo: list[PersonDiary], settings: BatchSettings, prints: dict[str, str],

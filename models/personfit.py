@@ -53,7 +53,7 @@ class BatchSettings:
 
     def fingerprint(self) -> str:
         """SHA-256 of the settings' JSON (keys sorted)."""
-        return _digest(json.dumps(self.to_json(), sort_keys=True).encode())
+        return hashlib.sha256(json.dumps(self.to_json(), sort_keys=True).encode()).hexdigest()
 
 
 def data_fingerprint(entry: PersonDiary) -> str:
@@ -155,7 +155,3 @@ def _warning(value: object, where: str) -> tuple[str, str]:
     fields = jr.read_fields(value, where, (jr.field("code", jr.text), jr.field("title", jr.text)),
                             closed=True)
     return fields["code"], fields["title"]
-
-
-def _digest(data: bytes) -> str:
-    return hashlib.sha256(data).hexdigest()

@@ -54,12 +54,6 @@ class Study:
     def __len__(self) -> int:
         return len(self.people)
 
-    def person(self, name: str) -> PersonDiary:
-        for entry in self.people:
-            if entry.person == name:
-                return entry
-        raise KeyError(name)
-
 
 def person_label(cell: object) -> str:
     """A person's name as text: whole numbers without a decimal point (7.0 -> "7")."""

@@ -14,12 +14,14 @@ import pytest
 from batch_people import RECIPE, people_tables, person_table, stacked
 from lagwise.models import personfit
 from lagwise.models.across import NOT_MULTILEVEL
+from lagwise.models import batch
 from lagwise.models.batch import run_batch
-from lagwise.models.errors import Cancelled, DataError, SpecError
+from lagwise.models.errors import Cancelled, DataError, LagwiseError, SpecError
 from lagwise.models.estimate import fit
 from lagwise.models.estimators import FitOptions
 from lagwise.models.personfit import FAILED, FITTED, BatchSettings
 from lagwise.models.results import Z95
+from lagwise.models.screening import screen_diary
 from lagwise.models.study import study_from_frame
 from two_state_model import SPEC
 
@@ -180,10 +182,22 @@ def test_a_long_file_splits_into_people_each_on_their_own_grid():
     assert [p.diary.n_days for p in study.people] == [4, 6]
     assert study.people[0].diary.items == SPEC.items             # the person column is no item
     for entry, table in zip(study.people, tables.values()):
-        assert entry.compliance == pytest.approx(len(table) / entry.diary.n_occasions)
+        own = RECIPE.diary(table)                   # the person's rows as a file of their own
+        assert entry.compliance == pytest.approx(len(table) / own.n_occasions)
+        np.testing.assert_array_equal(entry.diary.values, own.values)
+    first = study.people[0].screening(RECIPE)
+    alone = screen_diary(RECIPE.diary(tables["7"]), RECIPE.item_scales(RECIPE.diary(tables["7"])))
+    assert first.to_json() == alone.to_json()
     with pytest.raises(DataError, match="row 3 has no person"):
         study_from_frame(long.assign(person=lambda t: t["person"].where(t.index != 3)),
                          RECIPE, "person")
     with pytest.raises(DataError, match="no person column 'who'"):
         study_from_frame(long, RECIPE, "who")
 
+
+
+def test_an_unreachable_scheduler_is_one_line(tmp_path, monkeypatch):
+    monkeypatch.setattr(batch, "CONNECT_TIMEOUT", "1s")
+    study = study_from_frame(stacked(people_tables(1)), RECIPE, "person")
+    with pytest.raises(LagwiseError, match="cannot reach the scheduler at tcp://127.0.0.1:9"):
+        run_batch(study, SETTINGS, tmp_path, scheduler="tcp://127.0.0.1:9")
