@@ -17,8 +17,10 @@ from lagwise.models.across import NOT_MULTILEVEL
 from lagwise.models import batch
 from lagwise.models.batch import run_batch
 from lagwise.models.errors import Cancelled, DataError, LagwiseError, SpecError
+from lagwise.models.bootstrap import bootstrap
 from lagwise.models.estimate import fit
 from lagwise.models.estimators import FitOptions
+from lagwise.models.lag2check import lag2_check
 from lagwise.models.personfit import FAILED, FITTED, BatchSettings
 from lagwise.models.results import Z95
 from lagwise.models.screening import screen_diary
@@ -201,3 +203,17 @@ def test_an_unreachable_scheduler_is_one_line(tmp_path, monkeypatch):
     study = study_from_frame(stacked(people_tables(1)), RECIPE, "person")
     with pytest.raises(LagwiseError, match="cannot reach the scheduler at tcp://127.0.0.1:9"):
         run_batch(study, SETTINGS, tmp_path, scheduler="tcp://127.0.0.1:9")
+
+
+def test_the_bootstrap_and_lag2_check_per_person_are_those_of_the_person_alone(tmp_path):
+    tables = people_tables(2)
+    settings = BatchSettings(SPEC, bootstrap=4, seed=7, lag2_check=True)
+    outcome = run_batch(study_from_frame(stacked(tables), RECIPE, "person"), settings,
+                        tmp_path, jobs=1)
+    for (name, table), got in zip(tables.items(), outcome.outcomes):
+        diary = RECIPE.diary(table)
+        alone = fit(diary, SPEC)
+        check = lag2_check(diary, SPEC)
+        boot = bootstrap(diary, SPEC, FitOptions(), alone, replicates=4, seed=7, jobs=1)
+        assert got.document["lag2_check"]["lr"]["p"] == pytest.approx(check.lr_p, abs=1e-10)
+        assert got.document["bootstrap"] == json.loads(json.dumps(boot.to_json()))
