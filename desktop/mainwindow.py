@@ -199,6 +199,8 @@ class MainWindow(QMainWindow):
                                           "Read a diary from a CSV, TSV, Excel, SPSS or Stata file")
         self.demo_action = self._action("Open &demo", None, self.open_demo,
                                         "Open the invented demo diary with its model")
+        self.batch_action = self._action("Open &batch results…", None, self.open_batch,
+                                         "Show the results of 'lagwise batch' across people")
         self.quit_action = self._action("&Quit", K.Quit, self.close)
         self.undo_action = self.session.undo_stack.createUndoAction(self, "&Undo")
         self.undo_action.setShortcuts(QKeySequence.keyBindings(K.Undo))
@@ -229,6 +231,7 @@ class MainWindow(QMainWindow):
         file_menu.addSeparator()
         file_menu.addAction(self.import_action)
         file_menu.addAction(self.demo_action)
+        file_menu.addAction(self.batch_action)
         file_menu.addSeparator()
         file_menu.addAction(self.quit_action)
         edit_menu = bar.addMenu("&Edit")
@@ -361,6 +364,18 @@ class MainWindow(QMainWindow):
             return
         self.files.discard_recoveries()
         self.statusBar().showMessage("Opened the demo diary (an invented person).", 8000)
+
+    def open_batch(self) -> None:
+        """Show a `lagwise batch` output folder across people (desktop.across_dialog)."""
+        from lagwise.desktop.across_dialog import AcrossDialog
+
+        folder = QFileDialog.getExistingDirectory(self, "Open batch results")
+        if not folder:
+            return
+        try:
+            AcrossDialog(folder, self).show()
+        except LagwiseError as exc:
+            QMessageBox.warning(self, "Could not open the batch results", style.plain(str(exc)))
 
     # ----- estimation ----------------------------------------------------------------
     def estimate(self) -> bool:

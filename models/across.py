@@ -99,7 +99,7 @@ class Across:
 
     def to_json(self) -> dict:
         return {"format": "lagwise-batch-summary", "note": NOT_MULTILEVEL,
-                "people": len(self.people), "fitted": list(self.fitted),
+                "people": list(self.people), "fitted": list(self.fitted),
                 "not_fitted": [{"person": p, "status": s, "reason": r}
                                for p, s, r in self.unfitted],
                 "lagged_paths": [p.to_json() for p in self.paths],

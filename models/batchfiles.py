@@ -22,7 +22,7 @@ from pathlib import Path
 
 from lagwise.models import jsonread as jr
 from lagwise.models.atomic import write_output
-from lagwise.models.errors import OutputError, SpecError
+from lagwise.models.errors import DataError, OutputError, SpecError
 from lagwise.models.personfit import BatchSettings, PersonOutcome
 
 MANIFEST, PEOPLE_DIR, PEOPLE_LINES = "batch.json", "people", "people.jsonl"
@@ -81,6 +81,22 @@ def write_people(out: Path, outcomes: Iterable[PersonOutcome]) -> None:
     lines = [json.dumps({"person": o.person, **o.document}, allow_nan=False)
              for o in outcomes if o.document is not None]
     write_output(out / PEOPLE_LINES, "".join(line + "\n" for line in lines), "the people's fits")
+
+
+def read_batch(out: str | Path) -> tuple[PersonOutcome, ...]:
+    """The outcomes of a finished batch folder, in study order (as summary.json lists the
+    people); DataError when the folder holds no finished batch or a file cannot be read."""
+    out = Path(out)
+    try:
+        summary = jr.parse((out / SUMMARY).read_text(encoding="utf-8"))
+        people = jr.read_fields(summary, SUMMARY, (
+            jr.field("people", jr.tuple_of, item=jr.text),))["people"]
+        return tuple(PersonOutcome.from_json(jr.parse(person_path(out, p).read_text("utf-8")),
+                                             p) for p in people)
+    except OSError as error:
+        raise DataError(f"{out}: not a finished batch folder ({error.strerror or error})") from None
+    except (ValueError, RecursionError) as error:
+        raise DataError(f"{out}: a batch file cannot be read ({error})") from None
 
 
 def _stored_fingerprint(manifest: Path) -> str | None:
