@@ -15,6 +15,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from lagwise.models import names
 from lagwise.models.diary import Diary
 from lagwise.models.errors import DataError, LagwiseError
 from lagwise.models.readers import drop_empty_rows, read_table
@@ -73,14 +74,17 @@ def study_from_frame(table: pd.DataFrame, recipe: DiaryRecipe, person: str,
         raise DataError(f"{label}: the person column '{person}' cannot also be an item")
     if person in recipe.time.columns():
         raise DataError(f"{label}: the person column '{person}' cannot also be a time column")
-    names = table[person].map(lambda c: "" if pd.isna(c) else person_label(c))
-    if (names == "").any():
-        first = table.index[(names == "").to_numpy()][0]
+    labels = table[person].map(lambda c: "" if pd.isna(c) else person_label(c))
+    if (labels == "").any():
+        first = table.index[(labels == "").to_numpy()][0]
         raise DataError(f"{label}: row {first} has no {person}; every row needs a person")
+    refused = next(filter(None, map(names.problem, dict.fromkeys(labels))), None)
+    if refused:
+        raise DataError(f"{label}: a name in the person column '{person}' {refused}")
     rest = table.drop(columns=[person])
     people = []
-    for name in dict.fromkeys(names):
-        rows = rest[(names == name).to_numpy()]
+    for name in dict.fromkeys(labels):
+        rows = rest[(labels == name).to_numpy()]
         try:
             diary = recipe.diary(rows, source=f"{label}, {person} {name}")
         except LagwiseError as error:

@@ -195,6 +195,8 @@ def test_a_long_file_splits_into_people_each_on_their_own_grid():
                          RECIPE, "person")
     with pytest.raises(DataError, match="no person column 'who'"):
         study_from_frame(long, RECIPE, "who")
+    with pytest.raises(DataError, match="a name in the person column 'person' .*control"):
+        study_from_frame(long.assign(person="Robin\x07"), RECIPE, "person")
 
 
 
