@@ -1,9 +1,10 @@
 """Batch estimation: the same model and settings fitted to every person of a study, each
 person on their own, in parallel.
 
-Locally the people are fitted in joblib's loky worker processes (`jobs`, None: every core);
-given the address of a running Dask scheduler (`scheduler="tcp://host:8786"`) they are
-submitted to that cluster through dask.distributed's Client instead. Each person's outcome
+Locally the people are fitted in joblib's loky worker processes (`jobs`, None: every core;
+1: one after another in this process); given the address of a running Dask scheduler
+(`scheduler="tcp://host:8786"`) they are submitted to that cluster through
+dask.distributed's Client instead. Each person's outcome
 (models.personfit) is written the moment it arrives (models.batchfiles), so an interrupted
 batch resumes with the people still missing. Progress goes to the monitor per finished
 person (fraction: people done of all); cancelling stops the queued people and keeps the
@@ -83,7 +84,8 @@ def run_batch(study: Study, settings: BatchSettings, out: str | Path, *,
     outcomes = tuple(done[e.person] for e in study.people)
     across = across_people(outcomes)
     batchfiles.write_people(folder, outcomes)
-    write_output(folder / batchfiles.SUMMARY, json.dumps(across.to_json(), indent=2, allow_nan=False), "the batch summary")
+    write_output(folder / batchfiles.SUMMARY,
+                 json.dumps(across.to_json(), indent=2, allow_nan=False), "the batch summary")
     write_output(folder / batchfiles.ESTIMATES, estimates_csv(across), "the estimates table")
     return BatchOutcome(outcomes, reused, across)
 

@@ -37,7 +37,8 @@ def open_folder(out: str | Path, settings: BatchSettings) -> Path:
     try:
         (out / PEOPLE_DIR).mkdir(parents=True, exist_ok=True)
     except OSError as error:
-        raise OutputError(f"{out}: cannot make the batch folder ({error.strerror or error})") from None
+        raise OutputError(f"{out}: cannot make the batch folder "
+                          f"({error.strerror or error})") from None
     manifest = out / MANIFEST
     fingerprint = settings.fingerprint()
     if manifest.exists():

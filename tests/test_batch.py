@@ -65,8 +65,9 @@ def test_one_job_two_jobs_and_a_dask_cluster_agree(twelve, tmp_path):
     _, study, _, outcome = twelve
     two = _by_person(outcome)
     one = _by_person(run_batch(study, SETTINGS, tmp_path / "one", jobs=1))
-    with LocalCluster(host="127.0.0.1", protocol="tcp://", processes=False, n_workers=1, threads_per_worker=1,
-                      dashboard_address=None) as cluster:
+    # one worker thread: BLAS threads are set per process, so fits must not overlap in one
+    with LocalCluster(host="127.0.0.1", protocol="tcp://", processes=False, n_workers=1,
+                      threads_per_worker=1, dashboard_address=None) as cluster:
         dask = _by_person(run_batch(study, SETTINGS, tmp_path / "dask",
                                     scheduler=cluster.scheduler_address))
     assert one.keys() == two.keys() == dask.keys()
@@ -112,9 +113,9 @@ def test_a_resume_refits_a_person_whose_data_changed_and_refuses_other_settings(
     changed = study_from_frame(stacked(tables), RECIPE, "person")
     outcome = run_batch(changed, SETTINGS, tmp_path, jobs=1)
     assert sorted(outcome.reused) == ["P00", "P02"]
+    alone = fit(RECIPE.diary(tables["P01"]), SPEC)
     np.testing.assert_allclose(_estimates(outcome.outcomes[1].document),
-                               [p.estimate for p in fit(RECIPE.diary(tables["P01"]), SPEC).parameters],
-                               rtol=0, atol=1e-8)
+                               [p.estimate for p in alone.parameters], rtol=0, atol=1e-8)
     other = BatchSettings(SPEC, FitOptions(max_iter=123))
     with pytest.raises(SpecError, match="another model or other settings"):
         run_batch(changed, other, tmp_path, jobs=1)
