@@ -4,6 +4,7 @@
     lagwise inspect DATA ...  what a diary file holds (desktop.cli_inspect)
     lagwise fit DATA ...      fit a model (desktop.cli_fit)
     lagwise report PROJECT .. the report of a saved analysis (desktop.cli_report)
+    lagwise batch DATA ...    one model per person of a long file (desktop.cli_batch)
     lagwise bench ...         speed of the estimators (desktop.cli_bench)
     lagwise demo ...          the bundled demo (desktop.app.run_demo)
 
@@ -41,6 +42,9 @@ COMMANDS: dict[str, Command] = {
                    "fit a dynamic factor model to a diary and report it"),
     "report": Command("lagwise.desktop.cli_report", "add_arguments", "run",
                       "write the report of a saved analysis as HTML or PDF"),
+    "batch": Command("lagwise.desktop.cli_batch", "add_arguments", "run",
+                     "fit the same model to every person of a long file, one model per "
+                     "person"),
     "bench": Command("lagwise.desktop.cli_bench", "add_arguments", "run",
                      "measure how fast the estimators are"),
     "demo": Command("lagwise.desktop.app", "add_demo_arguments", "run_demo",

@@ -30,7 +30,7 @@ from lagwise.models.project import (
 from lagwise.models.bootstrap import MAX_REPLICATES, Bootstrap, bootstrap
 from lagwise.models.report import format_bootstrap, format_lag2, format_responses, format_result
 from lagwise.models.responses import DEFAULT_HORIZON, MAX_HORIZON, check_horizon, impulse_responses
-from lagwise.models.results import _finite
+from lagwise.models.fitdocument import fit_document
 from lagwise.models.estimators import ERRORS, ESTIMATORS, MISSING, FitOptions
 from lagwise.models.limits import DEPTH, JOBS, MAX_ITER, NIGHT_GAP, SEED, Limit
 from lagwise.models.spec import ModelSpec, State, full_mask, inertia_mask
@@ -42,6 +42,27 @@ REPLICATES = Limit("number of bootstrap replicates", 1, MAX_REPLICATES)
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_diary_arguments(parser)
+    add_model_arguments(parser)
+    add_estimation_arguments(parser)
+    parser.add_argument("--lag2-check", action="store_true",
+                        help="test whether lag 1 is enough (lag-2 paths and autocorrelated unique parts)")
+    parser.add_argument("--horizon", type=in_range(HORIZON), default=DEFAULT_HORIZON, metavar="H",
+                        help=f"impulse responses over H prompts (1 to {MAX_HORIZON}, default 10): "
+                             "printed, and written to the JSON as \"responses\"")
+    boot = parser.add_argument_group("bootstrap")
+    add_bootstrap_arguments(boot)
+    boot.add_argument("--jobs", type=in_range(JOBS), metavar="J",
+                      help="worker processes for the bootstrap (default: every core)")
+    parser.add_argument("--json", metavar="OUT", help="write the result as JSON to OUT")
+    parser.add_argument("--save", metavar="PROJECT.lagwise",
+                        help="also save the data, model, settings and result as a project file")
+    parser.epilog = ("DATA may be a saved project (PROJECT.lagwise): it is refitted with its "
+                     "own data, model and estimator settings; only --json, --save, "
+                     "--lag2-check, --horizon and the bootstrap options may be added.")
+
+
+def add_model_arguments(parser: argparse.ArgumentParser) -> None:
+    """The model options (--state, --lags, --paths, ...), read by `spec_from_args`."""
     model = parser.add_argument_group("model")
     model.add_argument("--state", action="append", metavar="NAME=ITEM,ITEM,...",
                        help="a latent state and its items (repeat for each state; the first "
@@ -58,6 +79,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                        help="innovation covariances: free (default), independent, or partial correlations")
     model.add_argument("--identification", choices=("marker", "variance"), default="marker",
                        help="scale of each state: marker loading 1 (default) or innovation variance 1")
+
+
+def add_estimation_arguments(parser: argparse.ArgumentParser) -> None:
+    """The estimator options (--estimator, --missing, ...), read by `options_from_args`."""
     est = parser.add_argument_group("estimation")
     est.add_argument("--estimator", choices=ESTIMATORS, default="stationary",
                      help="stationary: lag windows, one stable process (default, fast); "
@@ -80,25 +105,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     est.add_argument("--max-iter", type=in_range(MAX_ITER), default=FitOptions.max_iter,
                      metavar="N",
                      help=f"optimiser iterations at most (default {FitOptions.max_iter})")
-    parser.add_argument("--lag2-check", action="store_true",
-                        help="test whether lag 1 is enough (lag-2 paths and autocorrelated unique parts)")
-    parser.add_argument("--horizon", type=in_range(HORIZON), default=DEFAULT_HORIZON, metavar="H",
-                        help=f"impulse responses over H prompts (1 to {MAX_HORIZON}, default 10): "
-                             "printed, and written to the JSON as \"responses\"")
-    boot = parser.add_argument_group("bootstrap")
-    boot.add_argument("--bootstrap", type=in_range(REPLICATES), metavar="N",
-                      help="check the stability of the estimates with N bootstrap replicates "
-                           "(resampled days, or stationary blocks when days are joined)")
-    boot.add_argument("--seed", type=in_range(SEED), default=0, metavar="S",
-                      help="seed of the bootstrap (default 0): the same seed, the same answer")
-    boot.add_argument("--jobs", type=in_range(JOBS), metavar="J",
-                      help="worker processes for the bootstrap (default: every core)")
-    parser.add_argument("--json", metavar="OUT", help="write the result as JSON to OUT")
-    parser.add_argument("--save", metavar="PROJECT.lagwise",
-                        help="also save the data, model, settings and result as a project file")
-    parser.epilog = ("DATA may be a saved project (PROJECT.lagwise): it is refitted with its "
-                     "own data, model and estimator settings; only --json, --save, "
-                     "--lag2-check, --horizon and the bootstrap options may be added.")
+
+
+def add_bootstrap_arguments(group) -> None:
+    """--bootstrap N and --seed S (the caller adds what runs the replicates)."""
+    group.add_argument("--bootstrap", type=in_range(REPLICATES), metavar="N",
+                       help="check the stability of the estimates with N bootstrap replicates "
+                            "(resampled days, or stationary blocks when days are joined)")
+    group.add_argument("--seed", type=in_range(SEED), default=0, metavar="S",
+                       help="seed of the bootstrap (default 0): the same seed, the same answer")
 
 
 PROJECT_RUN_OPTIONS = ("data", "json", "save", "lag2_check", "horizon", "bootstrap", "seed", "jobs")
@@ -148,6 +163,12 @@ def spec_from_args(args: argparse.Namespace) -> ModelSpec:
                      identification=args.identification)
 
 
+def options_from_args(args: argparse.Namespace) -> FitOptions:
+    """The estimator settings of the estimation options."""
+    return FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth,
+                      night_gap=args.night_gap, max_iter=args.max_iter, se=args.se)
+
+
 def _with_paths(mask, names: list[str], texts: list[str]):
     """`mask` with the lag-1 path of every --path FROM->TO freed (row TO, column FROM)."""
     mask = [list(row) for row in mask]
@@ -174,8 +195,7 @@ def run(args: argparse.Namespace) -> int:
         if args.items is None:
             args.items = list(spec.items)
         diary = diary_from_args(args)
-        options = FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth,
-                             night_gap=args.night_gap, max_iter=args.max_iter, se=args.se)
+        options = options_from_args(args)
     for note in diary.warnings:  # as `lagwise inspect` lists them
         print(f"lagwise: note: {note}", file=sys.stderr)
     result = fit(diary, spec, options)
@@ -183,19 +203,16 @@ def run(args: argparse.Namespace) -> int:
     responses = impulse_responses(result, args.horizon)
     print()
     print(format_responses(responses))
-    doc = result.to_json()
-    doc["responses"] = responses.to_json()
+    check = boot = None
     if args.lag2_check:
         check = lag2_check(diary, spec, options)
         print()
         print(format_lag2(check))
-        doc["lag2_check"] = _finite(check.to_json())
     if args.bootstrap is not None:
         boot = run_bootstrap(args, diary, spec, options, result)
         print()
         print(format_bootstrap(boot))
-        doc["bootstrap"] = boot.to_json()
-    written = write_json(args.json, doc)
+    written = write_json(args.json, fit_document(result, responses, check, boot))
     saved = save_fitted(args, project, spec, options, result)
     if not (written and saved):
         return 2
@@ -248,11 +265,11 @@ def run_bootstrap(args: argparse.Namespace, diary, spec: ModelSpec, options: Fit
                   result) -> Bootstrap:
     """The bootstrap of `result` asked for with --bootstrap, with progress on stderr."""
     return bootstrap(diary, spec, options, result, replicates=args.bootstrap, seed=args.seed,
-                     jobs=args.jobs, monitor=_StderrProgress())
+                     jobs=args.jobs, monitor=StderrProgress())
 
 
-class _StderrProgress:
-    """Bootstrap progress on stderr, one line per tenth of the work."""
+class StderrProgress:
+    """Progress on stderr, one line per tenth of the work."""
 
     def __init__(self) -> None:
         self._shown = -1

@@ -204,6 +204,8 @@ class MainWindow(QMainWindow):
                                         "Open the invented demo diary with its model")
         self.report_action = self._action("Export &report…", None, self.report_export.ask,
                                           "Write the report of the results as HTML or PDF")
+        self.batch_action = self._action("Open &batch results…", None, self.open_batch,
+                                         "Show the results of 'lagwise batch' across people")
         self.quit_action = self._action("&Quit", K.Quit, self.close)
         self.undo_action = self.session.undo_stack.createUndoAction(self, "&Undo")
         self.undo_action.setShortcuts(QKeySequence.keyBindings(K.Undo))
@@ -235,6 +237,7 @@ class MainWindow(QMainWindow):
         file_menu.addSeparator()
         file_menu.addAction(self.import_action)
         file_menu.addAction(self.demo_action)
+        file_menu.addAction(self.batch_action)
         file_menu.addSeparator()
         file_menu.addAction(self.quit_action)
         edit_menu = bar.addMenu("&Edit")
@@ -367,6 +370,18 @@ class MainWindow(QMainWindow):
             return
         self.files.discard_recoveries()
         self.statusBar().showMessage("Opened the demo diary (an invented person).", 8000)
+
+    def open_batch(self) -> None:
+        """Show a `lagwise batch` output folder across people (desktop.across_dialog)."""
+        from lagwise.desktop.across_dialog import AcrossDialog
+
+        folder = QFileDialog.getExistingDirectory(self, "Open batch results")
+        if not folder:
+            return
+        try:
+            AcrossDialog(folder, self).show()
+        except LagwiseError as exc:
+            QMessageBox.warning(self, "Could not open the batch results", style.plain(str(exc)))
 
     # ----- estimation ----------------------------------------------------------------
     def estimate(self) -> bool:
