@@ -23,7 +23,7 @@ from dataclasses import dataclass
 from scipy.stats import chi2 as chi2_dist
 
 from lagwise.models.errors import ProjectError
-from lagwise.models.kinds import Kind
+from lagwise.models.kinds import LAGGED_KINDS, Kind
 from lagwise.models.numbers import fmt, p_phrase
 from lagwise.models.results import FitResult
 from lagwise.models.runs import Run
@@ -164,7 +164,7 @@ def _parameter_rows(runs: tuple[Run, ...]) -> tuple[Row, ...]:
 
 
 def _label(kind: str, from_: str, to: str, lag: int) -> str:
-    at = f" (lag {lag})" if lag else ""
+    at = f" (lag {lag})" if lag and Kind(kind) not in LAGGED_KINDS else ""
     return f"{Kind(kind).label}: {from_} -> {to}{at}"
 
 

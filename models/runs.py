@@ -142,7 +142,7 @@ def find_run(runs: tuple[Run, ...], name: str) -> Run:
     raise ProjectError(f"There is no run named '{names.shown(name)}'.")
 
 
-def update_run(runs: tuple[Run, ...], name: str, **changes: Any) -> tuple[Run, ...]:
+def update_run(runs: tuple[Run, ...], name: str, /, **changes: Any) -> tuple[Run, ...]:
     """`runs` with the run `name` changed (e.g. `bootstrap=`, `lag2=`); names are checked."""
     old = find_run(runs, name)
     if "name" in changes:
