@@ -39,7 +39,7 @@ from lagwise.models.project.document import (
     lagwise_version, link_file, project_diary, project_table, relink_data, utc_now,
 )
 from lagwise.models.project.estimates import (
-    data_fingerprint, project_fingerprint, with_estimate,
+    data_fingerprint, project_fingerprint, table_digest, with_estimate,
 )
 from lagwise.models.project.reader import MAX_FILE_BYTES, load_project_diary, open_project
 from lagwise.models.project.recovery import (
@@ -60,7 +60,7 @@ __all__ = [
     "file_sha256", "project_table", "relink_data", "project_diary", "load_project_diary",
     "is_project_file", "save_project", "open_project", "table_to_json", "table_from_json",
     "upgrade_0_to_1", "upgrade_1_to_2", "UPGRADES", "data_fingerprint", "project_fingerprint",
-    "with_estimate", "upgrade", "Recovery", "recovery_dir", "recovery_path",
+    "table_digest", "with_estimate", "upgrade", "Recovery", "recovery_dir", "recovery_path",
     "write_recovery", "find_recovery", "find_recoveries", "discard_recovery", "utc_now",
     "lagwise_version",
 ]

@@ -1,10 +1,10 @@
 """A project's estimates as runs: the data fingerprint, and a new estimate made a run.
 
 The fingerprint tells runs on different data or preparation apart: SHA-256 over one compact,
-key-sorted JSON text of the stored table (embedded data: the table as the project stores it;
-linked data: the file's SHA-256, which is checked whenever the file is read), the recipe
-(items, time settings, missing codes, prompts per day, stated scales) and the preparation
-steps.
+key-sorted JSON text of the stored table's digest (embedded data: SHA-256 of the table as the
+project stores it; linked data: the file's SHA-256, which is checked whenever the file is
+read), the recipe (items, time settings, missing codes, prompts per day, stated scales) and
+the preparation steps.
 """
 
 from __future__ import annotations
@@ -22,15 +22,21 @@ from lagwise.models.runs import add_run, new_run
 from lagwise.models.scales import scales_to_json
 
 
-def data_fingerprint(data: ProjectData | None, recipe: DiaryRecipe,
-                     preparation: Sequence[Any]) -> str:
-    """SHA-256 (hex) of the stored table, the recipe and the preparation steps (JSON values)."""
+def table_digest(data: ProjectData | None) -> str | None:
+    """SHA-256 (hex) of the stored table as JSON (linked data: the file's SHA-256; None for
+    no data). Computed once per table by a caller that keeps it."""
     if data is None:
-        table = None
-    elif data.link is not None or data.table is None:
-        table = {"linked_sha256": data.sha256}
-    else:
-        table = table_to_json(data.table)
+        return None
+    if data.link is not None or data.table is None:
+        return data.sha256
+    text = json.dumps(table_to_json(data.table), sort_keys=True, separators=(",", ":"),
+                      ensure_ascii=False, default=str)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def data_fingerprint(table: str | None, recipe: DiaryRecipe, preparation: Sequence[Any]) -> str:
+    """SHA-256 (hex) of the table's digest (`table_digest`), the recipe and the preparation
+    steps (JSON values)."""
     doc = {"table": table,
            "recipe": {"items": None if recipe.items is None else list(recipe.items),
                       "time": recipe.time.to_json(),
@@ -45,7 +51,7 @@ def data_fingerprint(data: ProjectData | None, recipe: DiaryRecipe,
 
 def project_fingerprint(project: Project) -> str:
     """The fingerprint of the project's data, recipe and preparation steps as they are now."""
-    return data_fingerprint(project.data, project.recipe, project.preparation)
+    return data_fingerprint(table_digest(project.data), project.recipe, project.preparation)
 
 
 def with_estimate(project: Project, result: FitResult, name: str | None = None) -> Project:
