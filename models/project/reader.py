@@ -130,12 +130,14 @@ def _parse(raw: bytes, label: str) -> Any:
 # ---------------------------------------------------------------------------- fields
 
 def _runs(value: object, fingerprint: str | None) -> tuple[Run, ...]:
-    """The stored runs (names unique). A run converted from a version-1 file has no
-    fingerprint yet (models.project.upgrade): it gets `fingerprint`, the project's own."""
+    """The stored runs (names unique). A run converted from an older format has no
+    fingerprint (models.project.upgrade): it gets `fingerprint`, the project's own."""
     entries = jr.array(value, "runs")
-    runs = tuple(Run.from_json({**doc, "fingerprint": doc.get("fingerprint") or fingerprint}
-                               if isinstance(doc, dict) and fingerprint else doc,
-                               f"runs[{i}]") for i, doc in enumerate(entries))
+    if fingerprint is not None:
+        entries = [{**doc, "fingerprint": fingerprint}
+                   if isinstance(doc, dict) and "fingerprint" not in doc else doc
+                   for doc in entries]
+    runs = tuple(Run.from_json(doc, f"runs[{i}]") for i, doc in enumerate(entries))
     seen: set[str] = set()
     for i, run in enumerate(runs):
         if run.name in seen:
@@ -188,7 +190,7 @@ def _project(doc: dict, folder: Path, upgraded: bool = False) -> tuple[Project, 
     project = Project(
         data=data, items=items, time=time, missing_codes=codes, prompts_per_day=per_day,
         scales=scales, preparation=tuple(preparation))
-    runs = _runs(doc["runs"], project_fingerprint(project) if upgraded else None)
+    runs = _runs(doc["runs"], project_fingerprint(project) if upgraded and doc["runs"] else None)
     current = _current(doc["current_run"], runs)
     result = None if current is None else next(r.result for r in runs if r.name == current)
     project = replace(

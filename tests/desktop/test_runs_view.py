@@ -145,3 +145,16 @@ def test_compare_shows_the_likelihood_ratio_test_read_off_the_screen(window, qtb
     assert lines[0] == "Section,Figure or parameter,Run 1,Run 2,Run 2 - Run 1"
     assert any(line.startswith(f"Fit,Log-likelihood,{fmt(full.loglik)},") for line in lines)
     assert lines[-1].startswith("# ")
+
+
+def test_a_lag2_check_is_kept_with_the_run_it_tested(window, qtbot):
+    assert window.run_lag2_check()
+    qtbot.waitUntil(lambda: not window.worker.busy and window.results.lag2.check is not None,
+                    timeout=TIMEOUT_MS)
+    settle(qtbot)
+    run = window.session.current_run
+    assert run.name == "Run 2" and run.lag2 is window.results.lag2.check
+    assert window.session.runs[0].lag2 is None
+    saved = window.session.to_project()
+    assert [r.name for r in saved.runs] == ["Run 1", "Run 2"] and saved.current_run == "Run 2"
+    assert saved.runs[1].lag2 is run.lag2
