@@ -6,8 +6,8 @@ ModelSpec, FitOptions, FitResult) and announces every change through Qt signals;
 subscribe to it. Every edit of the model, the steps or the notes goes through the undo stack
 as a command that swaps one immutable value for another, so undo and redo are exact and
 cheap; so do renaming, annotating, deleting and reopening runs. Every finished estimate
-appends a run and makes it current. A running estimate gets a `snapshot()` of the values (the diary with the steps
-applied), never the session itself.
+appends a run and makes it current. A running estimate gets a `snapshot()` of the values (the
+diary with the steps applied), never the session itself.
 
 The session is also the project document (models.project.Project): `to_project` and
 `load_project` convert, and `is_modified` says whether it differs from its file (an undoable
@@ -31,8 +31,8 @@ from lagwise.models.project import (
 )
 from lagwise.models.results import FitResult
 from lagwise.models.runs import (
-    Run, add_run, annotate_run, delete_run, find_run, new_run, rename_run, tests_result,
-    update_run,
+    Run, add_run, annotate_run, checked_name, find_run, free_name, new_run, next_name,
+    rename_run, tests_result, update_run,
 )
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
@@ -112,6 +112,8 @@ class Session(QObject):
         self._current: str | None = None   # the current run's name
         self._responses = None     # what the Responses tab shows (models.responses.ResponseChoice)
         self._digest: tuple[object, str | None] | None = None  # (data, table_digest) cache
+        self._stale = None         # a result opened as out of date (saved so in its project)
+        self._numbered = 0         # default run names start at "Run N" with N this or more
         self._preparation: tuple[Step, ...] = ()
         self._prepared: tuple[Diary, tuple[Step, ...], Diary] | None = None  # cache
         self._data: ProjectData | None = None
@@ -203,7 +205,7 @@ class Session(QObject):
         """True when the current run was estimated from the present data, recipe and
         preparation steps (its fingerprint), model and settings."""
         run = self.current_run
-        return (run is not None and self._diary is not None
+        return (run is not None and self._diary is not None and run.result is not self._stale
                 and run.fingerprint == self.fingerprint()
                 and run.spec == self._spec and run.options == self._options)
 
@@ -238,7 +240,7 @@ class Session(QObject):
         self._preparation = tuple(preparation)
         if notes is not None:
             self._notes = notes
-        self._runs, self._current = (), None
+        self._runs, self._current, self._stale, self._numbered = (), None, None, 0
         self._untitled = "untitled"
         if self._file is not None:  # a new diary starts a new, untitled project
             self._file, self._created = None, ""
@@ -252,7 +254,7 @@ class Session(QObject):
         self._frame = self._diary = self._import = self._data = None
         self._spec, self._options = EMPTY_SPEC, FitOptions()
         self._preparation, self._notes = (), ""
-        self._runs, self._current = (), None
+        self._runs, self._current, self._stale, self._numbered = (), None, None, 0
         self._file, self._created, self._untitled = None, "", "untitled"
         self.fileChanged.emit()
         self._set_unsaved(False)
@@ -265,8 +267,10 @@ class Session(QObject):
         fingerprint = inputs.fingerprint if inputs is not None and inputs.fingerprint else \
             self.fingerprint()
         steps = self._preparation if inputs is None else inputs.preparation
-        run = new_run(self._runs, result, fingerprint, tuple(steps_to_json(steps)))
+        name = next_name(self._runs, self._numbered)
+        run = new_run(self._runs, result, fingerprint, tuple(steps_to_json(steps)), name=name)
         self._runs, self._current = add_run(self._runs, run), run.name
+        self._numbered = int(name.removeprefix("Run ")) + 1
         self._set_unsaved(True)
         self.runsChanged.emit()
         self.resultChanged.emit()
@@ -391,6 +395,7 @@ class Session(QObject):
         self.fileChanged.emit()
         if project.runs:
             self._runs, self._current = project.runs, project.current_run
+            self._stale = None if project.result_current else project.result
             self._responses = project.responses
             self._set_unsaved(True)
             self.runsChanged.emit()
@@ -455,45 +460,61 @@ class Session(QObject):
 
     def rename_run(self, name: str, new_name: str) -> None:
         """Rename a run (undoable); ProjectError for an empty, repeated or unsafe name."""
-        runs = rename_run(self._runs, name, new_name)
-        renamed = runs[[r.name for r in self._runs].index(name)].name
-        if renamed != name:
-            current = renamed if self._current == name else self._current
-            self._push_runs(runs, current, f"Rename run '{name}'")
+        new = checked_name(new_name, self._runs, renaming=name)
+        find_run(self._runs, name)
+        if new != name:
+            self._edit_runs(f"Rename run '{name}'", _renaming(name, new), _renaming(new, name))
 
     def annotate_run(self, name: str, note: str) -> None:
         """Replace a run's note (undoable; unsafe characters left out, models.names)."""
-        runs = annotate_run(self._runs, name, note)
-        if find_run(runs, name).note != find_run(self._runs, name).note:
-            self._push_runs(runs, self._current, f"Note on run '{name}'")
+        old = find_run(self._runs, name).note
+        new = find_run(annotate_run(self._runs, name, note), name).note
+        if new != old:
+            self._edit_runs(f"Note on run '{name}'", _noting(name, new), _noting(name, old))
 
     def delete_run(self, name: str) -> None:
         """Delete a run (undoable); deleting the current run makes the newest remaining run
         current (none when no run remains)."""
-        runs = delete_run(self._runs, name)
-        current = self._current
-        if current == name:
-            current = runs[-1].name if runs else None
-        self._push_runs(runs, current, f"Delete run '{name}'")
+        find_run(self._runs, name)
+        kept: dict = {}
+
+        def forward(runs, current):
+            index = [run.name for run in runs].index(name)
+            kept.update(run=runs[index], index=index, current=current == name)
+            rest = runs[:index] + runs[index + 1:]
+            if current == name:
+                current = rest[-1].name if rest else None
+            return rest, current
+
+        def backward(runs, current):
+            run = kept["run"]
+            if any(other.name == run.name for other in runs):  # the name was given again
+                run = replace(run, name=free_name(runs, run.name))
+            index = kept["index"]
+            return runs[:index] + (run,) + runs[index:], run.name if kept["current"] else current
+
+        self._edit_runs(f"Delete run '{name}'", forward, backward)
 
     def reopen_run(self, name: str) -> None:
         """Make a run current and its specification and settings the model (one undoable
         step)."""
         run = find_run(self._runs, name)
+        before = self._current
         self.undo_stack.beginMacro(f"Reopen run '{name}'")
-        self._push_runs(self._runs, name, f"Show run '{name}'")
+        self._edit_runs(f"Show run '{name}'", lambda runs, _: (runs, name),
+                        lambda runs, _: (runs, before))
         self.edit_spec(run.spec, f"Model of run '{name}'")
         self.edit_options(run.options, f"Settings of run '{name}'")
         self.undo_stack.endMacro()
 
-    def _push_runs(self, runs: tuple[Run, ...], current: str | None, text: str) -> None:
-        self.undo_stack.push(_RunsSwap(self, (self._runs, self._current), (runs, current), text))
+    def _edit_runs(self, text: str, forward, backward) -> None:
+        self.undo_stack.push(_RunsEdit(self, text, forward, backward))
 
     def _set_runs(self, runs: tuple[Run, ...], current: str | None) -> None:
-        changed = current != self._current
+        shown = self.result
         self._runs, self._current = runs, current
         self.runsChanged.emit()
-        if changed:
+        if self.result is not shown:
             self.resultChanged.emit()
 
     def set_notes(self, notes: str, text: str = "Project notes") -> None:
@@ -527,18 +548,33 @@ class _Swap(QUndoCommand):
         self._signal.emit()
 
 
-class _RunsSwap(QUndoCommand):
-    """Swap the (runs, current run's name) pair: rename, annotate, delete, reopen."""
+class _RunsEdit(QUndoCommand):
+    """An edit of the runs: `forward` and `backward` map (runs, current name) to new ones and
+    are applied to the runs as they are when it is done or undone, so runs added meanwhile by
+    estimates (which are not undoable) stay."""
 
-    def __init__(self, session: Session, old: tuple, new: tuple, text: str) -> None:
+    def __init__(self, session: Session, text: str, forward, backward) -> None:
         super().__init__(text)
-        self._session, self._old, self._new = session, old, new
+        self._session, self._forward, self._backward = session, forward, backward
 
     def redo(self) -> None:
-        self._session._set_runs(*self._new)
+        self._session._set_runs(*self._forward(self._session._runs, self._session._current))
 
     def undo(self) -> None:
-        self._session._set_runs(*self._old)
+        self._session._set_runs(*self._backward(self._session._runs, self._session._current))
+
+
+def _renaming(old: str, new: str):
+    """The runs with run `old` named `new` (left as they are when `new` was taken meanwhile)."""
+    def rename(runs, current):
+        if any(run.name == new for run in runs) or not any(run.name == old for run in runs):
+            return runs, current
+        return rename_run(runs, old, new), new if current == old else current
+    return rename
+
+
+def _noting(name: str, note: str):
+    return lambda runs, current: (update_run(runs, name, note=note), current)
 
 
 class _DataSwap(QUndoCommand):

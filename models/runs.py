@@ -94,13 +94,24 @@ def tests_result(check: Lag2Check, result: FitResult) -> bool:
 
 # ============================================================================ editing
 
-def next_name(runs: tuple[Run, ...]) -> str:
-    """The first free default name, "Run N" with N one more than the number of runs."""
+def next_name(runs: tuple[Run, ...], first: int = 0) -> str:
+    """The first free default name "Run N", N counting up from one more than the number of
+    runs (or from `first`, when higher: a session never gives a deleted run's name again)."""
     taken = {run.name for run in runs}
-    number = len(runs) + 1
+    number = max(len(runs) + 1, first)
     while f"Run {number}" in taken:
         number += 1
     return f"Run {number}"
+
+
+def free_name(runs: tuple[Run, ...], wanted: str) -> str:
+    """`wanted`, or when another run has it, "wanted (2)", "wanted (3)", ..."""
+    taken = {run.name for run in runs}
+    name, number = wanted, 1
+    while name in taken:
+        number += 1
+        name = f"{wanted} ({number})"
+    return name
 
 
 def checked_name(name: str, runs: tuple[Run, ...], renaming: str | None = None) -> str:

@@ -34,7 +34,7 @@ from lagwise.models.project import (
 )
 from lagwise.models.recipe import DiaryRecipe
 from lagwise.models.runs import (
-    annotate_run, delete_run, find_run, next_name, rename_run, update_run,
+    annotate_run, delete_run, find_run, free_name, next_name, rename_run, update_run,
 )
 from lagwise.models.simulate import simulate_diary
 
@@ -174,6 +174,9 @@ def test_default_names_count_up_and_skip_taken_ones(two_runs):
     assert [r.name for r in two_runs.runs] == ["Run 1", "Run 2"]
     assert next_name(two_runs.runs) == "Run 3"
     assert next_name(rename_run(two_runs.runs, "Run 1", "Run 3")) == "Run 4"
+    assert next_name(two_runs.runs, first=7) == "Run 7"
+    assert free_name(two_runs.runs, "Run 2") == "Run 2 (2)"
+    assert free_name(two_runs.runs, "Run 5") == "Run 5"
 
 
 @pytest.mark.parametrize("name, words", [

@@ -93,6 +93,23 @@ def test_delete_then_undo_brings_the_run_back(window, qtbot):
     assert panel.current_label.text() == "Current run: Run 2"
 
 
+def test_undoing_a_delete_keeps_the_runs_estimated_since(window, qtbot):
+    # an estimate is not undoable: undoing an earlier edit of the runs must not drop it, and a
+    # deleted run's default name is not given again
+    panel = window.results.runs
+    panel.select("Run 2")
+    qtbot.mouseClick(panel.delete_button, Qt.MouseButton.LeftButton)
+    estimate(qtbot, window, NESTED)
+    assert shown_runs(panel) == ["Run 1", "Run 3"]
+    window.undo_action.trigger()
+    assert shown_runs(panel) == ["Run 1", "Run 2", "Run 3"]
+    panel.select("Run 3")
+    panel.rename_selected("again")
+    estimate(qtbot, window, NESTED)           # the model as it is: no undoable edit
+    window.undo_action.trigger()
+    assert shown_runs(panel) == ["Run 1", "Run 2", "Run 3", "Run 4"]
+
+
 def test_rename_and_note_are_undoable(window):
     panel = window.results.runs
     panel.select("Run 2")
