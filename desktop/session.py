@@ -27,7 +27,7 @@ from lagwise.models.errors import SpecError
 from lagwise.models.names import without_unsafe
 from lagwise.models.preparation import Step, apply_steps, steps_from_json, steps_to_json
 from lagwise.models.project import (
-    Project, ProjectData, data_fingerprint, embed_table, project_diary, table_digest,
+    Project, ProjectData, data_fingerprint, embed_table, project_diary, table_digest, utc_now,
 )
 from lagwise.models.results import FitResult
 from lagwise.models.runs import (
@@ -268,7 +268,8 @@ class Session(QObject):
             self.fingerprint()
         steps = self._preparation if inputs is None else inputs.preparation
         name = next_name(self._runs, self._numbered)
-        run = new_run(self._runs, result, fingerprint, tuple(steps_to_json(steps)), name=name)
+        run = new_run(self._runs, result, fingerprint, utc_now(), tuple(steps_to_json(steps)),
+                      name=name)
         self._runs, self._current = add_run(self._runs, run), run.name
         self._numbered = int(name.removeprefix("Run ")) + 1
         self._set_unsaved(True)

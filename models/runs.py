@@ -12,7 +12,6 @@ bad name or an unknown run with one ProjectError line.
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
-from datetime import datetime, timezone
 from typing import Any
 
 from lagwise.models import jsonread as jr
@@ -66,8 +65,8 @@ class Run:
         result's lag-1 model."""
         fields = jr.read_fields(doc, where, (
             jr.field("name", _name),
-            jr.field("time", timestamp),
-            jr.field("fingerprint", sha256_hex),
+            jr.field("time", jr.timestamp),
+            jr.field("fingerprint", jr.sha256),
             jr.field("preparation", jr.array),
             jr.field("results", FitResult.from_json, name="result"),
             jr.field("lag2_check", _optional(Lag2Check.from_json), None, name="lag2"),
@@ -130,13 +129,12 @@ def checked_name(name: str, runs: tuple[Run, ...], renaming: str | None = None) 
     return name
 
 
-def new_run(runs: tuple[Run, ...], result: FitResult, fingerprint: str,
-            preparation: tuple[Any, ...] = (), name: str | None = None,
-            time: str | None = None) -> Run:
-    """A run of `result` (default name: `next_name`; time: now, UTC)."""
+def new_run(runs: tuple[Run, ...], result: FitResult, fingerprint: str, time: str,
+            preparation: tuple[Any, ...] = (), name: str | None = None) -> Run:
+    """A run of `result` made at `time` (UTC ISO 8601; default name: `next_name`)."""
     return Run(name=checked_name(next_name(runs) if name is None else name, runs),
-               time=time or datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ"),
-               fingerprint=sha256_hex(fingerprint, "fingerprint"),
+               time=jr.timestamp(time, "time"),
+               fingerprint=jr.sha256(fingerprint, "fingerprint"),
                preparation=tuple(preparation), result=result)
 
 
@@ -189,23 +187,3 @@ def _optional(reader):
     def read(value: object, where: str):
         return None if value is None else reader(value, where)
     return read
-
-
-def sha256_hex(value: object, where: str) -> str:
-    """A SHA-256 digest as 64 lower-case hex digits."""
-    text = jr.text(value, where)
-    if len(text) != 64 or any(c not in "0123456789abcdef" for c in text):
-        raise FieldError(where, "should be a SHA-256 digest (64 lower-case hex digits)")
-    return text
-
-
-def timestamp(value: object, where: str) -> str:
-    """An ISO 8601 time with its UTC offset, as text."""
-    text = jr.text(value, where, 100)
-    try:
-        moment = datetime.fromisoformat(text.replace("Z", "+00:00"))
-    except ValueError:
-        raise FieldError(where, f"should be an ISO 8601 time, not {text[:40]!r}") from None
-    if moment.tzinfo is None:
-        raise FieldError(where, "should be an ISO 8601 time with its UTC offset")
-    return text

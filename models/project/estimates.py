@@ -14,7 +14,7 @@ import json
 from dataclasses import replace
 from typing import Any, Sequence
 
-from lagwise.models.project.document import Project, ProjectData
+from lagwise.models.project.document import Project, ProjectData, utc_now
 from lagwise.models.project.table import table_to_json
 from lagwise.models.recipe import DiaryRecipe
 from lagwise.models.results import FitResult
@@ -56,7 +56,7 @@ def project_fingerprint(project: Project) -> str:
 
 def with_estimate(project: Project, result: FitResult, name: str | None = None) -> Project:
     """The project with `result` kept as a new run (default name "Run N") made current."""
-    run = new_run(project.runs, result, project_fingerprint(project), project.preparation,
-                  name=name)
+    run = new_run(project.runs, result, project_fingerprint(project), utc_now(),
+                  project.preparation, name=name)
     return replace(project, runs=add_run(project.runs, run), current_run=run.name,
                    result_current=True)

@@ -30,7 +30,7 @@ from lagwise.models.project.estimates import project_fingerprint
 from lagwise.models.project.table import parse_table
 from lagwise.models.project.upgrade import upgrade
 from lagwise.models.responses import ResponseChoice
-from lagwise.models.runs import Run, sha256_hex, timestamp
+from lagwise.models.runs import Run
 from lagwise.models.scales import scales_from_json
 from lagwise.models.results import FitResult
 from lagwise.models.estimators import FitOptions
@@ -201,8 +201,8 @@ def _project(doc: dict, folder: Path, upgraded: bool = False) -> tuple[Project, 
         result_current=jr.boolean(doc.get("results_current", True), "results_current"),
         responses=_responses(doc.get("responses"), result),
         notes=jr.text(doc["notes"], "notes", jr.MAX_TEXT),
-        created=timestamp(doc["created"], "created"),
-        modified=timestamp(doc["modified"], "modified"),
+        created=jr.timestamp(doc["created"], "created"),
+        modified=jr.timestamp(doc["modified"], "modified"),
         lagwise_version=jr.text(doc["lagwise_version"], "lagwise_version", 200),
     )
     return project, recovery_of
@@ -222,7 +222,7 @@ def _data(value: Any, folder: Path) -> ProjectData:
                         "data.storage", ("embedded", "linked"))
     if storage == "embedded":
         doc = jr.obj(value, "data", ("storage", "file_name", "sha256", "table"))
-        digest = _sha(doc["sha256"], "data.sha256", null=True)
+        digest = jr.sha256(doc["sha256"], "data.sha256", null=True)
         table = parse_table(doc["table"], "data.table")
         return ProjectData(jr.text(doc["file_name"], "data.file_name"), digest, table)
     doc = jr.obj(value, "data", ("storage", "file_name", "sha256", "path"))
@@ -233,7 +233,7 @@ def _data(value: Any, folder: Path) -> ProjectData:
     if not link.is_absolute():
         link = folder.joinpath(*PurePosixPath(stored).parts)
     return ProjectData(jr.text(doc["file_name"], "data.file_name"),
-                       _sha(doc["sha256"], "data.sha256"), None, Path(os.path.normpath(link)))
+                       jr.sha256(doc["sha256"], "data.sha256"), None, Path(os.path.normpath(link)))
 
 
 def _check_roles(table: pd.DataFrame, items: tuple[str, ...] | None, time: TimeSettings) -> None:
@@ -248,7 +248,3 @@ def _code(value: Any, where: str) -> str | float:
     if isinstance(value, str):
         return jr.text(value, where)
     return jr.number(value, where)
-
-
-def _sha(value: Any, where: str, null: bool = False) -> str | None:
-    return None if value is None and null else sha256_hex(value, where)
