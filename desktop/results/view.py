@@ -41,7 +41,7 @@ ESTIMATING_MESSAGE = "Estimating…\n\nThe results will appear here when the est
 
 class ResultsView(QWidget):
     """Tabs Measurement, Dynamics, Responses, Innovations, Fit, Parameters, State scores,
-    Lag-2 check.
+    Lag-2 check, Stability, Runs, Compare.
 
     `show_result(None)` shows the empty state. Each tab is a ResultsPanel with
     `pictures()` and `tables()` (what its Export button saves). `panels()` are the five tabs
