@@ -118,9 +118,9 @@ def _document(project: Project, folder: Path) -> dict:
         "preparation": list(project.preparation),
         "spec": None if project.spec is None else project.spec.to_json(),
         "options": project.options.to_json(),
-        "results": None if project.result is None else project.result.to_json(),
+        "runs": [run.to_json() for run in project.runs],
+        "current_run": project.current_run,
         "results_current": project.result_current,
-        **({} if project.bootstrap is None else {"bootstrap": project.bootstrap.to_json()}),
         **({} if project.responses is None else {"responses": project.responses.to_json()}),
         "notes": project.notes,
     }
