@@ -1,21 +1,26 @@
-"""The report of an analysis as a file: HTML with the diagrams inline as SVG, or PDF.
+"""The report of an analysis (one run) or of a study (one model per person) as a file: HTML
+with the pictures inline as SVG, or PDF.
 
-The text comes from models.reporting (one `ReportInput`); this module draws the window's own
-diagram scenes offscreen (the lagged paths, the innovations) and writes the file through
+The text comes from models.reporting (a `ReportInput` or a `StudyInput`); this module draws
+the window's own diagram scenes offscreen (the lagged paths, the innovations; a study's strip
+plot is SVG made in models.reporting.strips) and writes the file through
 models.atomic.write_output. The PDF is Qt's own: the same HTML, laid out by a QTextDocument
-on A4 or Letter pages, each page numbered, painted by QPdfWriter; the diagrams are text objects
-of the document that paint their scene with the page's painter, so they stay vector graphics in
-the PDF. `png_pages` paints the same pages into pictures. `ReportExport` is the window's
+on A4 or Letter pages, each page numbered, painted by QPdfWriter; the pictures are text
+objects of the document that paint themselves with the page's painter, so they stay vector
+graphics in the PDF. `png_pages` paints the same pages into pictures. `ReportExport` is the window's
 File ▸ Export report… (the input is gathered in a worker; drawing and writing are quick).
 """
 
 from __future__ import annotations
 
+from collections.abc import Callable
+from dataclasses import dataclass
 from pathlib import Path
 
-from PySide6.QtCore import QBuffer, QIODevice, QMarginsF, QObject, QRectF, QSizeF, Qt
+from PySide6.QtCore import QBuffer, QByteArray, QIODevice, QMarginsF, QObject, QRectF, QSizeF, Qt
 from PySide6.QtGui import (QColor, QImage, QPageLayout, QPageSize, QPainter, QPdfWriter,
                            QPyTextObject, QTextCharFormat, QTextCursor, QTextDocument, QTextFormat)
+from PySide6.QtSvg import QSvgRenderer
 from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMessageBox, QWidget
 
 from lagwise.desktop.export import svg_bytes
@@ -28,6 +33,7 @@ from lagwise.models.errors import OutputError
 from lagwise.models.lag2check import Lag2Check, lag1_version
 from lagwise.models.reporting.html import Figure, report_html
 from lagwise.models.reporting.source import ReportInput, report_input
+from lagwise.models.reporting.study import StudyInput, strip_figure, study_html
 from lagwise.models.results import FitResult
 
 PAGE_SIZES = {"a4": QPageSize.PageSizeId.A4, "letter": QPageSize.PageSizeId.Letter}
@@ -46,10 +52,14 @@ def report_suffix(path: str | Path) -> str:
     return suffix
 
 
-def write_report(inp: ReportInput, path: str | Path, page_size: str = "a4") -> Path:
+Source = ReportInput | StudyInput   # an analysis (one run) or a study (one model per person)
+
+
+def write_report(inp: Source, path: str | Path, page_size: str = "a4") -> Path:
     """Write the report of `inp` to `path` (HTML or PDF by its suffix), replaced in one step."""
     if report_suffix(path) == ".html":
-        data = report_html(inp, svg_figures(inp.result)).encode("utf-8")
+        data = (study_html(inp) if isinstance(inp, StudyInput) else
+                report_html(inp, svg_figures(inp.result))).encode("utf-8")
     else:
         data, _ = pdf_bytes(inp, page_size)
     return write_output(path, data, "the report")
@@ -84,30 +94,58 @@ def svg_figures(result: FitResult) -> list[Figure]:
     return figures
 
 
+@dataclass(frozen=True, eq=False)
+class Drawing:
+    """A picture of the report that paints itself with any painter (vector in a PDF): its
+    caption, its own extent, how to paint it into a rectangle, and what keeps it alive."""
+
+    caption: str
+    source: QRectF
+    paint: Callable[[QPainter, QRectF], None]
+    owner: object = None
+
+
+def scene_drawing(caption: str, scene: QGraphicsScene, owner: object) -> Drawing:
+    source = scene.itemsBoundingRect().adjusted(-10, -10, 10, 10)
+    return Drawing(caption, source, lambda painter, rect: scene.render(painter, rect, source),
+                   owner)
+
+
+def svg_drawing(caption: str, svg: str) -> Drawing:
+    renderer = QSvgRenderer(QByteArray(svg.encode("utf-8")))
+    return Drawing(caption, QRectF(renderer.viewBoxF()), renderer.render, renderer)
+
+
+def drawings(inp: Source) -> list[Drawing]:
+    """The pictures of a report: the result's diagrams, or the study's strip plot."""
+    if isinstance(inp, StudyInput):
+        figure = strip_figure(inp.across)
+        return [] if figure is None else [svg_drawing(figure.caption, figure.markup)]
+    return [scene_drawing(*entry) for entry in diagram_scenes(inp.result)]
+
+
 SCENE_OBJECT = QTextFormat.ObjectTypes.UserObject + 1
-SCENE_PROPERTY = QTextFormat.Property.UserProperty + 1   # which scene a text object draws
+SCENE_PROPERTY = QTextFormat.Property.UserProperty + 1   # which drawing a text object paints
 
 
-class _SceneObjects(QPyTextObject):
-    """The diagrams inside the report's text: each text object of type SCENE_OBJECT takes
-    `width` writer pixels and paints its scene (vector) wherever the page is painted."""
+class _DrawingObjects(QPyTextObject):
+    """The pictures inside the report's text: each text object of type SCENE_OBJECT takes
+    `width` writer pixels and paints its drawing wherever the page is painted."""
 
-    def __init__(self, scenes: list[QGraphicsScene], width: float) -> None:
+    def __init__(self, pictures: list[Drawing], width: float) -> None:
         super().__init__()
-        self._scenes = scenes
-        self._sources = [s.itemsBoundingRect().adjusted(-10, -10, 10, 10) for s in scenes]
+        self._pictures = pictures
         self._width = width
 
     def intrinsicSize(self, _doc, _pos, fmt) -> QSizeF:  # noqa: N802 (Qt's name)
-        source = self._sources[int(fmt.property(SCENE_PROPERTY))]
+        source = self._pictures[int(fmt.property(SCENE_PROPERTY))].source
         return QSizeF(self._width, self._width * source.height() / max(source.width(), 1.0))
 
     def drawObject(self, painter, rect, _doc, _pos, fmt) -> None:  # noqa: N802 (Qt's name)
-        n = int(fmt.property(SCENE_PROPERTY))
         painter.save()
         painter.setRenderHint(QPainter.RenderHint.Antialiasing)
         painter.setRenderHint(QPainter.RenderHint.TextAntialiasing)
-        self._scenes[n].render(painter, rect, self._sources[n])
+        self._pictures[int(fmt.property(SCENE_PROPERTY))].paint(painter, rect)
         painter.restore()
 
 
@@ -138,14 +176,15 @@ def _objects_for_pictures(document: QTextDocument) -> None:
 class Pages:
     """The report laid out on pages of `page_size` for a QPdfWriter writing into memory."""
 
-    def __init__(self, inp: ReportInput, page_size: str = "a4") -> None:
+    def __init__(self, inp: Source, page_size: str = "a4") -> None:
         if page_size not in PAGE_SIZES:
             raise OutputError(f"unknown page size '{page_size}' (choose {' or '.join(PAGE_SIZES)})")
         self.buffer = QBuffer()
         self.buffer.open(QIODevice.OpenModeFlag.WriteOnly)
         self.writer = QPdfWriter(self.buffer)
         self.writer.setResolution(RESOLUTION)
-        self.writer.setTitle(f"Lagwise report: {inp.title}")
+        self.writer.setTitle(inp.title if isinstance(inp, StudyInput) else
+                             f"Lagwise report: {inp.title}")
         self.writer.setCreator("Lagwise")
         self.writer.setPageLayout(QPageLayout(
             QPageSize(PAGE_SIZES[page_size]), QPageLayout.Orientation.Portrait,
@@ -156,13 +195,13 @@ class Pages:
         self.footer = 2.5 * FOOTER_POINTS * RESOLUTION / 72    # writer pixels (72 points an inch)
         self.document = QTextDocument()
         self.document.documentLayout().setPaintDevice(self.writer)
-        self._diagrams = diagram_scenes(inp.result)   # owners kept alive with the pages
-        self._objects = _SceneObjects([scene for _c, scene, _o in self._diagrams],
-                                      round(self.paint.width() * 0.8))
+        self._pictures = drawings(inp)   # kept alive with the pages
+        self._objects = _DrawingObjects(self._pictures, round(self.paint.width() * 0.8))
         self.document.documentLayout().registerHandler(SCENE_OBJECT, self._objects)
-        figures = [Figure(caption, f'<img src="scene-{n}">')
-                   for n, (caption, _scene, _owner) in enumerate(self._diagrams)]
-        self.document.setHtml(report_html(inp, figures))
+        figures = [Figure(d.caption, f'<img src="scene-{n}">')
+                   for n, d in enumerate(self._pictures)]
+        self.document.setHtml(study_html(inp, figures) if isinstance(inp, StudyInput) else
+                              report_html(inp, figures))
         _objects_for_pictures(self.document)
         self.document.setPageSize(QSizeF(self.paint.width(), self.paint.height() - self.footer))
 
@@ -197,13 +236,13 @@ class Pages:
         return bytes(self.buffer.data())
 
 
-def pdf_bytes(inp: ReportInput, page_size: str = "a4") -> tuple[bytes, int]:
+def pdf_bytes(inp: Source, page_size: str = "a4") -> tuple[bytes, int]:
     """The PDF report and its number of pages."""
     pages = Pages(inp, page_size)
     return pages.pdf(), pages.count
 
 
-def png_pages(inp: ReportInput, folder: str | Path, page_size: str = "a4",
+def png_pages(inp: Source, folder: str | Path, page_size: str = "a4",
               dpi: int = 100) -> list[Path]:
     """The PDF's pages painted into PNG pictures `page-1.png`, ... in `folder`."""
     pages = Pages(inp, page_size)

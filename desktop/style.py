@@ -12,11 +12,8 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor, QFont, QPalette, QPen
 from PySide6.QtWidgets import QApplication
 
-POSITIVE = "#1b7f79"   # deep teal, solid lines
-NEGATIVE = "#b35900"   # amber orange (hue about 30 degrees), dashed lines
-INK = "#1f2a30"        # text and axes
-MUTED = "#6b777d"      # secondary text, missed-prompt markers
-RULE = "#c9d1d4"       # thin lines, grid
+from lagwise.models.reporting.palette import INK, MUTED, NEGATIVE, POSITIVE, RULE  # noqa: F401
+
 DAY_SHADE = "#eef2f3"  # every other day in time-series plots
 PAPER = "#ffffff"      # plot and picture background
 PANEL = "#f6f8f8"      # window background
