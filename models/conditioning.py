@@ -138,9 +138,9 @@ class Rescaling:
             return item(to)
         if kind == Kind.UNIQUE:
             return item(to) ** 2
-        if kind in LAGGED_KINDS:
+        if kind in LAGGED_KINDS or kind == Kind.DRIFT:
             return unit(to) / unit(from_)
-        if kind in (Kind.INNOVATION, Kind.FIRST_COPY):
+        if kind in (Kind.INNOVATION, Kind.FIRST_COPY, Kind.DIFFUSION):
             return unit(from_) * unit(to)
         if kind == Kind.LATENT_INTERCEPT:
             return unit(to)

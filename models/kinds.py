@@ -25,6 +25,8 @@ class Kind(StrEnum):
     PARTIAL_CORRELATION = "partial_correlation"
     FIRST_COPY = "first_copy"
     LATENT_INTERCEPT = "latent_intercept"
+    DRIFT = "drift"
+    DIFFUSION = "diffusion"
 
     @property
     def title(self) -> str:
@@ -47,6 +49,8 @@ _TITLES = {
     Kind.PARTIAL_CORRELATION: "Partial correlations of innovations",
     Kind.FIRST_COPY: "Covariance of the oldest window copies (first-copy-free)",
     Kind.LATENT_INTERCEPT: "Latent intercepts of the later window copies (first-copy-free)",
+    Kind.DRIFT: "Drift (state -> rate of change of state; auto-effects on the diagonal)",
+    Kind.DIFFUSION: "Diffusion (variances and covariances of the continuous innovations)",
 }
 _LABELS = {
     Kind.LOADING: "Loading",
@@ -60,5 +64,7 @@ _LABELS = {
     Kind.PARTIAL_CORRELATION: "Innovation partial correlation",
     Kind.FIRST_COPY: "Oldest-copy covariance",
     Kind.LATENT_INTERCEPT: "Latent intercept",
+    Kind.DRIFT: "Drift",
+    Kind.DIFFUSION: "Diffusion (co)variance",
 }
 LAGGED_KINDS = (Kind.INERTIA, Kind.CROSS_LAGGED, Kind.LAG2)
