@@ -9,14 +9,14 @@ exponential", IEEE Trans. Automatic Control 23:395-404, Theorem 1):
 The stationary covariance S solves the continuous Lyapunov equation A S + S A' + W = 0 (it
 exists when every eigenvalue of A has a negative real part).
 Derivatives in reverse mode: the adjoint of the Frechet derivative of expm at M is the
-Frechet derivative at M' (scipy.linalg.expm_frechet), and the adjoint of the Lyapunov
-equation is the Lyapunov equation of A'.
+Frechet derivative at M' (see `_frechet_adjoint`), and the adjoint of the Lyapunov equation
+is the Lyapunov equation of A'.
 """
 
 from __future__ import annotations
 
 import numpy as np
-from scipy.linalg import expm, expm_frechet, solve_continuous_lyapunov
+from scipy.linalg import expm, solve_continuous_lyapunov
 
 from lagwise.models.errors import EstimationError
 
@@ -28,34 +28,76 @@ def _generator(a: np.ndarray, w: np.ndarray) -> np.ndarray:
     return m
 
 
+LONG = 2.0   # an interval D is long when ||A||_1 D exceeds this (see `discrete_system`)
+
+
+def _long(a: np.ndarray, d: np.ndarray) -> np.ndarray:
+    """The intervals whose Q(D) comes from S - B S B' (A stable only)."""
+    return d * np.linalg.norm(a, 1) > LONG if is_stable(a) else np.zeros(d.size, dtype=bool)
+
+
 def discrete_system(a: np.ndarray, w: np.ndarray, intervals: np.ndarray
                     ) -> tuple[np.ndarray, np.ndarray]:
     """(B, Q), each (intervals, k, k): the discrete effects and innovation covariances over
-    each interval (Van Loan's block exponential, all intervals in one batched call)."""
+    each interval, all intervals in one batched exponential. Over a long interval Van
+    Loan's E12 grows like expm(-A D) and Q would lose every digit to cancellation; there (A
+    stable) the equal Q(D) = S - B S B' (S stationary: its covariance over D is S) is used."""
     k = a.shape[0]
     d = np.asarray(intervals, dtype=float).reshape(-1)
-    e = expm(d[:, None, None] * _generator(a, w)[None])
-    b = e[:, k:, k:].transpose(0, 2, 1)
-    q = b @ e[:, :k, k:]
+    long = _long(a, d)
+    e = expm(d[~long, None, None] * _generator(a, w)[None])
+    b, q = np.empty((d.size, k, k)), np.empty((d.size, k, k))
+    b[~long] = e[:, k:, k:].transpose(0, 2, 1)
+    q[~long] = b[~long] @ e[:, :k, k:]
+    if long.any():
+        s = stationary_covariance(a, w)
+        b[long] = expm(d[long, None, None] * a[None])
+        q[long] = s - b[long] @ s @ b[long].transpose(0, 2, 1)
     return b, 0.5 * (q + q.transpose(0, 2, 1))
+
+
+def _frechet_adjoint(x: np.ndarray, e_bar: np.ndarray) -> np.ndarray:
+    """L(X', E_bar) for a stack of X: the adjoint of the Frechet derivative of expm at X,
+    through the block identity expm([[Y, F], [0, Y]]) = [[expm Y, L(Y, F)], [0, expm Y]]
+    (Higham 2008, "Functions of Matrices", Theorem 3.6), one batched exponential
+    (scipy.linalg.expm_frechet gives the same, one matrix at a time)."""
+    n = x.shape[1]
+    big = np.zeros((x.shape[0], 2 * n, 2 * n))
+    big[:, :n, :n] = big[:, n:, n:] = x.transpose(0, 2, 1)
+    big[:, :n, n:] = e_bar
+    return expm(big)[:, :n, n:]
 
 
 def discrete_adjoint(a: np.ndarray, w: np.ndarray, intervals: np.ndarray, b_bar: np.ndarray,
                      q_bar: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """(dL/dA, dL/dW) from dL/dB and dL/dQ per interval (elements treated as independent)."""
+    """(dL/dA, dL/dW) from dL/dB and dL/dQ per interval (elements treated as independent),
+    along the same two routes as `discrete_system`."""
     k = a.shape[0]
-    gen = _generator(a, w)
+    d = np.asarray(intervals, dtype=float).reshape(-1)
+    long = _long(a, d)
+    qs = 0.5 * (q_bar + q_bar.transpose(0, 2, 1))
     a_bar, w_bar = np.zeros((k, k)), np.zeros((k, k))
-    for d, bb, qb in zip(np.asarray(intervals, dtype=float).reshape(-1), b_bar, q_bar):
-        e = expm(d * gen)
-        e12, e22 = e[:k, k:], e[k:, k:]
-        qs = 0.5 * (qb + qb.T)
-        e_bar = np.zeros((2 * k, 2 * k))
-        e_bar[:k, k:] = e22 @ qs              # Q = E22' E12
-        e_bar[k:, k:] = bb.T + e12 @ qs.T     # B = E22', and Q again
-        m_bar = d * expm_frechet(d * gen.T, e_bar, compute_expm=False)
+    if (~long).any():
+        dv = d[~long, None, None]
+        m = dv * _generator(a, w)[None]
+        e = expm(m)
+        e12, e22 = e[:, :k, k:], e[:, k:, k:]
+        e_bar = np.zeros(m.shape)
+        e_bar[:, :k, k:] = e22 @ qs[~long]                                   # Q = E22' E12
+        e_bar[:, k:, k:] = b_bar[~long].transpose(0, 2, 1) + e12 @ qs[~long]  # B = E22', Q
+        m_bar = (dv * _frechet_adjoint(m, e_bar)).sum(axis=0)
         a_bar += m_bar[k:, k:].T - m_bar[:k, :k]
         w_bar += m_bar[:k, k:]
+    if long.any():
+        dv = d[long, None, None]
+        s = stationary_covariance(a, w)
+        b = expm(dv * a[None])
+        ql, bt = qs[long], b.transpose(0, 2, 1)
+        bb = b_bar[long] - 2.0 * ql @ b @ s                                  # Q = S - B S B'
+        a_bar += (dv * _frechet_adjoint(dv * a[None], bb)).sum(axis=0)
+        a_s, w_s = stationary_adjoint(a, s, (ql - bt @ ql @ b).sum(axis=0))
+        a_bar += a_s
+        w_bar += w_s
     return a_bar, w_bar
 
 
