@@ -40,7 +40,10 @@ class ContinuousTime:
                 "shortest": self.shortest, "longest": self.longest}
 
     @classmethod
-    def from_json(cls, doc: object, where: str = "") -> "ContinuousTime":
+    def from_json(cls, doc: object, where: str = "") -> "ContinuousTime | None":
+        """Settings from `to_json` output (None for null); FieldError names a bad field."""
+        if doc is None:
+            return None
         return cls(**jr.read_fields(doc, where, (
             jr.field("unit", jr.choice, choices=tuple(INTERVAL_UNITS)),
             jr.field("night", jr.choice, choices=("restart", "carry")),
