@@ -13,8 +13,8 @@ from two_state_model import SPEC, TRUE
 
 from lagwise.models.ctobjective import ContinuousObjective
 from lagwise.models.ctresults import effects_by_interval
-from lagwise.models.drift import (discrete_adjoint, discrete_system, stationary_adjoint,
-                                  stationary_covariance)
+from lagwise.models.drift import (discrete_adjoint, discrete_system, expm_stack,
+                                  stationary_adjoint, stationary_covariance)
 from lagwise.models.errors import SpecError
 from lagwise.models.estimate import fit
 from lagwise.models.estimators import FitOptions
@@ -60,6 +60,16 @@ def _theta(objective: ContinuousObjective, drift: np.ndarray, diffusion: np.ndar
 
 
 # ----- the drift mathematics -----------------------------------------------------------------
+def test_stacked_exponential_matches_scipy():
+    # matrices of norms from 0 to about 100 (up to 5 squarings), against scipy's expm
+    rng = np.random.default_rng(1)
+    x = rng.normal(size=(60, 6, 6)) * np.geomspace(1e-3, 20.0, 60)[:, None, None]
+    x[0] = 0.0
+    expected = np.array([expm(m) for m in x])
+    scale = np.maximum(np.abs(expected).max(axis=(1, 2), keepdims=True), 1.0)
+    np.testing.assert_allclose(expm_stack(x) / scale, expected / scale, rtol=0, atol=1e-12)
+
+
 def test_van_loan_matches_numerical_integration():
     # Q(D) = int_0^D expm(As) W expm(A's) ds by scipy.integrate.quad_vec; B(D) = scipy's expm
     intervals = np.array([0.1, 1.0, 3.7])
