@@ -30,6 +30,7 @@ GROUPS = (
     ("Item intercepts and unique parts", (Kind.INTERCEPT, Kind.UNIQUE,
                                           Kind.UNIQUE_AUTOCORRELATION)),
     ("Oldest window copies (first copy free)", (Kind.FIRST_COPY, Kind.LATENT_INTERCEPT)),
+    ("Continuous time: drift and diffusion", (Kind.DRIFT, Kind.DIFFUSION)),
 )
 SD_UNITS = "In SD units"
 SD_UNITS_TIP = ("The value in standard-deviation units of the states and items (the "
@@ -62,6 +63,11 @@ def parameter_name(p: Parameter) -> str:
         return f"{p.to}: variance" if p.from_ == p.to else f"{p.from_} with {p.to}: covariance"
     if kind == Kind.PARTIAL_CORRELATION:
         return f"{p.from_} with {p.to}: partial correlation"
+    if kind == Kind.DRIFT:
+        return f"{p.to}: auto-effect (drift)" if p.from_ == p.to else f"{p.from_} → change of {p.to}"
+    if kind == Kind.DIFFUSION:
+        return (f"{p.to}: diffusion variance" if p.from_ == p.to
+                else f"{p.from_} with {p.to}: diffusion covariance")
     if kind == Kind.LATENT_INTERCEPT:
         return f"{p.to}: latent intercept (later copies)"
     return f"{p.to}: variance (oldest copy)" if p.from_ == p.to else \
