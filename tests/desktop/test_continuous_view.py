@@ -80,3 +80,55 @@ def test_a_discrete_result_afterwards_gets_its_inertia_chart_back(view):
     plot = view.dynamics.chart.getPlotItem()
     assert plot.legend is None
     assert "Inertia" in plot.titleLabel.text
+
+
+# ----- choosing the estimator in the window -------------------------------------------------
+def test_dynamics_page_takes_the_continuous_time_settings(session, qtbot):
+    from lagwise.desktop.pages.dynamics_page import DynamicsPage
+    from window_helpers import settle
+
+    page = DynamicsPage(session)
+    qtbot.addWidget(page)
+    page.show()
+    combo = page.estimator_combo
+    combo.setCurrentIndex(combo.findData("continuous-time"))
+    settle(qtbot, 5)
+    assert session.options.estimator == "continuous-time"
+    assert page.ct_box.isEnabled() and not page.exact_night.isEnabled()
+    # the demo has day and prompt numbers: a spacing is stated, the night cannot carry
+    assert page.spacing_spin.isEnabled() and not page.ct_carry_check.isEnabled()
+    page.spacing_spin.setValue(1.5)
+    settle(qtbot, 5)
+    page.unit_combo.setCurrentIndex(page.unit_combo.findData("minutes"))
+    settle(qtbot, 5)
+    assert (session.options.prompt_spacing, session.options.interval_unit) == (1.5, "minutes")
+    session.undo_stack.undo()
+    settle(qtbot, 5)
+    assert session.options.interval_unit in (None, "hours")
+    combo.setCurrentIndex(combo.findData("exact"))
+    settle(qtbot, 5)
+    assert not page.ct_box.isEnabled() and session.options.prompt_spacing is None
+
+
+def test_the_window_estimates_in_continuous_time(qtbot, lagwise_app):
+    from lagwise.desktop.app import load_demo
+    from lagwise.desktop.mainwindow import PAGES
+    from window_helpers import open_window, settle
+
+    window = open_window(qtbot)
+    load_demo(window.session)
+    settle(qtbot, 5)
+    window.show_page(PAGES.index("Dynamics"))
+    page = window.dynamics_page
+    page.estimator_combo.setCurrentIndex(page.estimator_combo.findData("continuous-time"))
+    page.spacing_spin.setValue(2.0)
+    settle(qtbot, 5)
+    window.estimate_action.trigger()
+    qtbot.waitUntil(lambda: not window.worker.busy and window.session.result is not None,
+                    timeout=120_000)
+    settle(qtbot, 20)
+    result = window.session.result
+    assert result.estimator == "continuous-time" and result.continuous.median_interval == 2.0
+    curves = [i for i in window.results.dynamics.chart.getPlotItem().listDataItems() if i.name()]
+    assert [c.name() for c in curves] == list(result.states)
+    window.worker.wait()
