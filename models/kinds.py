@@ -68,3 +68,4 @@ _LABELS = {
     Kind.DIFFUSION: "Diffusion (co)variance",
 }
 LAGGED_KINDS = (Kind.INERTIA, Kind.CROSS_LAGGED, Kind.LAG2)
+PATH_KINDS = (*LAGGED_KINDS, Kind.DRIFT)   # effects between states, discrete or continuous

@@ -4,6 +4,8 @@ the gradient against central differences, and recovery of a known drift by simul
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pytest
 from scipy.integrate import quad_vec
@@ -249,3 +251,29 @@ def test_coverage_of_drift_intervals_by_simulation():
     covered = np.concatenate([_covered(fit(_diary(days=60, prompts=8, seed=100 + r), SPEC, CT))
                               for r in range(100)])
     assert 0.92 <= covered.mean() <= 0.98
+
+
+def test_items_on_far_apart_scales_give_the_same_drift_in_their_own_units():
+    # the marker item of "calm" times 2^14: calm's unit grows by 2^14, so the drift from drive
+    # to calm grows by 2^14 and from calm to drive shrinks by it (a change of units, common
+    # practice); the auto-effects do not change
+    diary = _diary(days=30, prompts=8, seed=6)
+    plain = fit(diary, SPEC, CT)
+    values = diary.values.copy()
+    values[:, 0] *= 2.0 ** 14
+    scaled = fit(replace(diary, values=values), SPEC, CT)
+    factor = {("calm", "calm"): 1.0, ("drive", "drive"): 1.0, ("drive", "calm"): 2.0 ** 14,
+              ("calm", "drive"): 2.0 ** -14}
+    for p in plain.table(Kind.DRIFT):
+        q = scaled.get(Kind.DRIFT, p.from_, p.to)
+        assert q.estimate == pytest.approx(p.estimate * factor[(p.from_, p.to)],
+                                           abs=1e-3 * p.se * factor[(p.from_, p.to)])
+
+
+def test_the_bootstrap_judges_the_stability_of_the_drift():
+    from lagwise.models.bootstrap import bootstrap
+    diary = _diary(days=20, prompts=8, seed=7)
+    result = fit(diary, SPEC, CT)
+    boot = bootstrap(diary, SPEC, CT, result, replicates=3, seed=1, jobs=1)
+    assert [(s.from_, s.to) for s in boot.stability()] == [
+        (p.from_, p.to) for p in result.table(Kind.DRIFT) if p.free]
