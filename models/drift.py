@@ -21,31 +21,49 @@ from scipy.linalg import solve_continuous_lyapunov
 from lagwise.models.errors import EstimationError
 
 
-_PADE13 = (64764752532480000.0, 32382376266240000.0, 7771770303897600.0, 1187353796428800.0,
-           129060195264000.0, 10559470521600.0, 670442572800.0, 33522128640.0, 1323241920.0,
-           40840800.0, 960960.0, 16380.0, 182.0, 1.0)
-_THETA13 = 5.371920351148152
+_PADE = {   # [m/m] Pade coefficients b_0..b_m and the largest 1-norm each serves (Higham 2005)
+    3: ((120.0, 60.0, 12.0, 1.0), 1.495585217958292e-2),
+    5: ((30240.0, 15120.0, 3360.0, 420.0, 30.0, 1.0), 2.539398330063230e-1),
+    7: ((17297280.0, 8648640.0, 1995840.0, 277200.0, 25200.0, 1512.0, 56.0, 1.0),
+        9.504178996162932e-1),
+    9: ((17643225600.0, 8821612800.0, 2075673600.0, 302702400.0, 30270240.0, 2162160.0,
+         110880.0, 3960.0, 90.0, 1.0), 2.097847961257068),
+    13: ((64764752532480000.0, 32382376266240000.0, 7771770303897600.0, 1187353796428800.0,
+          129060195264000.0, 10559470521600.0, 670442572800.0, 33522128640.0, 1323241920.0,
+          40840800.0, 960960.0, 16380.0, 182.0, 1.0), 5.371920351148152),
+}
 
 
 def expm_stack(x: np.ndarray) -> np.ndarray:
     """expm of each matrix of a stack (n, m, m), vectorised over the stack: scaling and
-    squaring with the [13/13] Pade approximant (Higham 2005, "The scaling and squaring method
-    for the matrix exponential revisited", SIAM J. Matrix Anal. Appl. 26:1179-1193), the
-    scaling chosen per matrix (scipy.linalg.expm does the same one matrix at a time)."""
+    squaring with [m/m] Pade approximants (Higham 2005, "The scaling and squaring method for
+    the matrix exponential revisited", SIAM J. Matrix Anal. Appl. 26:1179-1193): the lowest
+    order that serves the largest norm of the stack, else order 13 with each matrix scaled
+    by its own power of two (scipy.linalg.expm does the same one matrix at a time)."""
     x = np.asarray(x, dtype=float)
     if x.shape[0] == 0:
         return x.copy()
     norm = np.abs(x).sum(axis=1).max(axis=1)
-    squarings = np.maximum(0, np.ceil(np.log2(np.maximum(norm, 1e-300) / _THETA13))).astype(int)
+    order = next((m for m in (3, 5, 7, 9) if norm.max() <= _PADE[m][1]), 13)
+    squarings = np.zeros(x.shape[0], dtype=int)
+    if order == 13:
+        squarings = np.maximum(0, np.ceil(np.log2(np.maximum(norm, 1e-300) / _PADE[13][1]))).astype(int)
     a = x / (2.0 ** squarings)[:, None, None]
-    b = _PADE13
+    b = _PADE[order][0]
     eye = np.eye(x.shape[1])
     a2 = a @ a
-    a4 = a2 @ a2
-    a6 = a4 @ a2
-    u = a @ (a6 @ (b[13] * a6 + b[11] * a4 + b[9] * a2) + b[7] * a6 + b[5] * a4 + b[3] * a2
-             + b[1] * eye)
-    v = a6 @ (b[12] * a6 + b[10] * a4 + b[8] * a2) + b[6] * a6 + b[4] * a4 + b[2] * a2 + b[0] * eye
+    if order == 13:
+        a4 = a2 @ a2
+        a6 = a4 @ a2
+        u = a @ (a6 @ (b[13] * a6 + b[11] * a4 + b[9] * a2) + b[7] * a6 + b[5] * a4 + b[3] * a2
+                 + b[1] * eye)
+        v = a6 @ (b[12] * a6 + b[10] * a4 + b[8] * a2) + b[6] * a6 + b[4] * a4 + b[2] * a2 + b[0] * eye
+    else:
+        power, u, v = eye, b[1] * eye, b[0] * eye
+        for j in range(2, order + 1, 2):
+            power = power @ a2
+            u, v = u + b[j + 1] * power, v + b[j] * power
+        u = a @ u
     r = np.linalg.solve(v - u, v + u)
     for n in range(int(squarings.max())):
         more = squarings > n
@@ -94,10 +112,11 @@ def _frechet_adjoint(x: np.ndarray, e_bar: np.ndarray) -> np.ndarray:
     (Higham 2008, "Functions of Matrices", Theorem 3.6), one batched exponential
     (scipy.linalg.expm_frechet gives the same, one matrix at a time)."""
     n = x.shape[1]
+    size = np.maximum(np.abs(e_bar).sum(axis=1).max(axis=1), 1e-300)[:, None, None]
     big = np.zeros((x.shape[0], 2 * n, 2 * n))
     big[:, :n, :n] = big[:, n:, n:] = x.transpose(0, 2, 1)
-    big[:, :n, n:] = e_bar
-    return expm_stack(big)[:, :n, n:]
+    big[:, :n, n:] = e_bar / size             # L is linear in its direction: keep it small
+    return expm_stack(big)[:, :n, n:] * size
 
 
 def discrete_adjoint(a: np.ndarray, w: np.ndarray, intervals: np.ndarray, b_bar: np.ndarray,

@@ -70,6 +70,9 @@ def test_stacked_exponential_matches_scipy():
     expected = np.array([expm(m) for m in x])
     scale = np.maximum(np.abs(expected).max(axis=(1, 2), keepdims=True), 1.0)
     np.testing.assert_allclose(expm_stack(x) / scale, expected / scale, rtol=0, atol=1e-12)
+    for top in (0.01, 0.2, 0.9, 2.0):   # stacks served by the Pade orders 3, 5, 7 and 9
+        small = x / np.abs(x).sum(axis=1).max() * top
+        np.testing.assert_allclose(expm_stack(small), [expm(m) for m in small], rtol=0, atol=1e-14)
 
 
 def test_van_loan_matches_numerical_integration():
