@@ -7,7 +7,8 @@ with alpha_t = (eta_t, ..., eta_{t-q+1}, e_t), where e_t holds the unique parts 
 with a lag-1 autocorrelation d (e_t = d e_{t-1} + u_t, Var(u_t) = Theta (1 - d^2); such an
 item's unique variance moves from H into the state). T = blockdiag(companion(B_1..B_q),
 diag(d)), Q = blockdiag(Psi, 0, Theta (1 - d^2)), Z = [Lambda, 0, S] (S picks the item's
-unique part), H = Theta for the other items.
+unique part), H = Theta for the other items. T and Q may differ between steps: class
+c = plan.step[t] uses T_c, Q_c (unequal intervals in continuous time, `state_space_gradient`).
 
 At the first occasion of every segment the state restarts from its stationary distribution
 (transition 0, state noise = the stationary covariance P_0 = blockdiag(Sigma_x, Theta_d)),
