@@ -128,6 +128,16 @@ class ContinuousObjective:
         return self.layout.theta_from(continuous_start(named, self.spec, self.intervals.median),
                                       default=0.0)
 
+    def optimiser_scale(self, theta0: np.ndarray, sizes: np.ndarray,
+                        monitor: Monitor | None = None) -> np.ndarray:
+        """1 / sqrt of the observed information's diagonal at the start (the typical sizes
+        where it is not positive), kept within 1e-3..1e3 sizes: drift and diffusion trade off
+        strongly, and L-BFGS-B on the typical sizes alone needs several times the iterations."""
+        checkpoint(monitor, 0.0, "Scale of the parameters")
+        diagonal = np.diag(observed_information(self, theta0, sizes, monitor))
+        scale = np.where(diagonal > 0, 1.0 / np.sqrt(np.abs(diagonal)), sizes)
+        return np.clip(scale, 1e-3 * sizes, 1e3 * sizes)
+
     cheap_steps = False
 
     def step_information(self, theta: np.ndarray) -> None:

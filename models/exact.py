@@ -103,6 +103,10 @@ class ExactObjective:
         named, self.start_loglik = window_estimate(self.diary, self.spec, self.options, monitor)
         return self.layout.theta_from(named)
 
+    def optimiser_scale(self, theta0: np.ndarray, sizes: np.ndarray,
+                        monitor: Monitor | None = None) -> np.ndarray:
+        return sizes
+
     cheap_steps = False  # its information costs a gradient per parameter: the precise L-BFGS-B
 
     def step_information(self, theta: np.ndarray) -> None:
