@@ -31,8 +31,8 @@ from lagwise.models.bootstrap import MAX_REPLICATES, Bootstrap, bootstrap
 from lagwise.models.report import format_bootstrap, format_lag2, format_responses, format_result
 from lagwise.models.responses import DEFAULT_HORIZON, MAX_HORIZON, check_horizon, impulse_responses
 from lagwise.models.fitdocument import fit_document
-from lagwise.models.estimators import ERRORS, ESTIMATORS, MISSING, FitOptions
-from lagwise.models.limits import DEPTH, JOBS, MAX_ITER, NIGHT_GAP, SEED, Limit
+from lagwise.models.estimators import ERRORS, ESTIMATORS, INTERVAL_UNITS, MISSING, NIGHTS, FitOptions
+from lagwise.models.limits import DEPTH, JOBS, MAX_ITER, NIGHT_GAP, PROMPT_SPACING, SEED, Limit
 from lagwise.models.spec import ModelSpec, State, full_mask, inertia_mask
 
 
@@ -88,7 +88,9 @@ def add_estimation_arguments(parser: argparse.ArgumentParser) -> None:
                      help="stationary: lag windows, one stable process (default, fast); "
                           "first-copy-free: lag windows, no stable process assumed; "
                           "exact: Kalman filter over the whole series (exact likelihood, "
-                          "state scores)")
+                          "state scores); continuous-time: drift and diffusion of states that "
+                          "change continuously, for prompts at unequal intervals (needs --time "
+                          "COL or --prompt-spacing)")
     est.add_argument("--missing", choices=MISSING, default="fiml",
                      help="missed prompts and skipped items: fiml uses every answer "
                           "(full information, default); listwise keeps complete lag "
@@ -102,6 +104,15 @@ def add_estimation_arguments(parser: argparse.ArgumentParser) -> None:
     est.add_argument("--night-gap", type=in_range(NIGHT_GAP), metavar="N",
                      help="exact estimator: join the days with N missed prompts between them "
                           "instead of restarting each day")
+    est.add_argument("--interval-unit", choices=tuple(INTERVAL_UNITS),
+                     help="continuous-time estimator: the time unit of the drift and of the "
+                          "intervals (default hours)")
+    est.add_argument("--night", choices=NIGHTS,
+                     help="continuous-time estimator: restart the states each day (default) or "
+                          "carry them over the real night length (needs --time COL)")
+    est.add_argument("--prompt-spacing", type=in_range(PROMPT_SPACING), metavar="X",
+                     help="continuous-time estimator with --day/--prompt: prompts are X "
+                          "interval units apart (e.g. 1.5 with --interval-unit hours)")
     est.add_argument("--max-iter", type=in_range(MAX_ITER), default=FitOptions.max_iter,
                      metavar="N",
                      help=f"optimiser iterations at most (default {FitOptions.max_iter})")
@@ -166,7 +177,9 @@ def spec_from_args(args: argparse.Namespace) -> ModelSpec:
 def options_from_args(args: argparse.Namespace) -> FitOptions:
     """The estimator settings of the estimation options."""
     return FitOptions(estimator=args.estimator, missing=args.missing, depth=args.depth,
-                      night_gap=args.night_gap, max_iter=args.max_iter, se=args.se)
+                      night_gap=args.night_gap, max_iter=args.max_iter, se=args.se,
+                      interval_unit=args.interval_unit, night=args.night,
+                      prompt_spacing=args.prompt_spacing)
 
 
 def _with_paths(mask, names: list[str], texts: list[str]):

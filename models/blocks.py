@@ -6,7 +6,8 @@ Blocks (usual symbols): nu (intercepts), Lambda (loadings), Theta (unique varian
 or, in the partial-correlation form, innovation variances v and partial correlations rho with
 Psi = D R^-1 D, R = I - rho (off-diagonal), D = diag(sqrt(v / diag R^-1)) — and, for the
 first-copy-free estimator, Phi_F (free covariance of the oldest q copies) and c (latent
-intercepts of the regressed copies).
+intercepts of the regressed copies); for the continuous-time estimator, A (drift, row = the
+state that changes) and W = GG' (diffusion, as variances and covariances).
 
 Every rule works on all entries of a block at once: `index` is a tuple of integer arrays
 (one per matrix dimension) and `x` the entries' values.
@@ -96,6 +97,10 @@ FIRST_COPY = Block("phif", "phif", True, 1.0, "diagonal", VARIANCE_FLOOR, False,
 LATENT_INTERCEPT = Block("c", "c", False, 1.0, "", 0.0, False,
                          lambda x0, ix, v: np.full(x0.shape, np.sqrt(np.mean(v))),
                          lambda ix, s: 1.0 / s.sd_state[ix[0]])
+DRIFT = Block("A", "drift", False, 1.0, "", 0.0, False, _constant(0.5),
+              lambda ix, s: s.sd_state[ix[1]] / s.sd_state[ix[0]])
+DIFFUSION = Block("W", "diffusion", True, 1.0, "diagonal", VARIANCE_FLOOR, False, _covariance_size,
+                  lambda ix, s: 1.0 / (s.sd_state[ix[0]] * s.sd_state[ix[1]]))
 
 
 @dataclass(frozen=True)

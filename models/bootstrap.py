@@ -35,7 +35,7 @@ from lagwise.models.diary import Diary
 from lagwise.models.errors import EstimationError, FieldError, LagwiseError
 from lagwise.models.estimate import fit
 from lagwise.models.estimators import FitOptions
-from lagwise.models.kinds import LAGGED_KINDS, Kind
+from lagwise.models.kinds import PATH_KINDS, Kind
 from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.resampling import METHODS, Resampler, resampler
 from lagwise.models.results import FitResult, Parameter, _finite
@@ -144,10 +144,11 @@ class Bootstrap:
         raise KeyError((kind, from_, to))
 
     def stability(self, level: float = LEVEL) -> tuple[PathStability, ...]:
-        """Every free lagged path (inertia, cross-lagged, lag-2) in parameter order."""
+        """Every free lagged path (inertia, cross-lagged, lag-2; the drift in continuous time)
+        in parameter order."""
         out = []
         for j, interval in enumerate(self.percentile(level)):
-            if interval.kind not in LAGGED_KINDS:
+            if interval.kind not in PATH_KINDS:
                 continue
             sign = np.sign(interval.estimate)
             same = float(np.mean(np.sign(self.estimates[:, j]) == sign))

@@ -28,7 +28,7 @@ import numpy as np
 from lagwise.models.errors import DataError, EstimationError
 from lagwise.models.implied import NotAdmissible
 from lagwise.models.itemcheck import answered_moments, item_problem, item_scales, problem_columns
-from lagwise.models.kinds import LAGGED_KINDS, Kind
+from lagwise.models.kinds import PATH_KINDS, Kind
 from lagwise.models.numbers import fmt
 from lagwise.models.results import FitResult, Parameter, StateScores
 from lagwise.models.spec import ModelSpec
@@ -138,9 +138,9 @@ class Rescaling:
             return item(to)
         if kind == Kind.UNIQUE:
             return item(to) ** 2
-        if kind in LAGGED_KINDS:
+        if kind in PATH_KINDS:
             return unit(to) / unit(from_)
-        if kind in (Kind.INNOVATION, Kind.FIRST_COPY):
+        if kind in (Kind.INNOVATION, Kind.FIRST_COPY, Kind.DIFFUSION):
             return unit(from_) * unit(to)
         if kind == Kind.LATENT_INTERCEPT:
             return unit(to)

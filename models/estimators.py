@@ -18,7 +18,7 @@ import numpy as np
 
 from lagwise.models import jsonread as jr
 from lagwise.models.errors import FieldError, SpecError
-from lagwise.models.limits import DEPTH, MAX_ITER, MEMORY_BUDGET_BYTES, NIGHT_GAP
+from lagwise.models.limits import DEPTH, MAX_ITER, MEMORY_BUDGET_BYTES, NIGHT_GAP, PROMPT_SPACING
 
 if TYPE_CHECKING:  # type hints only: these modules import this one
     from lagwise.models.diary import Diary
@@ -56,6 +56,7 @@ class Estimator:
     errors: tuple[str, ...]         # standard errors it offers; the first is the default
     settings: tuple[str, ...]       # optional FitOptions fields it takes
     objective: str                  # "module:Class"
+    continuous: bool = False        # drift and diffusion instead of lagged paths and innovations
 
     def build(self, diary: "Diary", spec: "ModelSpec", options: "FitOptions",
               monitor: "Monitor | None" = None) -> Any:
@@ -69,7 +70,12 @@ class Estimator:
 SETTINGS = {s.field: s for s in (
     Setting("depth", "a window depth", "--depth"),
     Setting("night_gap", "a night gap", "--night-gap"),
+    Setting("interval_unit", "an interval unit", "--interval-unit"),
+    Setting("night", "a night handling", "--night"),
+    Setting("prompt_spacing", "a prompt spacing", "--prompt-spacing"),
 )}
+INTERVAL_UNITS = {"minutes": 1.0 / 60.0, "hours": 1.0, "days": 24.0}   # in hours
+NIGHTS = ("restart", "carry")
 ERRORS = {
     "robust": "robust (sandwich): overlapping windows and dependence within a day allowed for",
     "model": "model-based (inverse information)",
@@ -104,6 +110,16 @@ ESTIMATORS = {e.name: e for e in (
         "starts from the stationary estimate.",
         uses_windows=False, free_first_copies=False, missing=("fiml",), errors=("model",),
         settings=("night_gap",), objective="lagwise.models.exact:ExactObjective"),
+    Estimator(
+        "continuous-time", "Continuous time (Kalman filter, unequal intervals)",
+        "continuous-time likelihood (Kalman filter)",
+        "Treats the states as changing continuously: a drift matrix says how fast each state "
+        "returns to its level and pushes the others, so prompts at unequal intervals are "
+        "handled exactly (the effect over any interval follows from the drift). Needs the "
+        "time of each prompt, or a stated prompt spacing. Exact log-likelihood; slower.",
+        uses_windows=False, free_first_copies=False, missing=("fiml",), errors=("model",),
+        settings=("interval_unit", "night", "prompt_spacing"),
+        objective="lagwise.models.ctobjective:ContinuousObjective", continuous=True),
 )}
 DEFAULT_ESTIMATOR = "stationary"
 
@@ -118,6 +134,10 @@ def estimator(name: str) -> Estimator:
 
 def _error_choice(value: object, where: str) -> str | None:
     return None if value is None else jr.choice(value, where, tuple(ERRORS))
+
+
+def _optional_choice(value: object, where: str, choices: tuple[str, ...]) -> str | None:
+    return None if value is None else jr.choice(value, where, choices)
 
 
 def working_bytes(diary: "Diary", spec: "ModelSpec", options: "FitOptions"
@@ -177,8 +197,12 @@ class FitOptions:
     join the days with this many missed prompts between them (the states carry over the
     night) instead of restarting each day. max_iter: optimiser iterations at most.
     se: the standard errors shown, "robust" or "model" (None: the estimator's default, see
-    `standard_errors`). A setting the estimator does not take is refused with a plain message; `for_estimator`
-    switches estimator and drops what the new one does not take.
+    `standard_errors`). Continuous time only: interval_unit (minutes, hours (default) or days:
+    the unit of the drift), night ("restart" each day (default) or "carry" the states over
+    the real night length, which needs times), prompt_spacing (in interval units, for diaries
+    with day and prompt numbers). A setting the estimator does not take is refused with a
+    plain message; `for_estimator` switches estimator and drops what the new one does not
+    take.
     """
 
     estimator: str = DEFAULT_ESTIMATOR
@@ -187,6 +211,9 @@ class FitOptions:
     max_iter: int = 2000
     night_gap: int | None = None
     se: str | None = None
+    interval_unit: str | None = None
+    night: str | None = None
+    prompt_spacing: float | None = None
 
     def __post_init__(self) -> None:
         method = estimator(self.estimator)
@@ -210,6 +237,13 @@ class FitOptions:
         if self.night_gap is not None:
             NIGHT_GAP.check(self.night_gap)
         MAX_ITER.check(self.max_iter)
+        if self.interval_unit is not None and self.interval_unit not in INTERVAL_UNITS:
+            raise SpecError(f"Unknown interval unit '{self.interval_unit}' "
+                            f"(choose {', '.join(INTERVAL_UNITS)}).")
+        if self.night is not None and self.night not in NIGHTS:
+            raise SpecError(f"Unknown night handling '{self.night}' (choose {' or '.join(NIGHTS)}).")
+        if self.prompt_spacing is not None:
+            PROMPT_SPACING.check(self.prompt_spacing)
 
     @property
     def method(self) -> Estimator:
@@ -249,6 +283,9 @@ class FitOptions:
             jr.field("night_gap", jr.integer, None, low=NIGHT_GAP.low, high=NIGHT_GAP.high,
                      null=True),
             jr.field("se", _error_choice, None),
+            jr.field("interval_unit", _optional_choice, None, choices=tuple(INTERVAL_UNITS)),
+            jr.field("night", _optional_choice, None, choices=NIGHTS),
+            jr.field("prompt_spacing", jr.number, None, null=True),
         ))
         try:
             return cls(**fields)

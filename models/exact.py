@@ -98,10 +98,14 @@ class ExactObjective:
 
     # ----- what models.solution asks ----------------------------------------------------
     def start(self, monitor: Monitor | None = None) -> np.ndarray:
-        """The stationary window estimate (see `_window_start`)."""
+        """The stationary window estimate (see `window_estimate`)."""
         checkpoint(monitor, 0.0, "Window estimate for start values")
-        theta0, self.start_loglik = _window_start(self.diary, self.spec, self.options, self, monitor)
-        return theta0
+        named, self.start_loglik = window_estimate(self.diary, self.spec, self.options, monitor)
+        return self.layout.theta_from(named)
+
+    def optimiser_scale(self, theta0: np.ndarray, sizes: np.ndarray,
+                        monitor: Monitor | None = None) -> np.ndarray:
+        return sizes
 
     cheap_steps = False  # its information costs a gradient per parameter: the precise L-BFGS-B
 
@@ -154,10 +158,11 @@ def _join_days(values: np.ndarray, segment: np.ndarray, gap: int) -> tuple[np.nd
     return out, np.zeros(out.shape[0], dtype=int)
 
 
-def _window_start(diary: Diary, spec: ModelSpec, options: "FitOptions", objective: ExactObjective,
-                  monitor: Monitor | None) -> tuple[np.ndarray, float]:
-    """Start values: the stationary window estimate (the optimum only: its standard errors and
-    fit statistics are not needed here), and its window pseudo-log-likelihood."""
+def window_estimate(diary: Diary, spec: ModelSpec, options: "FitOptions",
+                    monitor: Monitor | None) -> tuple[dict, float]:
+    """Start values: the stationary window estimate named by (kind, from, to) (the optimum
+    only: its standard errors and fit statistics are not needed here), and its window
+    pseudo-log-likelihood."""
     window_options = options.for_estimator("stationary")
     windows = lag_windows(diary.select(spec.items), window_options.window_depth(spec))
     start = WindowObjective(windows, spec, window_options)
@@ -168,7 +173,7 @@ def _window_start(diary: Diary, spec: ModelSpec, options: "FitOptions", objectiv
     theta, _, _, _ = maximise(start, theta0, start.layout.sizes(theta0, start.item_var),
                               options.max_iter, monitor)
     named = {e.key: v for e, v in zip(start.layout.free_entries, theta)}
-    return objective.layout.theta_from(named), start.loglik(theta)
+    return named, start.loglik(theta)
 
 
 def _original_rows(diary: Diary, options: "FitOptions") -> np.ndarray:

@@ -8,8 +8,10 @@ has one node per prompt position, however many days it has. The nodes are made a
 a time while at least _SIDE_BY_SIDE segments are that long; beyond, each longer segment
 continues as a chain, one node per occasion. For the mean recursions, segments longer than
 max(_PIECE, sqrt(longest segment)) occasions are cut into pieces that run side by side
-(`Lanes`). The plan depends only on which values are missing and on the segments, so it is
-built once per diary and reused for every evaluation.
+(`Lanes`). The plan depends only on which values are missing, on the segments and, when the
+transition differs between steps (unequal intervals in continuous time), on each step's
+class: occasions reached by steps of different classes never share a node. It is built once
+per diary and reused for every evaluation.
 """
 
 from __future__ import annotations
@@ -32,7 +34,9 @@ class FilterPlan:
     Depends only on which values are missing and on the segments, so it is built once per
     diary and reused for every evaluation. History node j: the answered items
     `patterns[node_pattern[j]]`, the node of the previous occasion `node_parent[j]` (-1 at a
-    segment start); `occasion_node` (n,) gives each occasion's node. The nodes of position b
+    segment start), reached by a step of class `node_step[j]` (0 at segment starts and when all
+    steps are alike); `occasion_node` (n,) gives each occasion's node and `step` (n,) the class
+    of the step that reaches it. The nodes of position b
     are levels[b] = (lo, hi) for the first positions; those from levels[-1][1] on are chains,
     the rest of each longer segment: one node per occasion, each after its parent.
     """
@@ -41,7 +45,9 @@ class FilterPlan:
     patterns: np.ndarray          # (distinct answer patterns, p) bool
     node_pattern: np.ndarray
     node_parent: np.ndarray
+    node_step: np.ndarray
     occasion_node: np.ndarray
+    step: np.ndarray
     levels: tuple[tuple[int, int], ...]
     starts: np.ndarray            # segments, longest first: first occasion
     lengths: np.ndarray           # and number of occasions
@@ -54,9 +60,11 @@ class FilterPlan:
         return int(self.node_parent.size)
 
 
-def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
+def filter_plan(values: np.ndarray, segment: np.ndarray, step: np.ndarray | None = None
+                ) -> FilterPlan:
     """Build the plan of `values` (n, p) (NaN = unanswered) with segment ids (n,) (a new
-    segment starts where the id changes).
+    segment starts where the id changes) and optional step classes (n,) (non-negative ints,
+    the class of the transition into each occasion; ignored at segment starts).
 
     The history nodes are made a position at a time, vectorised over the segments, as long
     as at least _SIDE_BY_SIDE segments reach the position (the first position always); the
@@ -70,20 +78,27 @@ def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
     observed = ~np.isnan(y)
     patterns, pattern_of = _unique_rows(observed)
     n_pat = patterns.shape[0]
+    steps = np.zeros(n, dtype=np.int64) if step is None else np.asarray(step, np.int64).copy()
+    if steps.shape != (n,) or (n and steps.min() < 0):
+        raise EstimationError("One non-negative step class per occasion is needed.")
+    steps[starts] = 0
+    n_step = int(steps.max(initial=0)) + 1
+    pattern_of = pattern_of * n_step + steps     # (answered items, step class)
     node_prev = np.full(starts.size, -1, dtype=np.int64)
     occasion_node = np.empty(n, dtype=np.int64)
     levels, pattern_parts, parent_parts = [], [], []
+    n_key = n_pat * n_step
     depth = int(lengths[_SIDE_BY_SIDE - 1]) if lengths.size >= _SIDE_BY_SIDE else 1
     total = 0
     for b in range(depth):
         n_act = n_active(lengths, b)
         rows = starts[:n_act] + b
-        key = (node_prev[:n_act] + 1) * n_pat + pattern_of[rows]    # (parent, answered items)
+        key = (node_prev[:n_act] + 1) * n_key + pattern_of[rows]    # (parent, items, step)
         unique, inverse = np.unique(key, return_inverse=True)
         node_prev[:n_act] = occasion_node[rows] = total + inverse
         levels.append((total, total + unique.size))
-        pattern_parts.append(unique % n_pat)
-        parent_parts.append(unique // n_pat - 1)
+        pattern_parts.append(unique % n_key)
+        parent_parts.append(unique // n_key - 1)
         total += unique.size
     size = np.maximum(lengths - depth, 0)
     within = np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size)
@@ -94,10 +109,11 @@ def filter_plan(values: np.ndarray, segment: np.ndarray) -> FilterPlan:
     occasion_node[rows] = ids
     first = np.zeros(n, dtype=bool)
     first[starts] = True
-    return FilterPlan(observed=observed, patterns=patterns,
-                      node_pattern=np.concatenate(pattern_parts + [pattern_of[rows]]),
+    keys = np.concatenate(pattern_parts + [pattern_of[rows]])
+    return FilterPlan(observed=observed, patterns=patterns, node_pattern=keys // n_step,
                       node_parent=np.concatenate(parent_parts + [parent]),
-                      occasion_node=occasion_node, levels=tuple(levels), starts=starts,
+                      node_step=keys % n_step, occasion_node=occasion_node, step=steps,
+                      levels=tuple(levels), starts=starts,
                       lengths=lengths, later=np.flatnonzero(~first),
                       forward=_lanes(starts, lengths, 1),
                       backward=_lanes(starts + lengths - 1, lengths, -1))

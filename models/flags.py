@@ -19,6 +19,7 @@ class FlagCode(StrEnum):
     HEYWOOD = "heywood"
     ZERO_INNOVATION = "zero_innovation_variance"
     PARTIAL_BOUNDARY = "partial_correlation_boundary"
+    DRIFT_NOT_STABLE = "drift_not_stable"
     UNKNOWN = ""  # read from a file written before flags had codes
 
 
@@ -64,6 +65,16 @@ def stationarity(radius: float) -> list[Flag]:
         return [Flag(FlagCode.NEARLY_NOT_STATIONARY,
                      f"Nearly non-stationary: spectral radius {radius:.4f}, at the stationarity boundary.")]
     return []
+
+
+def drift_stability(largest_real_part: float) -> list[Flag]:
+    """A flag when the drift matrix has an eigenvalue whose real part is not negative."""
+    if largest_real_part < 0.0:
+        return []
+    return [Flag(FlagCode.DRIFT_NOT_STABLE,
+                 f"Not stable: the drift matrix has an eigenvalue with real part "
+                 f"{largest_real_part:.3g} (0 or more), so the states would not return to their "
+                 "levels; these estimates do not describe a stable process.")]
 
 
 def heywood(item: str) -> Flag:

@@ -7,7 +7,8 @@ with alpha_t = (eta_t, ..., eta_{t-q+1}, e_t), where e_t holds the unique parts 
 with a lag-1 autocorrelation d (e_t = d e_{t-1} + u_t, Var(u_t) = Theta (1 - d^2); such an
 item's unique variance moves from H into the state). T = blockdiag(companion(B_1..B_q),
 diag(d)), Q = blockdiag(Psi, 0, Theta (1 - d^2)), Z = [Lambda, 0, S] (S picks the item's
-unique part), H = Theta for the other items.
+unique part), H = Theta for the other items. T and Q may differ between steps: class
+c = plan.step[t] uses T_c, Q_c (unequal intervals in continuous time, `state_space_gradient`).
 
 At the first occasion of every segment the state restarts from its stationary distribution
 (transition 0, state noise = the stationary covariance P_0 = blockdiag(Sigma_x, Theta_d)),
@@ -115,14 +116,28 @@ class KalmanGradient:
 class _System:
     z: np.ndarray        # (p, m)
     h: np.ndarray        # (p,) diagonal of H
-    t: np.ndarray        # (m, m)
-    q: np.ndarray        # (m, m)
+    t: np.ndarray        # (step classes, m, m): the transition of each class of step
+    q: np.ndarray        # (step classes, m, m): its state noise
     p0: np.ndarray       # (m, m) stationary covariance of the state
-    k: int
-    kq: int              # size of the companion block
-    ac: np.ndarray       # items with an autocorrelated unique part (indices)
-    theta: np.ndarray
-    d: np.ndarray
+    k: int = 0
+    kq: int = 0          # size of the companion block
+    ac: np.ndarray | None = None   # items with an autocorrelated unique part (indices)
+    theta: np.ndarray | None = None
+    d: np.ndarray | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class SystemGradient:
+    """d loglik / d the state-space matrices (elements treated as independent): intercepts
+    (p,), z (p, m), h (p,), t and q (step classes, m, m), p0 (m, m)."""
+
+    loglik: float
+    intercepts: np.ndarray
+    z: np.ndarray
+    h: np.ndarray
+    t: np.ndarray
+    q: np.ndarray
+    p0: np.ndarray
 
 
 def _system(loadings, unique, lagged, innovation, unique_autocorrelation,
@@ -158,7 +173,7 @@ def _system(loadings, unique, lagged, innovation, unique_autocorrelation,
     p0 = np.zeros((m, m))
     p0[:kq, :kq] = sigma_x
     p0[kq:, kq:] = np.diag(theta[ac])
-    return _System(z=z, h=h, t=t, q=q, p0=p0, k=k, kq=kq, ac=ac, theta=theta, d=d)
+    return _System(z=z, h=h, t=t[None], q=q[None], p0=p0, k=k, kq=kq, ac=ac, theta=theta, d=d)
 
 
 # ----- per-occasion products with per-node matrices -----------------------------------------
@@ -187,12 +202,13 @@ class _Covariances:
     """The covariance recursion on the distinct nodes ("filter nodes").
 
     canon (history nodes,) maps each history node to its filter node; a filter node is
-    created from its parent's filtered covariance (parent -1: P_0) and the answered items
-    obs; batches lists (lo, hi) of filter nodes created together, in creation order.
+    created from its parent's filtered covariance (parent -1: P_0) by a step of class `step`
+    and the answered items obs; batches lists (lo, hi) of filter nodes created together, in creation order.
     """
 
     canon: np.ndarray
     parent: np.ndarray
+    step: np.ndarray     # (N,) class of the step into each filter node
     obs: np.ndarray
     batches: list[tuple[int, int]]
     p_pred: np.ndarray   # (N, m, m) P_t
@@ -225,25 +241,27 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
     cap = plan.n_nodes
     canon = [0] * cap
     parent, pattern = np.empty(cap, dtype=np.int64), np.empty(cap, dtype=np.int64)
+    step = np.zeros(cap, dtype=np.int64)
     p_pred, p_filt = np.empty((cap, m, m)), np.empty((cap, m, m))
     minv, zp, w = np.empty((cap, p, p)), np.empty((cap, p, m)), np.empty((cap, p, m))
     logdet = np.empty(cap)
     zb_pat = z * plan.patterns[:, :, None]
     hb_pat = np.where(plan.patterns, sys.h, 1.0)
     node_pattern, node_parent = plan.node_pattern.tolist(), plan.node_parent.tolist()
-    edges: dict[tuple[int, int], int] = {}
-    seen: dict[tuple[int, bytes], int] = {}
+    node_step = plan.node_step.tolist()
+    edges: dict[tuple[int, int, int], int] = {}
+    seen: dict[tuple[int, int, bytes], int] = {}
     batches = []
     size = 0
     rhs = np.zeros((p, m + p))
     rhs[:, m:] = np.eye(p)
 
-    def one(cp: int, pat: int) -> int:
-        """The filter node after filter node cp with the answered items pat (plain LAPACK:
-        numpy's overhead would dominate for a single node)."""
+    def one(cp: int, pat: int, st: int) -> int:
+        """The filter node after filter node cp by a step of class st with the answered
+        items pat (plain LAPACK: numpy's overhead would dominate for a single node)."""
         nonlocal size
-        pm = np.dot(np.dot(t, p_filt[cp]), t.T) + q
-        hit = edges[(cp, pat)] = seen.setdefault((pat, pm.tobytes()), size)
+        pm = np.dot(np.dot(t[st], p_filt[cp]), t[st].T) + q[st]
+        hit = edges[(cp, pat, st)] = seen.setdefault((pat, st, pm.tobytes()), size)
         if hit < size:
             return hit
         zb, zpb = zb_pat[pat], np.dot(zb_pat[pat], pm)
@@ -257,7 +275,7 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
         p_pred[size], p_filt[size] = pm, (pf + pf.T) * 0.5
         zp[size], w[size], minv[size] = zpb, x[:, :m], x[:, m:]
         logdet[size] = 2.0 * np.log(np.diagonal(chol)).sum()
-        parent[size], pattern[size] = cp, pat
+        parent[size], pattern[size], step[size] = cp, pat, st
         batches.append((size, size + 1))
         size += 1
         return hit
@@ -266,7 +284,7 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
         fresh, fresh_parent = [], []
         for j in range(first, last):
             cp = canon[node_parent[j]] if b else -1
-            hit = edges.get((cp, node_pattern[j]))
+            hit = edges.get((cp, node_pattern[j], node_step[j]))
             if hit is None:
                 fresh.append(j)
                 fresh_parent.append(cp)
@@ -277,15 +295,16 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
         if b == 0:
             pms = np.broadcast_to(sys.p0, (len(fresh), m, m))
         else:
-            pms = t @ p_filt[fresh_parent] @ t.T + q
+            ts = t[plan.node_step[fresh]]
+            pms = ts @ p_filt[fresh_parent] @ ts.transpose(0, 2, 1) + q[plan.node_step[fresh]]
         lo = size
         for j, cp, pm in zip(fresh, fresh_parent, pms):
-            pat = node_pattern[j]
-            hit = seen.setdefault((pat, pm.tobytes()), size)
+            pat, st = node_pattern[j], node_step[j]
+            hit = seen.setdefault((pat, st, pm.tobytes()), size)
             if hit == size:
-                p_pred[size], parent[size], pattern[size] = pm, cp, pat
+                p_pred[size], parent[size], pattern[size], step[size] = pm, cp, pat, st
                 size += 1
-            canon[j] = edges[(cp, pat)] = hit
+            canon[j] = edges[(cp, pat, st)] = hit
         if size == lo:
             continue
         hi = size
@@ -305,14 +324,14 @@ def _covariances(plan: FilterPlan, sys: _System) -> _Covariances:
         zp[lo:hi], w[lo:hi], minv[lo:hi] = zpb, wb, mi
         logdet[lo:hi] = 2.0 * np.log(np.diagonal(chol, axis1=1, axis2=2)).sum(axis=1)
     for j in range(plan.levels[-1][1], cap):
-        cp, pat = canon[node_parent[j]], node_pattern[j]
-        hit = edges.get((cp, pat))
-        canon[j] = one(cp, pat) if hit is None else hit
+        cp, pat, st = canon[node_parent[j]], node_pattern[j], node_step[j]
+        hit = edges.get((cp, pat, st))
+        canon[j] = one(cp, pat, st) if hit is None else hit
     if not np.all(np.isfinite(logdet[:size])):
         raise EstimationError(_NOT_PD)
     pattern = pattern[:size]
     return _Covariances(canon=np.array(canon, dtype=np.int64), parent=parent[:size],
-                        obs=plan.patterns[pattern], batches=batches, p_pred=p_pred[:size],
+                        step=step[:size], obs=plan.patterns[pattern], batches=batches, p_pred=p_pred[:size],
                         p_filt=p_filt[:size], minv=minv[:size], zp=zp[:size], w=w[:size],
                         zb=zb_pat[pattern], logdet=logdet[:size])
 
@@ -376,13 +395,13 @@ def _run(plan: FilterPlan, values, intercepts, sys: _System) -> _Pass:
     observed = plan.observed
     centred = np.where(observed, y - np.asarray(intercepts, dtype=float).reshape(p), 0.0)
     cov = _covariances(plan, sys)
-    t, m = sys.t, sys.t.shape[0]
+    t, m = sys.t, sys.t.shape[1]
     node = cov.canon[plan.occasion_node]
-    closed = (np.eye(m) - cov.w.transpose(0, 2, 1) @ cov.zb) @ t
+    closed = (np.eye(m) - cov.w.transpose(0, 2, 1) @ cov.zb) @ t[cov.step]
     a_filt = _apply(cov.w, node, centred, transpose=True)   # W' (y - nu): the part without a_t
     _recursion(plan.forward, closed, node, a_filt)
     a_pred = np.zeros((n, m))
-    a_pred[plan.later] = a_filt[plan.later - 1] @ t.T
+    a_pred[plan.later] = _apply(t, plan.step[plan.later], a_filt[plan.later - 1])
     r = centred - np.where(observed, a_pred @ sys.z.T, 0.0)
     u = _apply(cov.minv, node, r)
     logdet = float(cov.logdet @ np.bincount(node, minlength=cov.size))
@@ -428,7 +447,7 @@ def kalman_smooth(values: np.ndarray, segment: np.ndarray, intercepts: np.ndarra
     run = _run(plan, values, intercepts, sys)
     cov, node = run.cov, run.node
     # T' P_t+1|t^+ per filter node; P_pred may be singular (exact items): pseudo-inverse
-    tpinv = sys.t.T @ np.linalg.pinv(cov.p_pred, hermitian=True)
+    tpinv = sys.t[cov.step].transpose(0, 2, 1) @ np.linalg.pinv(cov.p_pred, hermitian=True)
     a_s, p_s = run.a_filt.copy(), cov.p_filt[node]
     for b in reversed(range(int(plan.lengths[0]) - 1)):
         rows = plan.starts[:n_active(plan.lengths, b + 1)] + b
@@ -467,15 +486,40 @@ def kalman_gradient(values: np.ndarray, segment: np.ndarray, intercepts: np.ndar
     """
     plan = _prepared(values, segment, plan)
     sys = _system(loadings, unique, lagged, innovation, unique_autocorrelation, autocorrelated)
+    g = _system_gradient(plan, values, intercepts, sys)
+    return _to_matrices(sys, g.loglik, g.z, g.h, g.intercepts, g.t[0], g.q[0], g.p0, len(lagged))
+
+
+def state_space_loglik(values: np.ndarray, plan: FilterPlan, intercepts: np.ndarray,
+                       z: np.ndarray, h: np.ndarray, t: np.ndarray, q: np.ndarray,
+                       p0: np.ndarray) -> float:
+    """Exact log-likelihood of a state-space model whose transition differs between steps:
+    y_t = nu + Z alpha_t + v_t (H = diag(h)), alpha_t = T_c alpha_t-1 + w_t (Var Q_c) with c =
+    plan.step[t] (the plan built with those step classes), alpha ~ N(0, P_0) at segment starts.
+    t, q: (classes, m, m)."""
+    return _run(plan, values, intercepts, _System(z=z, h=h, t=t, q=q, p0=p0)).loglik
+
+
+def state_space_gradient(values: np.ndarray, plan: FilterPlan, intercepts: np.ndarray,
+                         z: np.ndarray, h: np.ndarray, t: np.ndarray, q: np.ndarray,
+                         p0: np.ndarray) -> SystemGradient:
+    """The log-likelihood of `state_space_loglik` and its gradient with respect to every
+    element of the state-space matrices (reverse mode, as `kalman_gradient`)."""
+    return _system_gradient(plan, values, intercepts, _System(z=z, h=h, t=t, q=q, p0=p0))
+
+
+def _system_gradient(plan: FilterPlan, values, intercepts, sys: _System) -> SystemGradient:
     run = _run(plan, values, intercepts, sys)
     cov, node, closed = run.cov, run.node, run.closed
     z, t = sys.z, sys.t
     observed = plan.observed
     n, p = observed.shape
-    m = t.shape[0]
+    n_step, m = t.shape[:2]
+    later_step = plan.step[plan.later]
     # means: a_t|t = a_t + (ZP)' u, u = M r, r = obs * (y - nu - Z a_t), a_t+1 = T a_t|t
     zu = run.u @ z
-    tzu = zu @ t
+    tzu = np.zeros((n, m))
+    tzu[plan.later] = _apply(t, later_step, zu[plan.later], transpose=True)
     afbar = np.zeros((n, m))                     # adjoint of a_t|t
     afbar[plan.later - 1] = tzu[plan.later]
     _recursion(plan.backward, closed.transpose(0, 2, 1), np.append(node[1:], 0), afbar)
@@ -484,7 +528,9 @@ def kalman_gradient(values: np.ndarray, segment: np.ndarray, intercepts: np.ndar
     abar = afbar - rb @ z                        # adjoint of a_t
     nubar = -rb.sum(axis=0)
     zbar = -rb.T @ run.a_pred
-    tbar = abar[plan.later].T @ run.a_filt[plan.later - 1]
+    by_step = sparse.csc_array((np.ones(plan.later.size), later_step,
+                                np.arange(plan.later.size + 1)), shape=(n_step, plan.later.size))
+    tbar = _node_sums(by_step, abar[plan.later], run.a_filt[plan.later - 1])
     # covariances: the sums over each filter node's occasions of the adjoints of ZP and F
     size = cov.size
     pick = sparse.csc_array((np.ones(n), node, np.arange(n + 1)), shape=(size, n))
@@ -493,7 +539,8 @@ def kalman_gradient(values: np.ndarray, segment: np.ndarray, intercepts: np.ndar
     s_f -= 0.5 * np.bincount(node, minlength=size)[:, None, None] * cov.minv
     zb, w = cov.zb, cov.w
     e = _sym(zb.transpose(0, 2, 1) @ (s_f @ zb + s_zp))
-    d = t.T @ e @ t
+    tn = t[cov.step]                             # the transition into each filter node
+    d = tn.transpose(0, 2, 1) @ e @ tn
     s = np.zeros((size, m, m))                   # symmetric adjoint of P_t|t
     parent = cov.parent
     for lo, hi in reversed(cov.batches):
@@ -515,11 +562,13 @@ def kalman_gradient(values: np.ndarray, segment: np.ndarray, intercepts: np.ndar
     zbbar = (fbar + fbar.transpose(0, 2, 1)) @ zb @ pm + zpbar @ pm
     zbar += np.sum(cov.obs[:, :, None] * zbbar, axis=0)
     later = parent >= 0
-    pl = pbar[later]
-    tbar += 2.0 * np.sum(pl @ t @ cov.p_filt[parent[later]], axis=0)
-    qbar = pl.sum(axis=0)
+    pl, st = pbar[later], cov.step[later]
+    np.add.at(tbar, st, 2.0 * pl @ tn[later] @ cov.p_filt[parent[later]])
+    qbar = np.zeros((n_step, m, m))
+    np.add.at(qbar, st, pl)
     p0bar = pbar[~later].sum(axis=0)
-    return _to_matrices(sys, run.loglik, zbar, hbar, nubar, tbar, qbar, p0bar, len(lagged))
+    return SystemGradient(loglik=run.loglik, intercepts=nubar, z=zbar, h=hbar, t=tbar, q=qbar,
+                          p0=p0bar)
 
 
 def _to_matrices(sys: _System, loglik, zbar, hbar, nubar, tbar, qbar, p0bar, q: int
@@ -538,7 +587,7 @@ def _to_matrices(sys: _System, loglik, zbar, hbar, nubar, tbar, qbar, p0bar, q: 
     if q == 0:
         g_psi += p0bar[:k, :k]
     else:
-        a = sys.t[:kq, :kq]
+        a = sys.t[0, :kq, :kq]
         g = p0bar[:kq, :kq]
         wl = solve_lyapunov(a.T, (g + g.T) / 2.0)   # W = A' W A + G
         g_psi += wl[:k, :k]

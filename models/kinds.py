@@ -25,6 +25,8 @@ class Kind(StrEnum):
     PARTIAL_CORRELATION = "partial_correlation"
     FIRST_COPY = "first_copy"
     LATENT_INTERCEPT = "latent_intercept"
+    DRIFT = "drift"
+    DIFFUSION = "diffusion"
 
     @property
     def title(self) -> str:
@@ -47,6 +49,8 @@ _TITLES = {
     Kind.PARTIAL_CORRELATION: "Partial correlations of innovations",
     Kind.FIRST_COPY: "Covariance of the oldest window copies (first-copy-free)",
     Kind.LATENT_INTERCEPT: "Latent intercepts of the later window copies (first-copy-free)",
+    Kind.DRIFT: "Drift (state -> rate of change of state; auto-effects on the diagonal)",
+    Kind.DIFFUSION: "Diffusion (variances and covariances of the continuous innovations)",
 }
 _LABELS = {
     Kind.LOADING: "Loading",
@@ -60,8 +64,11 @@ _LABELS = {
     Kind.PARTIAL_CORRELATION: "Innovation partial correlation",
     Kind.FIRST_COPY: "Oldest-copy covariance",
     Kind.LATENT_INTERCEPT: "Latent intercept",
+    Kind.DRIFT: "Drift",
+    Kind.DIFFUSION: "Diffusion (co)variance",
 }
 LAGGED_KINDS = (Kind.INERTIA, Kind.CROSS_LAGGED, Kind.LAG2)
+PATH_KINDS = (*LAGGED_KINDS, Kind.DRIFT)   # effects between states, discrete or continuous
 
 
 def parameter_words(kind: str, from_: str, to: str, lag: int = 0) -> str:
@@ -82,6 +89,11 @@ def parameter_words(kind: str, from_: str, to: str, lag: int = 0) -> str:
         return f"{to}: variance" if from_ == to else f"{from_} with {to}: covariance"
     if kind == Kind.PARTIAL_CORRELATION:
         return f"{from_} with {to}: partial correlation"
+    if kind == Kind.DRIFT:
+        return f"{to}: auto-effect (drift)" if from_ == to else f"{from_} → change of {to}"
+    if kind == Kind.DIFFUSION:
+        return (f"{to}: diffusion variance" if from_ == to
+                else f"{from_} with {to}: diffusion covariance")
     if kind == Kind.LATENT_INTERCEPT:
         return f"{to}: latent intercept (later copies)"
     return f"{to}: variance (oldest copy)" if from_ == to else \

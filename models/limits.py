@@ -61,6 +61,7 @@ NIGHT_GAP = Limit("night gap", 0, 1000, "prompts")
 MAX_ITER = Limit("number of optimiser iterations", 1, 10_000_000)
 MAX_GAP_MINUTES = Limit("longest gap within a segment", 0, 1e8, "minutes", whole=False,
                         above=True)
+PROMPT_SPACING = Limit("prompt spacing", 0, 1e6, "interval units", whole=False, above=True)
 PROMPTS_PER_DAY = Limit("number of prompts per day", 1, 1000)
 JOBS = Limit("number of worker processes", 1, 1024)
 SEED = Limit("seed", 0, 2 ** 63 - 1)

@@ -143,6 +143,10 @@ class WindowObjective:
     def start(self, monitor: Monitor | None = None) -> np.ndarray:
         return self.layout.pack(start_matrices(self.layout, self.rows, self.depth))
 
+    def optimiser_scale(self, theta0: np.ndarray, sizes: np.ndarray,
+                        monitor: Monitor | None = None) -> np.ndarray:
+        return sizes
+
     def preflight(self) -> list[Flag]:
         """Refuse what cannot be estimated; warn when the windows are few."""
         n, n_free, width = self.n_rows, self.layout.n_free, self.data.width

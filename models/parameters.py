@@ -6,7 +6,11 @@ matrices live in one flat buffer, and each entry is a position in it (plus the p
 mirror for symmetric blocks). Unpacking writes the free vector into the buffer with one
 indexed assignment; packing reads it back; the gradient of a free value is the sum of the
 matrix gradients at its position and its mirror, times the block's sign. The partial-
-correlation form is chained through Psi = D R^-1 D first (see `partial_to_psi`).
+correlation form is chained through Psi = D R^-1 D first (see `partial_to_psi`). In the
+continuous-time layout the free values are the drift A and diffusion W; unpacking also fills
+the lag-1 paths and innovations with their discrete values over the layout's reference
+interval, B = expm(A D) and Q(D) (models.drift), so the shared solution step (stationary
+covariance, standardization) reads them like a lag-1 model.
 """
 
 from __future__ import annotations
@@ -17,6 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from lagwise.models.blocks import Block, Entry, Scales
+from lagwise.models.drift import discrete_system
 from lagwise.models.spec import ModelSpec
 
 
@@ -34,6 +39,8 @@ class Matrices:
     c: np.ndarray | None = None     # (k,), first-copy-free only: latent intercepts
     pv: np.ndarray | None = None    # partial form: innovation variances
     rmat: np.ndarray | None = None  # partial form: R = I - rho
+    drift: np.ndarray | None = None      # (k, k), continuous time: A
+    diffusion: np.ndarray | None = None  # (k, k), continuous time: W = GG'
 
 
 @dataclass
@@ -49,9 +56,12 @@ class Gradients:
     psi: np.ndarray
     phif: np.ndarray | None = None
     c: np.ndarray | None = None
+    drift: np.ndarray | None = None
+    diffusion: np.ndarray | None = None
 
 
-_GRADIENT_BLOCKS = frozenset(("nu", "lam", "theta", "d", "lagged", "psi", "phif", "c"))
+_GRADIENT_BLOCKS = frozenset(("nu", "lam", "theta", "d", "lagged", "psi", "phif", "c", "drift",
+                              "diffusion"))
 
 
 def _zeros(n: int) -> np.ndarray:
@@ -84,18 +94,23 @@ class ParameterLayout:
     item_variances fix the unique variance of single-item states given a reliability
     (default: ones, enough for counting and naming); `fixed_values` holds each entry's fixed
     value (NaN for free entries). free_first_copies: the first-copy-free estimator's blocks.
+    interval: the continuous-time model, with this reference interval (see the module
+    docstring).
     """
 
     def __init__(self, spec: ModelSpec, item_variances: np.ndarray | None = None,
-                 free_first_copies: bool = False):
+                 free_first_copies: bool = False, interval: float | None = None):
         self.spec = spec
         self.free_first_copies = bool(free_first_copies and spec.lags > 0)
+        self.interval = interval
         self.items = spec.items
         self.states = spec.state_names
-        self.p, self.k, self.q = len(self.items), spec.k, spec.lags
-        self.partial = spec.innovations == "partial"
+        self.p, self.k = len(self.items), spec.k
+        self.q = 1 if interval is not None else spec.lags
+        self.partial = spec.innovations == "partial" and interval is None
         item_var = np.ones(self.p) if item_variances is None else np.asarray(item_variances, float)
-        self.entries: tuple[Entry, ...] = spec.parameters(self.free_first_copies)
+        self.entries: tuple[Entry, ...] = spec.parameters(self.free_first_copies,
+                                                          interval is not None)
         self.free_entries = tuple(e for e in self.entries if e.free)
         self.n_free = len(self.free_entries)
         self._shapes = self._matrix_shapes()
@@ -138,6 +153,8 @@ class ParameterLayout:
             shapes.update(pv=(k,), rmat=(k, k))
         if self.free_first_copies:
             shapes.update(phif=(q * k, q * k), c=(k,))
+        if self.interval is not None:
+            shapes.update(drift=(k, k), diffusion=(k, k))
         return shapes
 
     def _matrix(self, buffer: np.ndarray, name: str) -> np.ndarray:
@@ -177,6 +194,9 @@ class ParameterLayout:
                         for name, (lo, hi, shape) in self._slices.items()})
         if self.partial:
             m.psi[...] = partial_to_psi(m.pv, m.rmat)
+        if self.interval is not None:
+            b, q = discrete_system(m.drift, m.diffusion, np.array([self.interval]))
+            m.lagged[0], m.psi[...] = b[0], q[0]
         return m
 
     def pack(self, m: Matrices) -> np.ndarray:

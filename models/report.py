@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from lagwise.models.bootstrap import Bootstrap
+from lagwise.models.ctresults import effects_by_interval
 from lagwise.models.estimators import ERRORS
 from lagwise.models.kinds import Kind
 from lagwise.models.lag2check import Lag2Check
@@ -32,6 +33,8 @@ def format_result(result: FitResult) -> str:
                   + ("" if p.free else "  (fixed)")] for p in rows]
         lines += table(["from", "to", "estimate", "SE", "p", "std", " 95% interval"], cells,
                        "<<>>>><")
+    if result.continuous is not None:
+        lines += format_continuous(result)
     f = result.fit
     lines.append("")
     label = "exact likelihood of the series" if f.exact else "window pseudo-likelihood"
@@ -63,6 +66,29 @@ def format_result(result: FitResult) -> str:
     lines.append("Cautions")
     lines += [f"  * {c}" for c in result.cautions]
     return "\n".join(lines)
+
+
+def format_continuous(result: FitResult) -> list[str]:
+    """The time settings of a continuous-time fit and its effects B(D) = expm(A D) over
+    whole hours (from the default grid), with delta-method 95% bands."""
+    ct = result.continuous
+    effects = effects_by_interval(result)
+    lines = ["", f"Time: drift per {ct.unit[:-1]}; intervals between prompts {fmt(ct.shortest)} to "
+                 f"{fmt(ct.longest)} {ct.unit}, median {fmt(ct.median_interval)}; nights "
+                 f"{'carried over' if ct.night == 'carry' else 'restart the states'}",
+             f"  the lag-1 paths and innovations used by responses are those over the median "
+             f"interval ({fmt(ct.median_interval)} {ct.unit})",
+             "", f"Effects over an interval (state at t -> state at t + interval; 95% delta-method bands)"]
+    states = result.states
+    cells = []
+    step = max(1, (effects.intervals.size - 1) // 8)
+    for g in range(step, effects.intervals.size, step):
+        for i, to in enumerate(states):
+            cells.append([fmt(effects.intervals[g]), to] + [
+                f"{fmt(effects.values[g, i, j])} [{fmt(effects.lower[g, i, j])}, "
+                f"{fmt(effects.upper[g, i, j])}]" for j in range(len(states))])
+    lines += table([ct.unit, "to \\ from", *states], cells, ">" + "<" * (len(states) + 1))
+    return lines
 
 
 def format_lag2(check: Lag2Check) -> str:

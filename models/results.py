@@ -16,6 +16,7 @@ import numpy as np
 from scipy.stats import norm
 
 from lagwise.models import jsonread as jr
+from lagwise.models.ctresults import ContinuousTime, continuous_json
 from lagwise.models.errors import FieldError, SpecError
 from lagwise.models.estimators import FitOptions
 from lagwise.models.flags import Flag, FlagCode
@@ -273,6 +274,7 @@ class FitResult:
     covariance: np.ndarray | None = None     # of the free parameters (order of free_parameters)
     se_method: str = "model"                 # what `se` is: "robust" (sandwich) or "model"
     optimiser_message: str = ""              # the optimiser's own words; `message` says it plainly
+    continuous: ContinuousTime | None = None  # continuous-time estimator: its time settings
 
     @property
     def items(self) -> tuple[str, ...]:
@@ -308,6 +310,8 @@ class FitResult:
                 out["state_scores"] = self.state_scores.to_json()
             if self.start_loglik_windows is not None:
                 out["start_loglik_windows"] = self.start_loglik_windows
+            if self.continuous is not None:
+                out["continuous"] = self.continuous.to_json()
         return out
 
     @property
@@ -369,6 +373,7 @@ class FitResult:
                 "r_squared": self.r_squared.tolist(),
             },
             "extras": self.extras,
+            **({} if self.continuous is None else continuous_json(self)),
         })
 
     @classmethod
@@ -405,6 +410,7 @@ class FitResult:
             jr.field("depth", jr.integer, None, low=0, high=50, null=True),
             jr.field("state_scores", _state_scores, None),
             jr.field("start_loglik_windows", jr.number, None, null=True),
+            jr.field("continuous", ContinuousTime.from_json, None),
         )))
         n_free = sum(q.free for q in fields["parameters"])
         if fields["covariance"] is not None:

@@ -22,6 +22,7 @@ from datetime import date, timedelta
 import numpy as np
 
 from lagwise.models.diary import Diary
+from lagwise.models.drift import discrete_system, stationary_covariance
 from lagwise.models.errors import SpecError
 from lagwise.models.lyapunov import companion_covariance
 from lagwise.models.spec import ModelSpec
@@ -129,3 +130,37 @@ def _psd_factor(m: np.ndarray) -> np.ndarray:
     """A factor F with F F' = m for a positive semi-definite m."""
     w, v = np.linalg.eigh((m + m.T) / 2.0)
     return v * np.sqrt(np.clip(w, 0.0, None))
+
+
+def simulate_continuous(spec: ModelSpec, *, loadings: np.ndarray, intercepts: np.ndarray,
+                        unique: np.ndarray, drift: np.ndarray, diffusion: np.ndarray,
+                        hours: Sequence[np.ndarray], p_missed: float = 0.0,
+                        seed: int | np.random.Generator | None = None) -> Diary:
+    """Draw a timestamped diary from the continuous-time model d eta = A eta dt + G dW
+    (models.drift): day d has prompts at `hours[d]` (increasing, hours after midnight), each
+    day starts from the stationary distribution and steps exactly by B(D), Q(D). A prompt is
+    missed (whole occasion NaN) with probability `p_missed`."""
+    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+    lam = np.asarray(loadings, dtype=float)
+    a, w = np.asarray(drift, dtype=float), np.asarray(diffusion, dtype=float)
+    k = a.shape[0]
+    rows, days, stamps = [], [], []
+    for d, day_hours in enumerate(hours):
+        h = np.asarray(day_hours, dtype=float)
+        b, q = discrete_system(a, w, np.diff(h))
+        eta = rng.multivariate_normal(np.zeros(k), stationary_covariance(a, w))
+        for n in range(h.size):
+            if n:
+                eta = b[n - 1] @ eta + _psd_factor(q[n - 1]) @ rng.standard_normal(k)
+            rows.append(eta)
+        days += [d] * h.size
+        stamps += list(np.datetime64("2026-01-05") + np.timedelta64(d, "D")
+                       + np.round(h * 3.6e12).astype("timedelta64[ns]"))
+    eta = np.array(rows)
+    y = intercepts + eta @ lam.T + rng.standard_normal((eta.shape[0], lam.shape[0])) * np.sqrt(unique)
+    y[rng.random(y.shape[0]) < p_missed] = np.nan
+    day = np.array(days)
+    return Diary(items=spec.items, values=y, segment=day.copy(), day=day,
+                 day_labels=tuple(f"day {i + 1}" for i in range(len(hours))),
+                 prompt=np.full(day.size, np.nan), time=np.array(stamps, dtype="datetime64[ns]"),
+                 source="simulated")

@@ -56,6 +56,9 @@ class Objective(Protocol):
 
     def start(self, monitor: Monitor | None) -> np.ndarray: ...
 
+    def optimiser_scale(self, theta0: np.ndarray, sizes: np.ndarray,
+                        monitor: Monitor | None) -> np.ndarray: ...   # at a start of its own
+
     def information(self, theta: np.ndarray, sizes: np.ndarray,
                     monitor: Monitor | None) -> np.ndarray: ...
 
@@ -149,7 +152,9 @@ def _solve(objective: Objective, notes: list[str], monitor: Monitor | None,
     # information): a rough optimum, then Newton steps until they settle (else the precise
     # optimiser finishes and the steps are tried again). Others: the precise optimiser.
     cheap = objective.cheap_steps
-    theta, ok, message, iterations = maximise(objective, theta0, start_scale(start, layout, sizes),
+    scale = (objective.optimiser_scale(theta0, sizes, monitor) if start is None
+             else start_scale(start, layout, sizes))
+    theta, ok, message, iterations = maximise(objective, theta0, scale,
                                               options.max_iter, scaled(monitor, 0.3, 0.75),
                                               precise=not cheap)
     steps = 0

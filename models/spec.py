@@ -153,30 +153,19 @@ class ModelSpec:
         return replace(self, states=tuple(states), paths=tuple(masks), partial_zeros=zeros)
 
     # ----- the parameters --------------------------------------------------------------
-    def parameters(self, free_first_copies: bool = False) -> tuple[Entry, ...]:
+    def parameters(self, free_first_copies: bool = False, continuous: bool = False
+                   ) -> tuple[Entry, ...]:
         """Every parameter of the model, free or fixed, in the order of the free vector:
         loadings, intercepts, unique variances, unique autocorrelations, lagged paths,
         innovations (covariances, or variances and partial correlations), and for the
-        first-copy-free estimator the oldest copies' covariance and the latent intercepts."""
+        first-copy-free estimator the oldest copies' covariance and the latent intercepts.
+        continuous: the continuous-time model, whose drift takes the lag-1 paths' places (a
+        fixed path is a drift of 0) and whose diffusion covariances take the innovations'."""
+        if continuous:
+            return self._measurement() + self._continuous_dynamics()
         items, states = self.items, self.state_names
         k, q = self.k, self.lags
-        out: list[Entry] = []
-        marker_id = self.identification == "marker"
-        for j, s in enumerate(self.states):
-            for it in s.items:
-                fixed = marker_id and it == s.marker_item
-                out.append(Entry(Kind.LOADING, s.name, it, 0, blocks.LAMBDA, (items.index(it), j),
-                                 not fixed, 1.0))
-        for i, it in enumerate(items):
-            out.append(Entry(Kind.INTERCEPT, it, it, 0, blocks.NU, (i,), True))
-        single = {s.items[0] for s in self.states if len(s.items) == 1}
-        for i, it in enumerate(items):
-            rel = self.reliability_of(it)
-            if it in single:  # measured without error, or with the given reliability
-                out.append(Entry(Kind.UNIQUE, it, it, 0, blocks.THETA, (i,), False,
-                                 0.0 if rel is None else 1.0 - rel, per_item_variance=rel is not None))
-            else:
-                out.append(Entry(Kind.UNIQUE, it, it, 0, blocks.THETA, (i,), True))
+        out: list[Entry] = list(self._measurement())
         for it in self.unique_autocorrelation:
             out.append(Entry(Kind.UNIQUE_AUTOCORRELATION, it, it, 1, blocks.UNIQUE_AR,
                              (items.index(it),), True))
@@ -212,10 +201,46 @@ class ModelSpec:
                 out.append(Entry(Kind.LATENT_INTERCEPT, s, s, 0, blocks.LATENT_INTERCEPT, (i,), True))
         return tuple(out)
 
+    def _measurement(self) -> tuple[Entry, ...]:
+        """Loadings, intercepts and unique variances."""
+        items = self.items
+        out: list[Entry] = []
+        marker_id = self.identification == "marker"
+        for j, s in enumerate(self.states):
+            for it in s.items:
+                fixed = marker_id and it == s.marker_item
+                out.append(Entry(Kind.LOADING, s.name, it, 0, blocks.LAMBDA, (items.index(it), j),
+                                 not fixed, 1.0))
+        for i, it in enumerate(items):
+            out.append(Entry(Kind.INTERCEPT, it, it, 0, blocks.NU, (i,), True))
+        single = {s.items[0] for s in self.states if len(s.items) == 1}
+        for i, it in enumerate(items):
+            rel = self.reliability_of(it)
+            if it in single:  # measured without error, or with the given reliability
+                out.append(Entry(Kind.UNIQUE, it, it, 0, blocks.THETA, (i,), False,
+                                 0.0 if rel is None else 1.0 - rel, per_item_variance=rel is not None))
+            else:
+                out.append(Entry(Kind.UNIQUE, it, it, 0, blocks.THETA, (i,), True))
+        return tuple(out)
+
+    def _continuous_dynamics(self) -> tuple[Entry, ...]:
+        """Drift (free where the lag-1 path is) and diffusion (variances and covariances, free
+        as the innovations would be; the partial form has free covariances)."""
+        states, mask = self.state_names, self.path_mask(1)
+        var_id = self.identification == "variance"
+        out = [Entry(Kind.DRIFT, fr, to, 0, blocks.DRIFT, (i, j), bool(mask[i, j]))
+               for i, to in enumerate(states) for j, fr in enumerate(states)]
+        for i in range(self.k):
+            for j in range(i + 1):
+                free = not var_id if i == j else self.innovations != "independent"
+                out.append(Entry(Kind.DIFFUSION, states[j], states[i], 0, blocks.DIFFUSION,
+                                 (i, j), free, 1.0 if i == j else 0.0))
+        return tuple(out)
+
     def n_free(self, estimator_name: str = "stationary") -> int:
         """Number of free parameters when estimated with `estimator_name`."""
-        first_copies = estimator(estimator_name).free_first_copies
-        return sum(e.free for e in self.parameters(first_copies))
+        method = estimator(estimator_name)
+        return sum(e.free for e in self.parameters(method.free_first_copies, method.continuous))
 
     # ----- validation ----------------------------------------------------------------
     def validate(self, available_items: tuple[str, ...] | list[str] | None = None) -> list[str]:

@@ -22,7 +22,8 @@ from lagwise.models.estimators import ESTIMATORS, SETTINGS, FitOptions
 from lagwise.models.simulate import simulate_diary
 
 DEMO = Path(__file__).resolve().parents[1] / "resources" / "demo" / "demo_diary.csv"
-VALUES = {"depth": 2, "night_gap": 6}
+VALUES = {"depth": 2, "night_gap": 6, "interval_unit": "minutes", "night": "carry",
+          "prompt_spacing": 1.5}
 
 
 @pytest.mark.parametrize("name", sorted(ESTIMATORS))
@@ -45,7 +46,7 @@ def test_each_estimator_refuses_the_settings_it_does_not_take(name):
 
 @pytest.mark.parametrize("name", sorted(ESTIMATORS))
 def test_switching_estimator_drops_what_the_new_one_does_not_take(name):
-    everything = {"depth": 2, "night_gap": 6}
+    everything = VALUES
     for source in ESTIMATORS.values():
         options = FitOptions(estimator=source.name, missing=source.missing[-1],
                              **{s: v for s, v in everything.items() if s in source.settings})
@@ -91,7 +92,8 @@ def test_no_estimator_reports_converged_when_the_gradient_is_not_small(
         estimator, message, success, diary, monkeypatch):
     # Common practice: an optimum is where the gradient vanishes, whatever the optimiser says.
     _stopping_at(monkeypatch, message, success, shift=0.3)
-    result = fit(diary, SPEC, FitOptions(estimator=estimator), standard_errors=False)
+    spacing = {"prompt_spacing": 1.0} if estimator == "continuous-time" else {}   # no times
+    result = fit(diary, SPEC, FitOptions(estimator=estimator, **spacing), standard_errors=False)
     assert not result.converged and "gradient" in result.message
 
 

@@ -10,7 +10,7 @@ from scipy.stats import multivariate_normal
 from two_state_model import SPEC, TRUE
 
 from lagwise.models.estimate import fit
-from lagwise.models.exact import ExactObjective, _join_days, _window_start
+from lagwise.models.exact import ExactObjective, _join_days, window_estimate
 from lagwise.models.simulate import simulate_diary
 from lagwise.models.estimators import FitOptions
 
@@ -39,7 +39,8 @@ def test_start_values_are_the_stationary_window_estimate():
     diary = simulate_diary(SPEC, days=40, prompts_per_day=8, p_missed=0.1, seed=5, **TRUE)
     options = FitOptions(estimator="exact")
     objective = ExactObjective(diary, SPEC, options)
-    theta0, start_loglik = _window_start(diary, SPEC, options, objective, None)
+    named, start_loglik = window_estimate(diary, SPEC, options, None)
+    theta0 = objective.layout.theta_from(named)
     window = fit(diary, SPEC)
     estimate = {(p.kind, p.from_, p.to): p.estimate for p in window.parameters}
     expected = [estimate[(e.kind, e.from_, e.to)] for e in objective.layout.free_entries]

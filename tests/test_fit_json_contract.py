@@ -22,12 +22,14 @@ DEMO = HERE.parent / "resources" / "demo" / "demo_diary.csv"
 STATES = ["--state", "tension=tense,restless,worried", "--state", "mood=sad,flat,hopeless",
           "--state", "energy=lively,focused,rested"]
 GRID = ["--day", "day", "--prompt", "prompt"]
-EXTRA_ARGS = {"stationary": ["--lag2-check"], "first-copy-free": [], "exact": []}
+EXTRA_ARGS = {"stationary": ["--lag2-check"], "first-copy-free": [], "exact": [],
+              "continuous-time": ["--prompt-spacing", "2"]}
 # keys added since the contract was recorded (each documented in README's JSON notes)
 ADDED = {"$.flag_codes", "$.optimiser_message", "$.flag_codes[]", "$.se_method", "$.covariance", "$.covariance[]",
          "$.covariance[][]", "$.parameters[].se_model", "$.options.se", "$.fit.scaled",
          *(f"$.fit.scaled.{key}" for key in ("chi2", "df", "p", "scaling", "scaled_chi2",
-                                             "scaled_p", "rmsea", "cfi", "tli"))}
+                                             "scaled_p", "rmsea", "cfi", "tli")),
+         "$.options.interval_unit", "$.options.night", "$.options.prompt_spacing"}
 # the impulse responses (models.responses.Responses.to_json), written by every fit
 RESPONSE_ARRAYS = [f"{form}{cumulative}{standardized}{part}" for form in ("unit", "orthogonal")
                    for cumulative in ("", "_cumulative") for standardized in ("", "_standardized")

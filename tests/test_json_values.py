@@ -81,7 +81,10 @@ def specs(draw, estimable: bool = False):
 def options(draw) -> FitOptions:
     """Settings an estimator takes (models.estimators refuses the others)."""
     method = ESTIMATORS[draw(st.sampled_from(sorted(ESTIMATORS)))]
-    takes = {"depth": st.none() | st.integers(0, 50), "night_gap": st.none() | st.integers(0, 99)}
+    takes = {"depth": st.none() | st.integers(0, 50), "night_gap": st.none() | st.integers(0, 99),
+             "interval_unit": st.none() | st.sampled_from(["minutes", "hours", "days"]),
+             "night": st.none() | st.sampled_from(["restart", "carry"]),
+             "prompt_spacing": st.none() | st.floats(0.01, 1e6)}
     return FitOptions(estimator=method.name, missing=draw(st.sampled_from(method.missing)),
                       max_iter=draw(st.integers(1, 10_000_000)),
                       **{name: draw(values) for name, values in takes.items()
@@ -228,7 +231,7 @@ BAD_FIELDS = [
     (ModelSpec.from_json, SPEC.to_json(), ("innovations",), "diagonal", "innovations",
      "should be one of free, independent, partial, not 'diagonal'"),
     (FitOptions.from_json, FitOptions().to_json(), ("estimator",), "fast", "estimator",
-     "should be one of stationary, first-copy-free, exact, not 'fast'"),
+     "should be one of stationary, first-copy-free, exact, continuous-time, not 'fast'"),
     (FitOptions.from_json, FitOptions().to_json(), ("missing",), _DELETE, "",
      "lacks the field 'missing'"),
     (FitOptions.from_json, FitOptions().to_json(), ("night_gap",), "2", "night_gap",

@@ -278,7 +278,8 @@ def check_fit_or_plain_error(diary: Diary, spec, estimator: str) -> None:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            fit(diary, spec, FitOptions(estimator=estimator, max_iter=200))
+            spacing = {"prompt_spacing": 1.0} if estimator == "continuous-time" else {}
+            fit(diary, spec, FitOptions(estimator=estimator, max_iter=200, **spacing))
         except LagwiseError as error:
             assert "\n" not in str(error)
     assert [str(w.message) for w in caught if issubclass(w.category, RuntimeWarning)] == []

@@ -19,15 +19,15 @@ import numpy as np
 from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QAction
 from PySide6.QtWidgets import (
-    QAbstractItemView, QButtonGroup, QCheckBox, QComboBox, QFormLayout, QGroupBox, QHBoxLayout,
-    QHeaderView, QLabel, QPushButton, QRadioButton, QScrollArea, QSpinBox, QTableWidget,
+    QAbstractItemView, QButtonGroup, QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QGroupBox,
+    QHBoxLayout, QHeaderView, QLabel, QPushButton, QRadioButton, QScrollArea, QSpinBox, QTableWidget,
     QTableWidgetItem, QToolButton, QVBoxLayout, QWidget,
 )
 
 from lagwise.desktop import style
 from lagwise.desktop.session import Session
 from lagwise.models.errors import LagwiseError
-from lagwise.models.estimators import ERRORS, ESTIMATORS, MISSING, FitOptions
+from lagwise.models.estimators import ERRORS, ESTIMATORS, INTERVAL_UNITS, MISSING, FitOptions
 from lagwise.models.spec import ModelSpec, full_mask, inertia_mask
 
 WINDOW_ONLY_TIP = ("The exact estimator follows the whole series with the Kalman filter: it uses "
@@ -35,6 +35,7 @@ WINDOW_ONLY_TIP = ("The exact estimator follows the whole series with the Kalman
                    "apply.")
 EXACT_ONLY_TIP = ("Only the exact estimator can carry the states over a night; lag windows use "
                   "the box above.")
+CONTINUOUS_ONLY_TIP = "Only the continuous-time estimator takes these settings."
 NIGHT_GAP_DEFAULT = 6
 NIGHT_GAP_TIP = ("How many prompts the night would hold at the day's rhythm. For example 10 "
                  "prompts over 15 waking hours (one every 90 minutes) and 9 hours of sleep: "
@@ -300,12 +301,67 @@ class DynamicsPage(QWidget):
         self.exact_night_note = _note()
         exact_layout.addWidget(self.exact_night_note)
         form.addRow(self.exact_night)
+        self._build_continuous(form)
         right.addWidget(estimate_box)
         self.problem_label = QLabel()
         self.problem_label.setObjectName("dynamicsMessages")
         self.problem_label.setWordWrap(True)
         right.addWidget(self.problem_label)
         right.addStretch(1)
+
+    def _build_continuous(self, form: QFormLayout) -> None:
+        """The continuous-time settings: the drift's time unit, the prompts' spacing (diaries
+        with day and prompt numbers) and the night (diaries with times)."""
+        self.ct_box = QWidget()
+        self.ct_box.setToolTip(CONTINUOUS_ONLY_TIP)
+        rows = QVBoxLayout(self.ct_box)
+        rows.setContentsMargins(0, 4, 0, 0)
+        rows.setSpacing(4)
+        rows.addWidget(QLabel("Continuous time:"))
+        line = QHBoxLayout()
+        self.unit_combo = _combo()
+        self.unit_combo.setAccessibleName("Interval unit")
+        for unit in INTERVAL_UNITS:
+            self.unit_combo.addItem(f"drift per {unit[:-1]}", unit)
+        self.unit_combo.currentIndexChanged.connect(self._continuous_chosen)
+        self.spacing_spin = QDoubleSpinBox()
+        self.spacing_spin.setAccessibleName("Prompt spacing")
+        self.spacing_spin.setRange(0.0, 1e6)
+        self.spacing_spin.setDecimals(3)
+        self.spacing_spin.setSpecialValueText("not stated")
+        self.spacing_spin.setKeyboardTracking(False)
+        self.spacing_spin.setToolTip("Diaries with day and prompt numbers: the time between two "
+                                     "prompts, in the unit chosen beside it.")
+        self.spacing_spin.valueChanged.connect(self._continuous_chosen)
+        line.addWidget(self.unit_combo)
+        line.addWidget(QLabel("prompts apart:"))
+        line.addWidget(self.spacing_spin)
+        line.addStretch(1)
+        rows.addLayout(line)
+        self.ct_carry_check = QCheckBox("Carry the states over the real night length")
+        self.ct_carry_check.setToolTip("Needs the time of each prompt. Unticked: the states "
+                                       "restart each day.")
+        self.ct_carry_check.toggled.connect(self._continuous_chosen)
+        rows.addWidget(self.ct_carry_check)
+        form.addRow(self.ct_box)
+
+    def _show_continuous(self, options: FitOptions, mode: str | None) -> None:
+        continuous = options.method.continuous
+        self.ct_box.setEnabled(continuous)
+        self.ct_box.setToolTip("" if continuous else CONTINUOUS_ONLY_TIP)
+        _select(self.unit_combo, options.interval_unit or "hours")
+        self.spacing_spin.setValue(options.prompt_spacing or 0.0)
+        self.spacing_spin.setEnabled(mode != "timestamp")
+        self.ct_carry_check.setChecked(options.night == "carry")
+        self.ct_carry_check.setEnabled(mode == "timestamp")
+
+    def _continuous_chosen(self) -> None:
+        if self._syncing or not self._session.options.method.continuous:
+            return
+        options = replace(self._session.options, interval_unit=self.unit_combo.currentData(),
+                          prompt_spacing=self.spacing_spin.value() or None,
+                          night="carry" if self.ct_carry_check.isChecked() else None)
+        self._session.edit_options(options, "Continuous-time settings")
 
     def set_estimate_action(self, action: QAction) -> None:
         """The window's Estimate action, which the page's Estimate button triggers and follows."""
@@ -340,6 +396,8 @@ class DynamicsPage(QWidget):
                 "The exact estimator's errors come from the likelihood of the whole series.")
             self._fill_depth(spec, options)
             self._show_night_rules(options)
+            settings = self._session.import_settings
+            self._show_continuous(options, None if settings is None else settings.time.mode)
             _, problem = self._session.validation()
             self.problem_label.setText(
                 "" if problem is None or self._session.diary is None else
@@ -397,11 +455,12 @@ class DynamicsPage(QWidget):
         else:
             self.night_note.setText("")
         self.night_note.setVisible(bool(self.night_note.text()))
-        self.exact_night.setEnabled(exact and has_days)
-        self.exact_night.setToolTip("" if exact else EXACT_ONLY_TIP)
+        carries = "night_gap" in options.method.settings
+        self.exact_night.setEnabled(carries and has_days)
+        self.exact_night.setToolTip("" if carries else EXACT_ONLY_TIP)
         self.exact_night_group.setExclusive(False)
-        self.restart_radio.setChecked(exact and separate and options.night_gap is None)
-        self.carry_radio.setChecked(exact and separate and options.night_gap is not None)
+        self.restart_radio.setChecked(carries and separate and options.night_gap is None)
+        self.carry_radio.setChecked(carries and separate and options.night_gap is not None)
         self.exact_night_group.setExclusive(True)
         if options.night_gap is not None:
             self.night_gap_spin.setValue(options.night_gap)

@@ -9,14 +9,21 @@ alike" is ticked.
 
 from __future__ import annotations
 
+import html
+
+import pyqtgraph as pg
 from PySide6.QtCore import Qt
+from PySide6.QtGui import QColor
 from PySide6.QtWidgets import QCheckBox, QComboBox, QLabel, QSplitter, QVBoxLayout, QWidget
 
 from lagwise.desktop.results.charts import bar_chart, plot_widget, style_plot
+from lagwise.desktop.style import INK, RULE, SERIES
 from lagwise.desktop.results.diagram import DiagramScene, DiagramView, Link, Node
 from lagwise.desktop.results.tables import lagged_parameters, parameter_tooltip, paths_model
 from lagwise.models.numbers import fmt
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, section_label, table_view
+from lagwise.models.ctresults import effects_by_interval
+from lagwise.models.kinds import Kind
 from lagwise.models.results import FitResult, Parameter
 
 LABEL_MODES = {"standardized": "Standardized", "estimate": "Estimate"}
@@ -24,6 +31,8 @@ FAINT_WORDS = "faint: 95% interval includes 0"
 
 
 def _heading(p: Parameter, lag: int) -> str:
+    if p.kind == Kind.DRIFT:
+        return f"Auto-effect of {p.to}" if p.from_ == p.to else f"{p.from_} → change of {p.to}"
     if p.from_ == p.to and lag == 1:
         return f"Inertia of {p.to}"
     return f"{p.from_} (t-{lag}) → {p.to} (t)"
@@ -61,6 +70,11 @@ class DynamicsDiagram(DiagramScene):
         cross = [l for l in links if l.source != l.target]
         message = "" if cross else "No cross-lagged effects are free in this model."
         title = "Lag-1 dynamics" if lag == 1 else "Lag-2 paths"
+        if result.continuous is not None:
+            legend[0] = (f"Continuous time: arrows from a state to the rate of change of another "
+                         f"(drift per {result.continuous.unit[:-1]}). Loops: auto-effects "
+                         f"(negative: the state returns to its level). Labels: {what}.")
+            title = "Continuous-time drift"
         self.draw(nodes, links, title=title, legend=legend, message=message,
                   faint_words="" if alike else FAINT_WORDS,
                   hint="Hover over a path for its estimate, standardized value, SE and 95% "
@@ -162,10 +176,18 @@ class DynamicsPanel(ResultsPanel):
             self.split.setSizes([total - want, want])
 
     def _show_inertia(self, result: FitResult) -> None:
+        if result.continuous is not None:
+            self._show_over_time(result)
+            return
+        plot = self.chart.getPlotItem()
+        if plot.legend is not None:   # left by a continuous-time result
+            plot.legend.scene().removeItem(plot.legend)
+            plot.legend = None
+            plot.setLabel("bottom", "")
+            style_plot(plot, "Inertia with 95% interval")
         inertia = {p.to: p for p in lagged_parameters(result, 1) if p.from_ == p.to}
         states = list(result.states)
         chosen = [inertia.get(s) for s in states]
-        plot = self.chart.getPlotItem()
         bar_chart(plot, states, [None if p is None else p.estimate for p in chosen],
                   ["" if p is None else fmt(p.estimate) for p in chosen],
                   low=[None if p is None or p.ci is None else p.ci[0] for p in chosen],
@@ -177,6 +199,37 @@ class DynamicsPanel(ResultsPanel):
         if fixed:
             note += " Inertia fixed in this model: " + ", ".join(fixed) + "."
         self.chart_note.setText(note)
+
+    def _show_over_time(self, result: FitResult) -> None:
+        """Continuous time: each state's own effect B_ii(D) = [expm(A D)]_ii over intervals
+        of 0 to 8 hours, with its delta-method 95% band (models.ctresults)."""
+        effects = effects_by_interval(result)
+        plot = self.chart.getPlotItem()
+        plot.clear()
+        style_plot(plot, "Own effect over an interval, 95% band")
+        plot.addLegend(offset=(-10, 10), labelTextColor=INK)
+        plot.addItem(pg.InfiniteLine(pos=0, angle=0, pen=pg.mkPen(RULE, width=1)))
+        x = effects.intervals
+        for i, state in enumerate(result.states):
+            colour = QColor(SERIES[i % len(SERIES)])
+            lower = pg.PlotDataItem(x, effects.lower[:, i, i], pen=pg.mkPen(None))
+            upper = pg.PlotDataItem(x, effects.upper[:, i, i], pen=pg.mkPen(None))
+            fill = QColor(colour)
+            fill.setAlphaF(0.18)
+            band = pg.FillBetweenItem(lower, upper, brush=pg.mkBrush(fill))
+            band.setZValue(-5)
+            for item in (lower, upper, band):
+                plot.addItem(item)
+            plot.plot(x, effects.values[:, i, i], pen=pg.mkPen(colour, width=2.2),
+                      name=html.escape(state))
+        unit = result.continuous.unit
+        plot.setLabel("bottom", f"interval ({unit})")
+        plot.setLabel("left", "share of a rise left")
+        self.chart_note.setText(
+            f"How much of a rise in a state remains after an interval: [exp(A D)]_ii. Bands: "
+            f"95% delta method. The cross-effects over intervals are in the report and the "
+            f"JSON (effects_by_interval); the diary's median interval is "
+            f"{fmt(result.continuous.median_interval)} {unit}.")
 
     def pictures(self) -> dict:
         return {"diagram": self.scene, "inertia chart": self.chart}

@@ -30,6 +30,7 @@ GROUPS = (
     ("Item intercepts and unique parts", (Kind.INTERCEPT, Kind.UNIQUE,
                                           Kind.UNIQUE_AUTOCORRELATION)),
     ("Oldest window copies (first copy free)", (Kind.FIRST_COPY, Kind.LATENT_INTERCEPT)),
+    ("Continuous time: drift and diffusion", (Kind.DRIFT, Kind.DIFFUSION)),
 )
 SD_UNITS = "In SD units"
 SD_UNITS_TIP = ("The value in standard-deviation units of the states and items (the "

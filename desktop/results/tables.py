@@ -223,8 +223,11 @@ def paths_model(parent=None) -> RecordsModel:
 
 
 def lagged_parameters(result: FitResult, lag: int) -> list[Parameter]:
-    """Free lagged paths at `lag`: inertias first, then cross-lagged effects, in state order."""
+    """Free lagged paths at `lag`: inertias first, then cross-lagged effects, in state order
+    (a continuous-time result: its drift, auto-effects first)."""
     kinds = ("inertia", "cross_lagged") if lag == 1 else ("lag2",)
+    if result.continuous is not None:
+        kinds = ("drift",)
     chosen = [p for p in result.parameters if p.kind in kinds and p.free and (p.lag or 1) == lag]
     order = {s: i for i, s in enumerate(result.states)}
     return sorted(chosen, key=lambda p: (p.from_ != p.to, order.get(p.to, 0), order.get(p.from_, 0)))

@@ -10,6 +10,8 @@ Sections (each module's docstring says what it times and why that peer):
   parametric-bootstrap diaries, with the default estimator;
 - exact.py: the exact estimator against statsmodels' DynamicFactor, and its evaluation cost
   per prompt as diaries grow, with days and as one segment;
+- continuous.py: the continuous-time estimator against the exact one on an irregular diary
+  (part of the exact section);
 - memory.py: peak memory of one fit of a long diary, and of reading a long diary file, in a
   fresh process;
 - commandline.py: start-up of `lagwise --help` and `lagwise inspect` of the demo, the demo's
@@ -17,7 +19,8 @@ Sections (each module's docstring says what it times and why that peer):
 Targets (cases.py), reported as PASS/MISS lines (report.py), never as timed tests: semopy's
 covariance-only fit + inspect takes at least 2x the Lagwise first-copy-free time on both speed
 diaries; stationary within 1.5x of first-copy-free; statsmodels takes at least 5x the Lagwise
-exact time; exact gradient time growing at most as T^1.1 on both layouts; peak memory under
+exact time; exact gradient time growing at most as T^1.1 on both layouts; continuous time
+within 3x the exact time; peak memory under
 1 GiB; reading a diary file under 4x its size; `lagwise --help` under 0.5 s, `lagwise inspect`
 of the demo under 2 s (its reading and screening under 1 s) and of a million prompts under
 30 s (absolute: start-up has no peer). The refit has no target: its speed-up is reported as a
@@ -37,6 +40,7 @@ from lagwise.models.bench.cases import (
     bench_diary, bench_model,
 )
 from lagwise.models.bench.commandline import CommandTimes, measure_commands
+from lagwise.models.bench.continuous import ContinuousSpeedResult, measure_continuous_speed
 from lagwise.models.bench.exact import (
     ExactEvaluation, ExactSpeedResult, growth_exponent, measure_exact_evaluation,
     measure_exact_speed,
@@ -73,6 +77,7 @@ class BenchReport:
     exact_evaluations: list[ExactEvaluation] = field(default_factory=list)
     exact_segment_evaluations: list[ExactEvaluation] = field(default_factory=list)  # one segment
     exact_memory: MemoryResult | None = None
+    continuous_speed: ContinuousSpeedResult | None = None
     read_memory: ReadMemoryResult | None = None
     commands: CommandTimes | None = None
 
@@ -92,7 +97,7 @@ def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bo
     cases = (QUICK_SPEED_CASES if quick else SPEED_CASES) if windows else ()
     refit_cases = cases if refit else ()
     parts = (len(cases) + len(refit_cases) + 2 * int(windows and memory)
-             + (3 + int(memory) if exact else 0) + int(commands))
+             + (4 + int(memory) if exact else 0) + int(commands))
     done = 0
     for case in cases:
         checkpoint(monitor, done / parts, f"Timing {case.label}")
@@ -124,7 +129,9 @@ def run_benchmark(quick: bool = False, repeats: int | None = None, all_peers: bo
             checkpoint(monitor, (done + 3) / parts, "Exact estimator: peak memory of a long diary")
             report.exact_memory = measure_memory(
                 QUICK_EXACT_MEMORY_CASE if quick else EXACT_MEMORY_CASE, estimator="exact")
-        done += 3 + int(memory)
+        checkpoint(monitor, (done + 3 + int(memory)) / parts, "Continuous-time estimator: timing")
+        report.continuous_speed = measure_continuous_speed(case, repeats)
+        done += 4 + int(memory)
     if commands:
         checkpoint(monitor, done / parts, "Command line: start-up and screening")
         report.commands = measure_commands(QUICK_INSPECT_CASE if quick else INSPECT_CASE,

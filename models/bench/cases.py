@@ -29,6 +29,7 @@ MEMORY_TARGET_BYTES = 1024 ** 3
 READ_TARGET_RATIO = 4.0       # reading a diary file: peak memory under 4x the file's size
 EXACT_SPEED_TARGET = 5.0      # statsmodels DynamicFactor takes at least 5x Lagwise exact
 EXACT_GROWTH_TARGET = 1.1     # exact gradient time grows at most as T^1.1
+CONTINUOUS_TARGET = 3.0       # continuous time within 3x the exact time on the same diary
 HELP_TARGET = 0.5             # seconds, `lagwise --help` as a whole process
 INSPECT_DEMO_TARGET = 2.0     # seconds, `lagwise inspect` of the demo as a whole process
 SCREEN_DEMO_TARGET = 1.0      # seconds, reading and screening the demo inside the process

@@ -6,7 +6,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from lagwise.models.bench.cases import (
-    EXACT_CASE, EXACT_GROWTH_TARGET, EXACT_SPEED_TARGET, HELP_TARGET, INSPECT_CASE,
+    CONTINUOUS_TARGET, EXACT_CASE, EXACT_GROWTH_TARGET, EXACT_SPEED_TARGET, HELP_TARGET, INSPECT_CASE,
     INSPECT_DEMO_TARGET, INSPECT_LONG_TARGET, MEMORY_TARGET_BYTES, READ_TARGET_RATIO,
     SCREEN_DEMO_TARGET,
     SPEED_TARGET, STATIONARY_TARGET,
@@ -41,7 +41,8 @@ def format_report(report: BenchReport) -> str:
     if report.read_memory is not None:
         _read_memory_lines(report.read_memory, lines, verdicts)
     if (report.exact_speed is not None or report.exact_evaluations
-            or report.exact_segment_evaluations or report.exact_memory):
+            or report.exact_segment_evaluations or report.exact_memory
+            or report.continuous_speed):
         lines += ["", "Exact estimator (Kalman filter)"]
         _exact_lines(report, lines, verdicts)
     if report.commands is not None:
@@ -164,6 +165,18 @@ def _exact_lines(report: BenchReport, lines: list[str], verdicts: list[str]) -> 
     if report.exact_memory is not None:
         lines.append("")
         _memory_lines(report.exact_memory, lines, verdicts)
+    c = report.continuous_speed
+    if c is not None:
+        lines += ["", f"Continuous time on the same model with prompts at random times "
+                      f"({c.distinct_intervals} distinct intervals), against the exact estimator "
+                      f"(best of {report.repeats}):",
+                  f"{c.case.label:<42}{'Lagwise continuous-time':<38}{c.seconds:>9.3f}"
+                  f"{c.ratio:>8.2f}" + ("" if c.converged else "  (did not converge)"),
+                  f"{'':<42}{'Lagwise exact (equal spacing)':<38}{c.exact_seconds:>9.3f}{'1.00':>8}"
+                  + ("" if c.exact_converged else "  (did not converge)")]
+        verdicts.append(f"{_verdict(c.ratio <= CONTINUOUS_TARGET)}  continuous time, "
+                        f"{c.case.label}: {c.ratio:.1f}x the exact time (target at most "
+                        f"{CONTINUOUS_TARGET:g}x)")
 
 
 def _evaluation_lines(evals: list[ExactEvaluation], layout: str, short: str, runs: int,

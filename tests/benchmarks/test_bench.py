@@ -98,3 +98,13 @@ def test_exact_peak_memory_of_a_long_diary():
     print("\n" + format_report(BenchReport(exact_memory=result)))
     assert result.converged
     assert result.peak_bytes < MEMORY_TARGET_BYTES
+
+
+def test_continuous_time_against_exact():
+    # the same 1,000 prompts fitted in continuous time (their times) and by the exact
+    # estimator (equal spacing): both complete fits converge; the ratio is reported
+    from lagwise.models.bench.continuous import measure_continuous_speed
+    result = measure_continuous_speed(EXACT_CASE)
+    print("\n" + format_report(BenchReport(continuous_speed=result)))
+    assert result.converged and result.exact_converged
+    assert result.distinct_intervals > 500 and np.isfinite(result.ratio)

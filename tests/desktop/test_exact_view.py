@@ -41,7 +41,7 @@ def choose(combo, key) -> None:
 def test_choosing_exact_sets_the_estimator_and_explains_it(page, session, qtbot, artifacts):
     combo = page.estimator_combo
     offered = [combo.itemData(i) for i in range(combo.count())]
-    assert offered == ["stationary", "first-copy-free", "exact"]
+    assert offered == ["stationary", "first-copy-free", "exact", "continuous-time"]
     assert combo.itemText(offered.index("exact")) == "Exact (Kalman filter, whole series)"
     assert page.estimator_help.text() == ESTIMATORS["stationary"].help
     assert page.missing_combo.isEnabled() and page.depth_combo.isEnabled()
