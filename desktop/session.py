@@ -29,6 +29,7 @@ from lagwise.models.project import Project, ProjectData, embed_table, project_di
 from lagwise.models.results import FitResult
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
+from lagwise.models.study import StudyChoice, person_rows
 from lagwise.models.recipe import DiaryRecipe
 
 
@@ -106,6 +107,7 @@ class Session(QObject):
         self._prepared: tuple[Diary, tuple[Step, ...], Diary] | None = None  # cache
         self._data: ProjectData | None = None
         self._notes = ""
+        self._study: StudyChoice | None = None   # many people: desktop.study_state
         self._file: Path | None = None
         self._created = ""
         self._untitled = "untitled"
@@ -127,6 +129,16 @@ class Session(QObject):
     @property
     def import_settings(self) -> ImportSettings | None:
         return self._import
+
+    @property
+    def study(self) -> StudyChoice | None:
+        """The person column, the person shown and the batch folder (None: one person)."""
+        return self._study
+
+    @property
+    def data(self) -> ProjectData | None:
+        """The project's raw table (every person's rows) and where it came from."""
+        return self._data
 
     @property
     def spec(self) -> ModelSpec:
@@ -200,19 +212,21 @@ class Session(QObject):
     def load_data(self, frame, diary: Diary, settings: ImportSettings,
                   spec: ModelSpec | None = None, options: FitOptions | None = None,
                   preparation: tuple[Step, ...] = (), notes: str | None = None,
-                  data: ProjectData | None = None) -> None:
+                  data: ProjectData | None = None, study: StudyChoice | None = None) -> None:
         """Start on a new diary: a new, untitled project whose model is reset (or set to
         `spec`), preparation steps set to `preparation` and undo history cleared. The new
         diary counts as unsaved.
 
         data: where the table came from, as a project stores it (None: embedded from `frame`
-        and `settings.path`).
+        and `settings.path`); study: for a table of many people, `frame` and `diary` are the
+        rows and diary of `study.person`.
         """
         self.undo_stack.clear()
         self._frame = frame
         self._diary = diary
         self._import = settings
         self._data = data if data is not None else embed_table(frame, settings.path)
+        self._study = study
         self._spec = spec if spec is not None else EMPTY_SPEC
         if options is not None:
             self._options = options
@@ -233,7 +247,7 @@ class Session(QObject):
         self.undo_stack.clear()
         self._frame = self._diary = self._import = self._data = None
         self._spec, self._options = EMPTY_SPEC, FitOptions()
-        self._preparation, self._notes = (), ""
+        self._preparation, self._notes, self._study = (), "", None
         self._result = self._result_inputs = None
         self._file, self._created, self._untitled = None, "", "untitled"
         self.fileChanged.emit()
@@ -325,7 +339,7 @@ class Session(QObject):
             result_current=self._result is None or self.result_is_current(),
             bootstrap=self._bootstrap,
             responses=None if self._result is None else self._responses, notes=self._notes,
-            created=self._created, file=self._file)
+            study=self._study, created=self._created, file=self._file)
 
     def load_project(self, project: Project, table, saved: bool = True,
                      diaries: tuple[Diary, Diary] | None = None) -> None:
@@ -354,9 +368,11 @@ class Session(QObject):
                                   scales=project.scales)
         if data is not None and data.table is None:
             data = replace(data, table=table)
-        self.load_data(table, raw, settings, spec=project.spec or EMPTY_SPEC,
+        study = project.study
+        rows = table if study is None else person_rows(table, study.person_column, study.person)
+        self.load_data(rows, raw, settings, spec=project.spec or EMPTY_SPEC,
                        options=project.options, preparation=steps, notes=project.notes,
-                       data=data)
+                       data=data, study=study)
         self._prepared = (raw, self._preparation, prepared)
         self._file, self._created = project.file, project.created
         self.fileChanged.emit()
@@ -436,7 +452,22 @@ class Session(QObject):
             self.undo_stack.push(_Swap(self, "_notes", self.notesChanged, self._notes, notes,
                                        text))
 
+    def set_study(self, study: StudyChoice) -> None:
+        """Keep another batch folder (not an edit: not undoable, but unsaved)."""
+        self._study = study
+        self._set_unsaved(True)
+
     # ----- used by the commands ------------------------------------------------------
+    def show_person(self, study: StudyChoice, frame, diary: Diary) -> tuple:
+        """Show another person's rows and diary (desktop.study_state's undoable change);
+        the result is dropped. Returns the replaced (study, frame, diary)."""
+        old = (self._study, self._frame, self._diary)
+        self._study, self._frame, self._diary = study, frame, diary
+        self._result = self._result_inputs = self._bootstrap = None
+        self.dataChanged.emit()
+        self.resultChanged.emit()
+        return old
+
     def _set_data(self, settings: ImportSettings, diary: Diary) -> None:
         self._import, self._diary = settings, diary
         self.dataChanged.emit()

@@ -35,6 +35,7 @@ from lagwise.models.scales import scales_from_json
 from lagwise.models.results import FitResult
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
+from lagwise.models.study import StudyChoice
 
 MAX_FILE_BYTES = 256 * 2**20      # the whole file
 
@@ -153,7 +154,7 @@ def _responses(value: object, result: FitResult | None) -> ResponseChoice | None
 
 def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
     doc = jr.obj(doc, "", _TOP_KEYS, ("recovery_of", "results_current", "bootstrap",
-                                           "responses", "scales"))
+                                           "responses", "scales", "study"))
     time, per_day = _time(doc["time"])
     items = doc["items"]
     if items is not None:
@@ -169,8 +170,12 @@ def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
             raise FieldError("preparation",
                              f"is not a list of preparation steps ({error})") from None
     data = None if doc["data"] is None else _data(doc["data"], folder)
+    study = None if doc.get("study") is None else StudyChoice.from_json(doc["study"], "study")
     if data is not None and data.table is not None:
         _check_roles(data.table, items, time)
+        if study is not None and study.person_column not in set(data.table.columns):
+            raise FieldError("study.person_column", f"names the column '{study.person_column}', "
+                             "which the embedded table lacks")
     recovery_of = doc.get("recovery_of")
     if recovery_of is not None:
         recovery_of = Path(jr.text(recovery_of, "recovery_of", jr.MAX_TEXT))
@@ -188,6 +193,7 @@ def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
         bootstrap=_bootstrap(doc.get("bootstrap"), results),
         responses=_responses(doc.get("responses"), result),
         notes=jr.text(doc["notes"], "notes", jr.MAX_TEXT),
+        study=study,
         created=_timestamp(doc["created"], "created"),
         modified=_timestamp(doc["modified"], "modified"),
         lagwise_version=jr.text(doc["lagwise_version"], "lagwise_version", 200),

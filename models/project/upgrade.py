@@ -38,7 +38,14 @@ def upgrade_0_to_1(doc: dict) -> dict:
     return new
 
 
-UPGRADES: dict[int, Callable[[dict], dict]] = {0: upgrade_0_to_1}
+def upgrade_1_to_2_study(doc: dict) -> dict:
+    """Format version 1 -> 2, the study's part: version 2 may hold an optional "study" (the
+    person column, the person shown, the batch folder); a version-1 file is one person's
+    table, so it gets none."""
+    return {**doc, "format_version": 2}
+
+
+UPGRADES: dict[int, Callable[[dict], dict]] = {0: upgrade_0_to_1, 1: upgrade_1_to_2_study}
 
 # Before estimators checked their settings, version-1 files could keep a setting the chosen
 # estimator ignored (a window depth or listwise handling with the exact estimator, a night
