@@ -26,7 +26,7 @@ from lagwise.desktop.study_state import StudyState
 from lagwise.desktop.worker import Worker
 from lagwise.models import batchfiles
 from lagwise.models.batch import BatchOutcome, person_fingerprints, run_batch
-from lagwise.models.personfit import BatchSettings
+from lagwise.models.personfit import BatchSettings, PersonOutcome
 from lagwise.models.study import with_steps
 
 WAITING = "waiting"
@@ -79,7 +79,7 @@ class BatchDialog(QDialog):
         choose.clicked.connect(self._choose_folder)
         row.addWidget(self.folder_edit, 1)
         row.addWidget(choose)
-        form.addRow("Results &folder:", row)
+        form.addRow("Results folder:", row)
         self.jobs_spin = QSpinBox()
         self.jobs_spin.setRange(1, os.cpu_count() or 1)
         self.jobs_spin.setValue(max(1, (os.cpu_count() or 1) - 1))
@@ -165,10 +165,10 @@ class BatchDialog(QDialog):
             if self.table.item(r, 2).text() == WAITING and person in self._prints:
                 stored = batchfiles.load_outcome(self._folder, person, self._prints[person])
                 if stored is not None:
-                    self.table.item(r, 2).setText(stored.status)
+                    self.table.item(r, 2).setText(_status(stored))
 
     def _done(self, outcome: BatchOutcome) -> None:
-        status = {o.person: o.status for o in outcome.outcomes}
+        status = {o.person: _status(o) for o in outcome.outcomes}
         for r in range(self.table.rowCount()):
             item = self.table.item(r, 2)
             item.setText(status.get(self.table.item(r, 0).text(), item.text()))
@@ -194,3 +194,8 @@ class BatchDialog(QDialog):
     def closeEvent(self, event) -> None:   # noqa: N802 - Qt's name
         self.worker.wait()
         super().closeEvent(event)
+
+
+def _status(outcome: PersonOutcome) -> str:
+    """'fitted', or the status with its reason ('failed: too few complete lag windows ...')."""
+    return outcome.status if outcome.fitted else f"{outcome.status}: {outcome.reason}"

@@ -76,9 +76,9 @@ def test_the_window_holds_a_study(lagwise_app, qtbot, tmp_path):
     assert _shown_prompts(window) == by_name["P00"].diary.n_occasions
 
 
-def test_estimate_every_person_and_open_one(lagwise_app, qtbot, tmp_path):
+def test_estimate_every_person_and_open_one(lagwise_app, qtbot, tmp_path, artifacts):
     path, study = _study_file(tmp_path)
-    window = open_window(qtbot)
+    window = open_window(qtbot, 1280, 800)
     import_file(qtbot, window, path)
     session, bar = window.session, window.study_bar
     session.edit_spec(SPEC, "Model")
@@ -98,6 +98,9 @@ def test_estimate_every_person_and_open_one(lagwise_app, qtbot, tmp_path):
     qtbot.mouseClick(table.viewport(), Qt.MouseButton.LeftButton, pos=rect.center())
     settle(qtbot)
     assert session.study.person == "P02" and window.current_page() == 3
+    for name, widget in (("window", window), ("batch", batch), ("across", across)):
+        widget.grab().save(str(artifacts / f"study-{name}.png"))
+    assert window.study_bar.geometry().right() < window.width()   # fits at 1280x800
     assert session.result_is_current()
     direct = fit(study.people[2].diary, SPEC, FitOptions())
     shown = window.results.measurement.loadings
@@ -117,3 +120,23 @@ def test_estimate_every_person_and_open_one(lagwise_app, qtbot, tmp_path):
     assert again.session.study == session.study
     assert again.study_bar.picker.currentText() == "P02"
     assert _shown_prompts(again) == study.people[2].diary.n_occasions
+
+
+def test_cancel_keeps_the_finished_people_and_a_rerun_fits_the_rest(lagwise_app, qtbot, tmp_path):
+    path, study = _study_file(tmp_path)
+    window = open_window(qtbot)
+    import_file(qtbot, window, path)
+    window.session.edit_spec(SPEC, "Model")
+    batch = window.study_bar.estimate_everyone()
+    batch.folder_edit.setText(str(tmp_path / "out"))
+    batch.jobs_spin.setValue(1)
+    with qtbot.waitSignal(batch.worker.idle, timeout=180_000):
+        assert batch.start()
+        qtbot.mouseClick(batch.cancel_button, Qt.MouseButton.LeftButton)
+    assert batch.message.text().startswith("Stopped")
+    done = [p for p, status in batch.statuses().items() if status == "fitted"]
+    assert len(done) < len(study)
+    with qtbot.waitSignal(batch.finished_batch, timeout=180_000):
+        assert batch.start()
+    assert f"({len(done)} already done)" in batch.message.text()
+    assert set(batch.statuses().values()) == {"fitted"}
