@@ -1,11 +1,13 @@
 """The import dialog: a data file becomes a diary, column by column.
 
 Every column gets a role (item, day, prompt number, timestamp, person, ignore), guessed from
-its name and contents and changeable by the user. A person column makes the file a study of
-many people (models.study): every person's rows become a diary of their own, the preview
-counts the people and their prompts and describes the first person's diary. The preview below updates as roles change:
+its name and contents and changeable by the user. The preview below updates as roles change:
 how many occasions, days, answered prompts and lag windows the diary would have, the data
 layer's notes, or its error message. Nothing reaches the project until the user accepts.
+
+A person column makes the file a study of many people (models.study): every person's rows
+become a diary of their own; the preview counts the people and their prompts, describes the
+first person's diary, and guesses the answer scales and far-out values from everyone's answers.
 
 Each item's answer scale (floor and ceiling are counted at its ends) is shown guessed from
 the answers (models.scales) and can be typed over as LOW-HIGH. Answers far outside the rest
@@ -404,8 +406,11 @@ class ImportDialog(QDialog):
             self._show_error(str(exc))
             return
         self._diary, self._study = diary, study
-        self._settings = replace(settings, scales=tuple(self._show_scales(diary).items()))
-        self._show_far_values(diary)
+        answers = diary.values if study is None else np.vstack(
+            [p.diary.values for p in study.people if p.diary is not None])   # every person's
+        self._settings = replace(settings, scales=tuple(self._show_scales(diary.items,
+                                                                          answers).items()))
+        self._show_far_values(diary.items, answers)
         summary = diary_summary(diary)
         occasions, answered = summary["occasions"], summary["answered"]
         windows = summary["windows"]["1"] + summary["partial_windows"]["1"]
@@ -467,7 +472,7 @@ class ImportDialog(QDialog):
         self.far_button.clicked.connect(self.treat_far_values_as_missing)
         row.addWidget(self.far_label)
         row.addWidget(self.far_button, 0, Qt.AlignmentFlag.AlignLeft)
-        self._show_far_values(None)
+        self._show_far_values()
         return row
 
     def scales(self) -> dict[str, Scale]:
@@ -485,14 +490,15 @@ class ImportDialog(QDialog):
         self.missing_edit.setText(", ".join(codes))
         self.update_preview()
 
-    def _show_scales(self, diary: Diary) -> dict[str, Scale]:
-        """Fill the scale table (typed scales kept, the others guessed); return the scales."""
+    def _show_scales(self, items: tuple[str, ...], answers: np.ndarray) -> dict[str, Scale]:
+        """Fill the scale table (typed scales kept, the others guessed from `answers`, one
+        column per item); return the scales."""
         scales = {}
         table = self.scales_table
         table.blockSignals(True)
-        table.setRowCount(diary.n_items)
-        for row, name in enumerate(diary.items):
-            column = diary.values[:, row]
+        table.setRowCount(len(items))
+        for row, name in enumerate(items):
+            column = answers[:, row]
             seen = column[~np.isnan(column)]
             scale = self._stated.get(name) or guess_scale(column)
             table.setItem(row, 0, _cell(name))
@@ -516,8 +522,9 @@ class ImportDialog(QDialog):
             return
         self.update_preview()
 
-    def _show_far_values(self, diary: Diary | None) -> None:
-        self._far = () if diary is None else far_values(diary.items, diary.values)
+    def _show_far_values(self, items: tuple[str, ...] = (),
+                         answers: np.ndarray | None = None) -> None:
+        self._far = () if answers is None else far_values(items, answers)
         lines = []
         for name in dict.fromkeys(far.item for far in self._far):
             found = ", ".join(f"{far.code} ({counted(far.count, 'time')})"
@@ -559,7 +566,7 @@ class ImportDialog(QDialog):
         return ", ".join(c for c in cells if c)
 
     def _show_error(self, message: str) -> None:
-        self._show_far_values(None)
+        self._show_far_values()
         self.summary_label.setText("—")
         self.notes_label.setText("")
         self.error_label.setText(message)

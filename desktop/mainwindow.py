@@ -357,8 +357,10 @@ class MainWindow(QMainWindow):
             self.session.load_data(dialog.diary_rows(), diary, settings,
                                    data=embed_table(frame, settings.path),
                                    study=dialog.study_choice())
+            study, choice = dialog.study(), dialog.study_choice()
+            who = "" if study is None else f"{len(study)} people; {choice.person}'s diary: "
             self.statusBar().showMessage(
-                f"Imported {Path(settings.path).name}: {diary.n_items} items, "
+                f"Imported {Path(settings.path).name}: {who}{diary.n_items} items, "
                 f"{diary.n_occasions} prompts. Next: give the items states.", 8000)
             self.show_page(0)
 
@@ -704,6 +706,7 @@ class MainWindow(QMainWindow):
         self._close_confirmed = False
         self.files.autosave_timer.stop()
         self.files.discard_recoveries()
+        self.study_bar.stop()
         if self.worker.busy:
             self.statusBar().showMessage("Stopping the estimation…")
             QApplication.setOverrideCursor(Qt.CursorShape.WaitCursor)

@@ -102,6 +102,11 @@ class StudyBar(QToolBar):
         self.batch.raise_()
         return self.batch
 
+    def stop(self) -> None:
+        """Cancel a running batch and wait for the person being fitted (the window closes)."""
+        if self.batch is not None:
+            self.batch.worker.wait()
+
     def _batch_finished(self, folder: str) -> None:
         self.session.set_study(replace(self.session.study, batch_folder=folder))
         self.refresh()

@@ -15,7 +15,7 @@ import pandas as pd
 from PySide6.QtCore import Qt
 
 from batch_people import RECIPE, person_table, stacked
-from lagwise.desktop.import_dialog import guess_role
+from lagwise.desktop.import_dialog import ImportDialog, guess_role
 from lagwise.models.estimate import fit
 from lagwise.models.estimators import FitOptions
 from lagwise.models.numbers import fmt
@@ -140,3 +140,14 @@ def test_cancel_keeps_the_finished_people_and_a_rerun_fits_the_rest(lagwise_app,
         assert batch.start()
     assert f"({len(done)} already done)" in batch.message.text()
     assert set(batch.statuses().values()) == {"fitted"}
+
+
+def test_far_out_answers_of_any_person_are_offered_as_missing(lagwise_app, qtbot, tmp_path):
+    tables = {name: person_table(100 + i, days=5) for i, name in enumerate(("P00", "P01"))}
+    tables["P01"].loc[3, "c1"] = -99   # a 'no answer' code (common practice) in P01's rows only
+    path = tmp_path / "people.csv"
+    stacked(tables).to_csv(path, index=False)
+    dialog = ImportDialog(None, path)
+    qtbot.addWidget(dialog)
+    assert dialog.study_choice().person == "P00"      # the preview describes P00's diary
+    assert "-99" in dialog.far_codes() and "Item 'c1': -99 (1 time)" in dialog.far_label.text()
