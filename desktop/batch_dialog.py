@@ -165,13 +165,13 @@ class BatchDialog(QDialog):
             if self.table.item(r, 2).text() == WAITING and person in self._prints:
                 stored = batchfiles.load_outcome(self._folder, person, self._prints[person])
                 if stored is not None:
-                    self.table.item(r, 2).setText(_status(stored))
+                    _show_status(self.table.item(r, 2), _status(stored))
 
     def _done(self, outcome: BatchOutcome) -> None:
         status = {o.person: _status(o) for o in outcome.outcomes}
         for r in range(self.table.rowCount()):
             item = self.table.item(r, 2)
-            item.setText(status.get(self.table.item(r, 0).text(), item.text()))
+            _show_status(item, status.get(self.table.item(r, 0).text(), item.text()))
         self.progress.setValue(1000)
         fitted = len(outcome.outcomes) - len(outcome.not_fitted)
         self.message.setText(f"{fitted} of {len(outcome.outcomes)} people fitted "
@@ -199,3 +199,8 @@ class BatchDialog(QDialog):
 def _status(outcome: PersonOutcome) -> str:
     """'fitted', or the status with its reason ('failed: too few complete lag windows ...')."""
     return outcome.status if outcome.fitted else f"{outcome.status}: {outcome.reason}"
+
+
+def _show_status(item: QTableWidgetItem, text: str) -> None:
+    item.setText(text)
+    item.setToolTip(text)   # a long reason is cut at the table's edge

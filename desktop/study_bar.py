@@ -125,6 +125,9 @@ class StudyBar(QToolBar):
             self.across.close()
         self.across = across
         across.personChosen.connect(self.open_person)
+        if self.state.active:
+            across.note.setText(f"{across.note.text()} Click a person in the People tab to "
+                                "open their results in the window.")
         across.show()
         return across
 
