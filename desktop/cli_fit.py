@@ -15,7 +15,6 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from dataclasses import replace
 
 from lagwise.desktop.cli_common import (
     add_diary_arguments, diary_from_args, in_range, recipe_from_args,
@@ -26,6 +25,7 @@ from lagwise.models.estimate import fit
 from lagwise.models.lag2check import lag2_check
 from lagwise.models.project import (
     Project, embed_file, is_project_file, open_project, project_diary, save_project,
+    with_estimate,
 )
 from lagwise.models.bootstrap import MAX_REPLICATES, Bootstrap, bootstrap
 from lagwise.models.report import format_bootstrap, format_lag2, format_responses, format_result
@@ -246,7 +246,7 @@ def save_fitted(args: argparse.Namespace, project: Project | None, spec: ModelSp
         if project is None:
             project = Project.of_recipe(embed_file(args.data), recipe_from_args(args),
                                         spec=spec, options=options)
-        save_project(replace(project, result=result), args.save)
+        save_project(with_estimate(project, result), args.save)
     except LagwiseError as error:
         print(f"lagwise: {error}", file=sys.stderr)
         return False

@@ -21,7 +21,8 @@ RESULTS_SECTIONS = {"measurement": "results-measurement", "dynamics": "results-d
                     "responses": "results-responses", "innovations": "results-innovations",
                     "fit": "results-fit", "parameters": "results-parameters",
                     "state scores": "results-state-scores", "lag-2 check": "results-lag2",
-                    "stability": "results-stability"}
+                    "stability": "results-stability", "runs": "results-runs",
+                    "compare": "results-compare"}
 
 
 class GuideWindow(QDialog):

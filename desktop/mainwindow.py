@@ -143,7 +143,7 @@ class MainWindow(QMainWindow):
         for name, section, page in zip(PAGES, PAGE_SECTIONS, self.pages()):
             title = next(t for t in page.findChildren(QLabel) if t.text() == name)
             add_guide_button(title, lambda s=section: self.open_guide(s), f"the {name} page")
-        for panel in (*self.results.all_panels(), self.results.stability):
+        for panel in self.results.tab_panels():
             section = RESULTS_SECTIONS[panel.name]
             add_guide_button(panel.title, lambda s=section: self.open_guide(s),
                              f"the {panel.name} tab")
@@ -307,6 +307,7 @@ class MainWindow(QMainWindow):
         self.files.recentChanged.connect(self._fill_recent_menu)
         s.documentReplaced.connect(self.worker.cancel)
         self._connect_lag2()
+        self.results.set_session(s)
         self.results.stability.run_requested.connect(self.run_bootstrap)
         self.results.responses.choice_changed.connect(
             lambda: s.set_responses(self.results.responses.response_choice()))
@@ -475,6 +476,7 @@ class MainWindow(QMainWindow):
         if self.worker.job == JOB_LAG2:
             self.results.lag2.show_check(result)
             self.results.lag2.set_spec(self.session.spec)  # edited meanwhile: out of date
+            self.session.set_lag2(result, self._running)
             self.statusBar().showMessage(f"Lag-2 check finished: {result.verdict}", 15000)
             self.show_page(PAGES.index("Results"))
             self.results.tabs.setCurrentWidget(self.results.lag2)
@@ -527,8 +529,11 @@ class MainWindow(QMainWindow):
         """A new result in every tab (the lag-2 tab keeps following the model being edited)."""
         self.results.set_diary(self.session.diary)
         self.results.show_result(self.session.result)
-        if self.session.bootstrap is not None:   # reopened with the project
-            self.results.show_bootstrap(self.session.bootstrap, self.session.result)
+        run = self.session.current_run
+        if run is not None and run.bootstrap is not None:   # kept with the run
+            self.results.show_bootstrap(run.bootstrap, run.result)
+        if run is not None and run.lag2 is not None:
+            self.results.lag2.show_check(run.lag2)
         if self.session.result is not None and self.session.responses is not None:
             self.results.responses.set_response_choice(self.session.responses)
         self.results.lag2.set_spec(self.session.spec)

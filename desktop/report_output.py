@@ -3,8 +3,9 @@
 The text comes from models.reporting (one `ReportInput`); this module draws the window's own
 diagram scenes offscreen (the lagged paths, the innovations) and writes the file through
 models.atomic.write_output. The PDF is Qt's own: the same HTML, laid out by a QTextDocument
-on A4 or Letter pages with the diagrams as 300-dpi pictures, each page numbered, painted by
-QPdfWriter; `png_pages` paints the same pages into pictures. `ReportExport` is the window's
+on A4 or Letter pages, each page numbered, painted by QPdfWriter; the diagrams are text objects
+of the document that paint their scene with the page's painter, so they stay vector graphics in
+the PDF. `png_pages` paints the same pages into pictures. `ReportExport` is the window's
 File ▸ Export report… (the input is gathered in a worker; drawing and writing are quick).
 """
 
@@ -12,12 +13,12 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from PySide6.QtCore import QBuffer, QIODevice, QMarginsF, QObject, QRectF, QSizeF, Qt, QUrl
+from PySide6.QtCore import QBuffer, QIODevice, QMarginsF, QObject, QRectF, QSizeF, Qt
 from PySide6.QtGui import (QColor, QImage, QPageLayout, QPageSize, QPainter, QPdfWriter,
-                           QTextDocument)
+                           QPyTextObject, QTextCharFormat, QTextCursor, QTextDocument, QTextFormat)
 from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMessageBox, QWidget
 
-from lagwise.desktop.export import svg_bytes, svg_resolution
+from lagwise.desktop.export import svg_bytes
 from lagwise.desktop.results.dynamics_diagram import DynamicsDiagram
 from lagwise.desktop.results.innovations import InnovationsPanel
 from lagwise.desktop.style import plain
@@ -83,17 +84,54 @@ def svg_figures(result: FitResult) -> list[Figure]:
     return figures
 
 
-def _scene_image(scene: QGraphicsScene, width: int) -> QImage:
-    rect = scene.itemsBoundingRect().adjusted(-10, -10, 10, 10)
-    height = max(1, round(width * rect.height() / max(rect.width(), 1.0)))
-    image = QImage(width, height, QImage.Format.Format_ARGB32_Premultiplied)
-    image.fill(QColor("white"))
-    painter = QPainter(image)
-    painter.setRenderHint(QPainter.RenderHint.Antialiasing)
-    painter.setRenderHint(QPainter.RenderHint.TextAntialiasing)
-    scene.render(painter, QRectF(0, 0, width, height), rect)
-    painter.end()
-    return image
+SCENE_OBJECT = QTextFormat.ObjectTypes.UserObject + 1
+SCENE_PROPERTY = QTextFormat.Property.UserProperty + 1   # which scene a text object draws
+
+
+class _SceneObjects(QPyTextObject):
+    """The diagrams inside the report's text: each text object of type SCENE_OBJECT takes
+    `width` writer pixels and paints its scene (vector) wherever the page is painted."""
+
+    def __init__(self, scenes: list[QGraphicsScene], width: float) -> None:
+        super().__init__()
+        self._scenes = scenes
+        self._sources = [s.itemsBoundingRect().adjusted(-10, -10, 10, 10) for s in scenes]
+        self._width = width
+
+    def intrinsicSize(self, _doc, _pos, fmt) -> QSizeF:  # noqa: N802 (Qt's name)
+        source = self._sources[int(fmt.property(SCENE_PROPERTY))]
+        return QSizeF(self._width, self._width * source.height() / max(source.width(), 1.0))
+
+    def drawObject(self, painter, rect, _doc, _pos, fmt) -> None:  # noqa: N802 (Qt's name)
+        n = int(fmt.property(SCENE_PROPERTY))
+        painter.save()
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+        painter.setRenderHint(QPainter.RenderHint.TextAntialiasing)
+        self._scenes[n].render(painter, rect, self._sources[n])
+        painter.restore()
+
+
+def _objects_for_pictures(document: QTextDocument) -> None:
+    """Replace each placeholder picture `scene-N` of the laid-out HTML by text object N."""
+    places = []
+    block = document.begin()
+    while block.isValid():
+        it = block.begin()
+        while not it.atEnd():
+            fragment = it.fragment()
+            fmt = fragment.charFormat()
+            if fmt.isImageFormat() and fmt.toImageFormat().name().startswith("scene-"):
+                places.append((fragment.position(), int(fmt.toImageFormat().name()[6:])))
+            it += 1
+        block = block.next()
+    for position, n in places:
+        cursor = QTextCursor(document)
+        cursor.setPosition(position)
+        cursor.setPosition(position + 1, QTextCursor.MoveMode.KeepAnchor)
+        fmt = QTextCharFormat()
+        fmt.setObjectType(SCENE_OBJECT)
+        fmt.setProperty(SCENE_PROPERTY, n)
+        cursor.insertText("\ufffc", fmt)
 
 
 # ----- pages ---------------------------------------------------------------------------------
@@ -118,16 +156,14 @@ class Pages:
         self.footer = 2.5 * FOOTER_POINTS * RESOLUTION / 72    # writer pixels (72 points an inch)
         self.document = QTextDocument()
         self.document.documentLayout().setPaintDevice(self.writer)
-        width = round(self.paint.width() * 0.8)
-        screen = svg_resolution()   # the text layout scales pictures by the writer's DPI over this
-        figures = []
-        for n, (caption, scene, _owner) in enumerate(diagram_scenes(inp.result)):
-            name = f"figure-{n + 1}"
-            image = _scene_image(scene, width)
-            image.setDevicePixelRatio(RESOLUTION / screen)   # shown `width` writer pixels wide
-            self.document.addResource(QTextDocument.ResourceType.ImageResource, QUrl(name), image)
-            figures.append(Figure(caption, f'<img src="{name}">'))
+        self._diagrams = diagram_scenes(inp.result)   # owners kept alive with the pages
+        self._objects = _SceneObjects([scene for _c, scene, _o in self._diagrams],
+                                      round(self.paint.width() * 0.8))
+        self.document.documentLayout().registerHandler(SCENE_OBJECT, self._objects)
+        figures = [Figure(caption, f'<img src="scene-{n}">')
+                   for n, (caption, _scene, _owner) in enumerate(self._diagrams)]
         self.document.setHtml(report_html(inp, figures))
+        _objects_for_pictures(self.document)
         self.document.setPageSize(QSizeF(self.paint.width(), self.paint.height() - self.footer))
 
     @property

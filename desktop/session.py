@@ -1,12 +1,13 @@
 """The document the window edits: the diary, how it was imported, its preparation steps,
-the model, the last result and the project notes.
+the model, the runs (every estimate, models.runs; one of them current) and the project notes.
 
 A `Session` holds immutable values only (Diary, ImportSettings, preparation Steps,
 ModelSpec, FitOptions, FitResult) and announces every change through Qt signals; views
 subscribe to it. Every edit of the model, the steps or the notes goes through the undo stack
 as a command that swaps one immutable value for another, so undo and redo are exact and
-cheap. A running estimate gets a `snapshot()` of the values (the diary with the steps
-applied), never the session itself.
+cheap; so do renaming, annotating, deleting and reopening runs. Every finished estimate
+appends a run and makes it current. A running estimate gets a `snapshot()` of the values (the
+diary with the steps applied), never the session itself.
 
 The session is also the project document (models.project.Project): `to_project` and
 `load_project` convert, and `is_modified` says whether it differs from its file (an undoable
@@ -25,8 +26,14 @@ from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import SpecError
 from lagwise.models.names import without_unsafe
 from lagwise.models.preparation import Step, apply_steps, steps_from_json, steps_to_json
-from lagwise.models.project import Project, ProjectData, embed_table, project_diary
+from lagwise.models.project import (
+    Project, ProjectData, data_fingerprint, embed_table, project_diary, table_digest, utc_now,
+)
 from lagwise.models.results import FitResult
+from lagwise.models.runs import (
+    Run, add_run, annotate_run, checked_name, find_run, free_name, new_run, next_name,
+    rename_run, tests_result, update_run,
+)
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
 from lagwise.models.study import StudyChoice, person_rows
@@ -60,7 +67,8 @@ class Snapshot:
     """Frozen inputs of one estimate.
 
     diary: the prepared diary the estimate uses (`raw` with the `preparation` steps applied);
-    raw: the diary as imported (None: the same as `diary`).
+    raw: the diary as imported (None: the same as `diary`);
+    fingerprint: of the data, recipe and steps (models.project.data_fingerprint; "": unknown).
     """
 
     diary: Diary
@@ -68,6 +76,7 @@ class Snapshot:
     options: FitOptions
     preparation: tuple[Step, ...] = ()
     raw: Diary | None = None
+    fingerprint: str = ""
 
     @property
     def source(self) -> Diary:
@@ -84,7 +93,8 @@ class Session(QObject):
     dataChanged = Signal()      # diary or import settings replaced
     specChanged = Signal()      # model specification replaced
     optionsChanged = Signal()   # estimator settings replaced
-    resultChanged = Signal()    # a new result (or none)
+    resultChanged = Signal()    # another current run (a new estimate, reopened, none)
+    runsChanged = Signal()      # the runs were added, renamed, annotated or deleted
     preparationChanged = Signal()  # preparation steps replaced
     notesChanged = Signal()     # project notes replaced
     fileChanged = Signal()      # the project file (and so the name) changed
@@ -99,10 +109,12 @@ class Session(QObject):
         self._import: ImportSettings | None = None
         self._spec: ModelSpec = EMPTY_SPEC
         self._options = FitOptions()
-        self._result: FitResult | None = None
-        self._bootstrap = None     # the bootstrap of the result (models.bootstrap.Bootstrap)
+        self._runs: tuple[Run, ...] = ()
+        self._current: str | None = None   # the current run's name
         self._responses = None     # what the Responses tab shows (models.responses.ResponseChoice)
-        self._result_inputs: Snapshot | None = None
+        self._digest: tuple[object, str | None] | None = None  # (data, table_digest) cache
+        self._stale = None         # a result opened as out of date (saved so in its project)
+        self._numbered = 0         # default run names start at "Run N" with N this or more
         self._preparation: tuple[Step, ...] = ()
         self._prepared: tuple[Diary, tuple[Step, ...], Diary] | None = None  # cache
         self._data: ProjectData | None = None
@@ -149,8 +161,19 @@ class Session(QObject):
         return self._options
 
     @property
+    def runs(self) -> tuple[Run, ...]:
+        """Every estimate kept, oldest first."""
+        return self._runs
+
+    @property
+    def current_run(self) -> Run | None:
+        return None if self._current is None else find_run(self._runs, self._current)
+
+    @property
     def result(self) -> FitResult | None:
-        return self._result
+        """The current run's result."""
+        run = self.current_run
+        return None if run is None else run.result
 
     @property
     def items(self) -> tuple[str, ...]:
@@ -190,15 +213,25 @@ class Session(QObject):
         if self._diary is None:
             return None
         return Snapshot(self.prepared_diary(), self._spec, self._options, self._preparation,
-                        self._diary)
+                        self._diary, self.fingerprint())
+
+    def fingerprint(self) -> str:
+        """The fingerprint of the present data, recipe, preparation steps and person shown
+        (models.project; the table is hashed once per data source)."""
+        if self._digest is None or self._digest[0] is not self._data:
+            self._digest = (self._data, table_digest(self._data))
+        recipe = self._import.recipe if self._import is not None else None
+        return data_fingerprint(self._digest[1], recipe or DiaryRecipe(),
+                                steps_to_json(self._preparation),
+                                None if self._study is None else self._study.person)
 
     def result_is_current(self) -> bool:
-        """True when the shown result was estimated from the present diary, preparation steps,
-        model and settings."""
-        inputs = self._result_inputs
-        return (self._result is not None and inputs is not None
-                and inputs.source is self._diary and inputs.preparation == self._preparation
-                and inputs.spec == self._spec and inputs.options == self._options)
+        """True when the current run was estimated from the present data, recipe and
+        preparation steps (its fingerprint), model and settings."""
+        run = self.current_run
+        return (run is not None and self._diary is not None and run.result is not self._stale
+                and run.fingerprint == self.fingerprint()
+                and run.spec == self._spec and run.options == self._options)
 
     def validation(self) -> tuple[list[str], str | None]:
         """Plain-word notes on the model and the one problem that blocks estimation, if any."""
@@ -233,8 +266,7 @@ class Session(QObject):
         self._preparation = tuple(preparation)
         if notes is not None:
             self._notes = notes
-        self._result = None
-        self._result_inputs = None
+        self._runs, self._current, self._stale, self._numbered = (), None, None, 0
         self._untitled = "untitled"
         if self._file is not None:  # a new diary starts a new, untitled project
             self._file, self._created = None, ""
@@ -248,30 +280,50 @@ class Session(QObject):
         self._frame = self._diary = self._import = self._data = None
         self._spec, self._options = EMPTY_SPEC, FitOptions()
         self._preparation, self._notes, self._study = (), "", None
-        self._result = self._result_inputs = None
+        self._runs, self._current, self._stale, self._numbered = (), None, None, 0
         self._file, self._created, self._untitled = None, "", "untitled"
         self.fileChanged.emit()
         self._set_unsaved(False)
         self._emit_all()
 
-    def set_result(self, result: FitResult | None, inputs: Snapshot | None = None) -> None:
-        """Show `result`, estimated from `inputs` (not an edit: it is not undoable, but the
-        document counts as unsaved); a bootstrap of an earlier result is dropped."""
-        self._result = result
-        self._result_inputs = inputs
-        self._bootstrap = None
+    def set_result(self, result: FitResult, inputs: Snapshot | None = None) -> None:
+        """Keep `result`, estimated from `inputs` (None: the present data and steps), as a new
+        run and make it current (not an edit: it is not undoable, but the document counts as
+        unsaved)."""
+        fingerprint = inputs.fingerprint if inputs is not None and inputs.fingerprint else \
+            self.fingerprint()
+        steps = self._preparation if inputs is None else inputs.preparation
+        name = next_name(self._runs, self._numbered)
+        run = new_run(self._runs, result, fingerprint, utc_now(), tuple(steps_to_json(steps)),
+                      name=name)
+        self._runs, self._current = add_run(self._runs, run), run.name
+        self._numbered = int(name.removeprefix("Run ")) + 1
         self._set_unsaved(True)
+        self.runsChanged.emit()
         self.resultChanged.emit()
 
     @property
     def bootstrap(self):
-        """The bootstrap of the present result, or None."""
-        return self._bootstrap
+        """The bootstrap of the current run, or None."""
+        run = self.current_run
+        return None if run is None else run.bootstrap
 
     def set_bootstrap(self, boot) -> None:
-        """Keep a finished bootstrap of the present result (saved with the project)."""
-        self._bootstrap = boot
+        """Keep a finished bootstrap of the current run's result (saved with the project)."""
+        self._runs = update_run(self._runs, self._current, bootstrap=boot)
         self._set_unsaved(True)
+        self.runsChanged.emit()
+
+    def set_lag2(self, check, inputs: Snapshot | None) -> None:
+        """Keep a finished lag-2 check with the current run when it tested that run's lag-1
+        model on the run's data and steps (models.runs.tests_result)."""
+        run = self.current_run
+        if (run is None or inputs is None or inputs.fingerprint != run.fingerprint
+                or not tests_result(check, run.result)):
+            return
+        self._runs = update_run(self._runs, run.name, lag2=check)
+        self._set_unsaved(True)
+        self.runsChanged.emit()
 
     @property
     def responses(self):
@@ -282,7 +334,7 @@ class Session(QObject):
         """Keep what the Responses tab shows (saved with the project, with a result)."""
         if choice != self._responses:
             self._responses = choice
-            if self._result is not None:
+            if self._current is not None:
                 self._set_unsaved(True)
 
     @property
@@ -295,7 +347,8 @@ class Session(QObject):
         self._document += 1
         self.documentReplaced.emit()
         for signal in (self.dataChanged, self.specChanged, self.optionsChanged,
-                       self.preparationChanged, self.notesChanged, self.resultChanged):
+                       self.preparationChanged, self.notesChanged, self.runsChanged,
+                       self.resultChanged):
             signal.emit()
 
     # ----- project files -------------------------------------------------------------
@@ -335,10 +388,9 @@ class Session(QObject):
             prompts_per_day=None if settings is None else settings.prompts_per_day,
             scales=() if settings is None else settings.scales,
             preparation=tuple(steps_to_json(self._preparation)),
-            spec=spec, options=self._options, result=self._result,
-            result_current=self._result is None or self.result_is_current(),
-            bootstrap=self._bootstrap,
-            responses=None if self._result is None else self._responses, notes=self._notes,
+            spec=spec, options=self._options, runs=self._runs, current_run=self._current,
+            result_current=self._current is None or self.result_is_current(),
+            responses=None if self._current is None else self._responses, notes=self._notes,
             study=self._study, created=self._created, file=self._file)
 
     def load_project(self, project: Project, table, saved: bool = True,
@@ -376,15 +428,12 @@ class Session(QObject):
         self._prepared = (raw, self._preparation, prepared)
         self._file, self._created = project.file, project.created
         self.fileChanged.emit()
-        result = project.result
-        if result is not None:
-            current = (project.result_current and result.spec == self._spec
-                       and result.options == self._options)
-            # estimated from earlier inputs: shown, with no known inputs, so not current
-            self._bootstrap = project.bootstrap
+        if project.runs:
+            self._runs, self._current = project.runs, project.current_run
+            self._stale = None if project.result_current else project.result
             self._responses = project.responses
-            self._result, self._result_inputs = result, self.snapshot() if current else None
             self._set_unsaved(True)
+            self.runsChanged.emit()
             self._announcer.start()
         if saved:
             self.mark_saved(project.file)
@@ -444,6 +493,65 @@ class Session(QObject):
         self.undo_stack.push(_Swap(self, "_preparation", self.preparationChanged,
                                    self._preparation, steps, text))
 
+    def rename_run(self, name: str, new_name: str) -> None:
+        """Rename a run (undoable); ProjectError for an empty, repeated or unsafe name."""
+        new = checked_name(new_name, self._runs, renaming=name)
+        find_run(self._runs, name)
+        if new != name:
+            self._edit_runs(f"Rename run '{name}'", _renaming(name, new), _renaming(new, name))
+
+    def annotate_run(self, name: str, note: str) -> None:
+        """Replace a run's note (undoable; unsafe characters left out, models.names)."""
+        old = find_run(self._runs, name).note
+        new = find_run(annotate_run(self._runs, name, note), name).note
+        if new != old:
+            self._edit_runs(f"Note on run '{name}'", _noting(name, new), _noting(name, old))
+
+    def delete_run(self, name: str) -> None:
+        """Delete a run (undoable); deleting the current run makes the newest remaining run
+        current (none when no run remains)."""
+        find_run(self._runs, name)
+        kept: dict = {}
+
+        def forward(runs, current):
+            index = [run.name for run in runs].index(name)
+            kept.update(run=runs[index], index=index, current=current == name)
+            rest = runs[:index] + runs[index + 1:]
+            if current == name:
+                current = rest[-1].name if rest else None
+            return rest, current
+
+        def backward(runs, current):
+            run = kept["run"]
+            if any(other.name == run.name for other in runs):  # the name was given again
+                run = replace(run, name=free_name(runs, run.name))
+            index = kept["index"]
+            return runs[:index] + (run,) + runs[index:], run.name if kept["current"] else current
+
+        self._edit_runs(f"Delete run '{name}'", forward, backward)
+
+    def reopen_run(self, name: str) -> None:
+        """Make a run current and its specification and settings the model (one undoable
+        step)."""
+        run = find_run(self._runs, name)
+        before = self._current
+        self.undo_stack.beginMacro(f"Reopen run '{name}'")
+        self._edit_runs(f"Show run '{name}'", lambda runs, _: (runs, name),
+                        lambda runs, _: (runs, before))
+        self.edit_spec(run.spec, f"Model of run '{name}'")
+        self.edit_options(run.options, f"Settings of run '{name}'")
+        self.undo_stack.endMacro()
+
+    def _edit_runs(self, text: str, forward, backward) -> None:
+        self.undo_stack.push(_RunsEdit(self, text, forward, backward))
+
+    def _set_runs(self, runs: tuple[Run, ...], current: str | None) -> None:
+        shown = self.result
+        self._runs, self._current = runs, current
+        self.runsChanged.emit()
+        if self.result is not shown:
+            self.resultChanged.emit()
+
     def set_notes(self, notes: str, text: str = "Project notes") -> None:
         """Replace the project notes (undoable); characters a project may not hold (control
         characters but line breaks and tabs, models.names) are left out."""
@@ -458,13 +566,15 @@ class Session(QObject):
         self._set_unsaved(True)
 
     # ----- used by the commands ------------------------------------------------------
-    def show_person(self, study: StudyChoice, frame, diary: Diary) -> tuple:
-        """Show another person's rows and diary (desktop.study_state's undoable change);
-        the result is dropped. Returns the replaced (study, frame, diary)."""
-        old = (self._study, self._frame, self._diary)
-        self._study, self._frame, self._diary = study, frame, diary
-        self._result = self._result_inputs = self._bootstrap = None
+    def show_person(self, study: StudyChoice, frame, diary: Diary,
+                    current: str | None = None) -> tuple:
+        """Show another person's rows and diary with run `current` (desktop.study_state's
+        undoable change; the runs stay). Returns the replaced (study, frame, diary, current)."""
+        old = (self._study, self._frame, self._diary, self._current)
+        self._study, self._frame, self._diary, self._current = study, frame, diary, current
+        self._stale = None
         self.dataChanged.emit()
+        self.runsChanged.emit()
         self.resultChanged.emit()
         return old
 
@@ -488,6 +598,35 @@ class _Swap(QUndoCommand):
     def undo(self) -> None:
         setattr(self._session, self._attribute, self._old)
         self._signal.emit()
+
+
+class _RunsEdit(QUndoCommand):
+    """An edit of the runs: `forward` and `backward` map (runs, current name) to new ones and
+    are applied to the runs as they are when it is done or undone, so runs added meanwhile by
+    estimates (which are not undoable) stay."""
+
+    def __init__(self, session: Session, text: str, forward, backward) -> None:
+        super().__init__(text)
+        self._session, self._forward, self._backward = session, forward, backward
+
+    def redo(self) -> None:
+        self._session._set_runs(*self._forward(self._session._runs, self._session._current))
+
+    def undo(self) -> None:
+        self._session._set_runs(*self._backward(self._session._runs, self._session._current))
+
+
+def _renaming(old: str, new: str):
+    """The runs with run `old` named `new` (left as they are when `new` was taken meanwhile)."""
+    def rename(runs, current):
+        if any(run.name == new for run in runs) or not any(run.name == old for run in runs):
+            return runs, current
+        return rename_run(runs, old, new), new if current == old else current
+    return rename
+
+
+def _noting(name: str, note: str):
+    return lambda runs, current: (update_run(runs, name, note=note), current)
 
 
 class _DataSwap(QUndoCommand):

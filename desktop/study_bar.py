@@ -145,9 +145,8 @@ class StudyBar(QToolBar):
             QMessageBox.information(self, f"{person} was not fitted", style.plain(
                 f"{person}: {outcome.status}: {outcome.reason}"))
             return False
-        s = self.session
-        result = FitResult.from_json(outcome.document, person)
-        current = result.spec == s.spec and result.options == s.options and not s.preparation
-        s.set_result(result, s.snapshot() if current else None)
+        # a new run of the person shown; the batch fitted their diary with the preparation
+        # steps of its start, taken to be the present ones
+        self.session.set_result(FitResult.from_json(outcome.document, person))
         self._show_results()
         return True

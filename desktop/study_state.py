@@ -4,8 +4,8 @@ The session keeps what a project saves of the study (models.study.StudyChoice: t
 column, the person shown, the batch folder) and the shown person's rows and diary;
 `StudyState` builds every person's diary from the session's table and import settings when
 asked (cached until they change) and changes the person shown. Changing person is an
-undoable edit (Edit > Undo goes back to the previous person); the model, the settings and the
-preparation steps stay, the result of the previous person is dropped.
+undoable edit (Edit > Undo goes back to the previous person and their run); the model, the
+settings, the preparation steps and the runs stay, and no run is current for the new person.
 """
 
 from __future__ import annotations
@@ -73,7 +73,8 @@ class StudyState(QObject):
 
 
 class _PersonChange(QUndoCommand):
-    """Show another person of the study; undo shows the previous one again."""
+    """Show another person of the study (no run current); undo shows the previous one and
+    their current run again."""
 
     def __init__(self, session: Session, new: tuple, text: str) -> None:
         super().__init__(text)

@@ -7,7 +7,7 @@
 - Readers check one value and return it as Python wants it: `obj`, `array`, `text` (no
   control character but line breaks and tabs: models.names), `name` (none at all),
   `integer`, `number`, `number_or_nan`, `boolean`, `choice`, `tuple_of`, `mapping` (keys
-  as names), `matrix`. Each takes the value and `where`, the value's path in the document
+  as names), `matrix`, `sha256` (a digest), `timestamp` (ISO 8601 with its UTC offset). Each takes the value and `where`, the value's path in the document
   ("results.parameters[3].se"), and raises FieldError(where, problem) for anything else.
 - `field` and `read_fields` describe an object declaratively, one line per field (key,
   reader, default, reader options); the values' `from_json` methods (ModelSpec, FitOptions,
@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import json
 from dataclasses import dataclass, field as _dataclass_field
+from datetime import datetime
 from typing import Any, Callable, Iterable, Mapping
 
 import numpy as np
@@ -292,3 +293,25 @@ def matrix(value: Any, where: str, shape: tuple[int, ...]) -> np.ndarray:
     for i, row in enumerate(rows):
         out[i] = matrix(row, f"{where}[{i}]", shape[1:])
     return out
+
+
+def sha256(value: Any, where: str, null: bool = False) -> str | None:
+    """A SHA-256 digest as 64 lower-case hex digits."""
+    if value is None and null:
+        return None
+    digest = text(value, where)
+    if len(digest) != 64 or any(c not in "0123456789abcdef" for c in digest):
+        raise FieldError(where, "should be a SHA-256 digest (64 lower-case hex digits)")
+    return digest
+
+
+def timestamp(value: Any, where: str) -> str:
+    """An ISO 8601 time with its UTC offset, as text."""
+    written = text(value, where, 100)
+    try:
+        moment = datetime.fromisoformat(written.replace("Z", "+00:00"))
+    except ValueError:
+        raise FieldError(where, f"should be an ISO 8601 time, not {written[:40]!r}") from None
+    if moment.tzinfo is None:
+        raise FieldError(where, "should be an ISO 8601 time with its UTC offset")
+    return written

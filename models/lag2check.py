@@ -16,10 +16,12 @@ All statistics use the window pseudo-likelihood (overlapping windows): they are 
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from functools import partial
 
 import numpy as np
 from scipy.stats import chi2 as chi2_dist
 
+from lagwise.models import jsonread as jr
 from lagwise.models.blas import one_blas_thread
 from lagwise.models.diary import Diary
 from lagwise.models.errors import SpecError
@@ -29,7 +31,7 @@ from lagwise.models.numbers import p_phrase
 from lagwise.models.objective import WindowObjective
 from lagwise.models.optimise import interior
 from lagwise.models.progress import Monitor, checkpoint, scaled
-from lagwise.models.results import FitResult
+from lagwise.models.results import FitResult, _finite
 from lagwise.models.solution import solve
 from lagwise.models.spec import ModelSpec, full_mask
 from lagwise.models.windows import lag_windows
@@ -58,6 +60,16 @@ class PathTest:
         return {"kind": self.kind, "from": self.from_, "to": self.to, "score": self.score,
                 "p": self.p, "p_holm": self.p_holm, "epc": self.epc, "std_epc": self.std_epc}
 
+    @classmethod
+    def from_json(cls, doc: object, where: str = "") -> "PathTest":
+        """A test written by `to_json`; FieldError names a malformed field."""
+        fields = jr.read_fields(doc, where, (
+            jr.field("kind", jr.choice, choices=(str(Kind.LAG2), str(Kind.UNIQUE_AUTOCORRELATION))),
+            jr.field("from", jr.text, name="from_"), jr.field("to", jr.text),
+            *(jr.field(key, jr.number) for key in ("score", "p", "p_holm", "epc", "std_epc"))),
+            closed=True)
+        return cls(**{**fields, "kind": Kind(fields["kind"])})
+
 
 @dataclass(frozen=True, eq=False)
 class Lag2Check:
@@ -75,6 +87,27 @@ class Lag2Check:
         return {"lr": {"chi2": self.lr_chi2, "df": self.lr_df, "p": self.lr_p},
                 "paths": [p.to_json() for p in self.paths], "verdict": self.verdict,
                 "indicated": [p.to_json() for p in self.indicated], "cautions": list(self.cautions)}
+
+    def to_stored_json(self) -> dict:
+        """`to_json` with the two fitted models (as a project keeps the check)."""
+        return _finite({**self.to_json(), "restricted": self.restricted.to_json(),
+                        "extended": self.extended.to_json()})
+
+    @classmethod
+    def from_json(cls, doc: object, where: str = "") -> "Lag2Check":
+        """A check written by `to_stored_json`; FieldError names a malformed field."""
+        fields = jr.read_fields(doc, where, (
+            jr.field("lr", jr.obj, required=("chi2", "df", "p")),
+            jr.field("paths", jr.tuple_of, item=PathTest.from_json),
+            jr.field("verdict", jr.text, limit=jr.MAX_TEXT),
+            jr.field("indicated", jr.tuple_of, item=PathTest.from_json),
+            jr.field("cautions", jr.tuple_of, item=partial(jr.text, limit=jr.MAX_TEXT)),
+            jr.field("restricted", FitResult.from_json),
+            jr.field("extended", FitResult.from_json)), closed=True)
+        lr, at = fields.pop("lr"), jr.at(where, "lr")
+        return cls(lr_chi2=jr.number(lr["chi2"], jr.at(at, "chi2")),
+                   lr_df=jr.integer(lr["df"], jr.at(at, "df"), low=0),
+                   lr_p=jr.number(lr["p"], jr.at(at, "p")), **fields)
 
 
 def lag1_version(spec: ModelSpec) -> ModelSpec:

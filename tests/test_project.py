@@ -37,7 +37,7 @@ from lagwise.models.project import (
     ProjectVersionTooNew, discard_recovery, embed_file, embed_table, file_sha256,
     find_recoveries, find_recovery, link_file, open_project, project_diary, project_table,
     recovery_path, relink_data, save_project, table_from_json, table_to_json, upgrade_0_to_1,
-    write_recovery,
+    with_estimate, write_recovery,
 )
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import make_spec
@@ -67,7 +67,7 @@ def demo(tmp_path_factory) -> tuple[Project, Path]:
                       missing_codes=("-99",), spec=DEMO_SPEC, options=FitOptions(),
                       notes="Weeks 1-6.\nFirst look at the dynamics.")
     result = fit(project_diary(project), DEMO_SPEC)
-    return replace(project, result=result), csv
+    return with_estimate(project, result), csv
 
 
 @pytest.fixture(scope="module")
@@ -142,18 +142,20 @@ def test_a_bootstrap_is_kept_with_its_results(demo, tmp_path):
     # stability (models.bootstrap recomputes them from the estimates and checks them).
     from dataclasses import replace
     from lagwise.models.bootstrap import bootstrap
+    from lagwise.models.runs import update_run
 
     project, _ = demo
     boot = bootstrap(project_diary(project), project.spec, project.options, project.result,
                      replicates=6, seed=3, jobs=1)
     path = tmp_path / "with-bootstrap.lagwise"
-    save_project(replace(project, bootstrap=boot), path)
+    save_project(replace(project, runs=update_run(project.runs, "Run 1", bootstrap=boot)), path)
     opened = open_project(path)
     assert opened.bootstrap.to_json() == boot.to_json()
     np.testing.assert_array_equal(opened.bootstrap.estimates, boot.estimates)
     # a bootstrap of other parameters than the stored results' is refused
     doc = json.loads(path.read_text(encoding="utf-8"))
-    doc["bootstrap"]["parameters"] = doc["bootstrap"]["parameters"][::-1]
+    boot_doc = doc["runs"][0]["bootstrap"]
+    boot_doc["parameters"] = boot_doc["parameters"][::-1]
     path.write_text(json.dumps(doc), encoding="utf-8")
     with pytest.raises(ProjectError, match="bootstrap"):
         open_project(path)
@@ -265,9 +267,9 @@ def test_an_unfinished_model_can_be_saved_and_reopened(demo, tmp_path):
     with pytest.raises(SpecError):
         draft.validate()  # not estimable yet ...
     path = tmp_path / "draft.lagwise"
-    save_project(replace(project, spec=draft, result=None), path)
+    save_project(replace(project, spec=draft, runs=(), current_run=None), path)
     assert open_project(path).spec == draft  # ... but the work is kept
-    save_project(replace(project, spec=None, data=None, result=None), path)
+    save_project(replace(project, spec=None, data=None, runs=(), current_run=None), path)
     assert open_project(path).spec is None and open_project(path).data is None
 
 
@@ -329,8 +331,8 @@ def test_truncated_files_give_a_project_error(base_text, scratch, data):
 # Every field the format requires, by the object that holds it (resources/project-format.md).
 REQUIRED = {
     (): ["format", "format_version", "lagwise_version", "created", "modified", "data",
-         "items", "time", "missing_codes", "preparation", "spec", "options", "results",
-         "notes"],
+         "items", "time", "missing_codes", "preparation", "spec", "options", "runs",
+         "current_run", "notes"],
     ("data",): ["storage", "file_name", "sha256", "table"],
     ("data", "table"): ["columns", "row_labels", "rows"],
     ("data", "table", "columns", 0): ["name", "kind"],
@@ -339,12 +341,13 @@ REQUIRED = {
     ("spec",): ["states"],
     ("spec", "states", 0): ["name", "items"],
     ("options",): ["estimator", "missing"],
-    ("results",): ["spec", "options", "estimator", "converged", "n_windows", "n_occasions",
-                   "spectral_radius", "parameters", "fit", "matrices"],
-    ("results", "fit"): ["chi2", "df", "p", "rmsea", "cfi", "tli", "srmr", "loglik", "aic",
-                         "bic", "n_free", "n_obs"],
-    ("results", "matrices"): ["loadings", "intercepts", "unique", "lagged", "innovation",
-                              "latent_cov", "r_squared"],
+    ("runs", 0): ["name", "time", "fingerprint", "preparation", "results"],
+    ("runs", 0, "results"): ["spec", "options", "estimator", "converged", "n_windows",
+                             "n_occasions", "spectral_radius", "parameters", "fit", "matrices"],
+    ("runs", 0, "results", "fit"): ["chi2", "df", "p", "rmsea", "cfi", "tli", "srmr", "loglik",
+                                    "aic", "bic", "n_free", "n_obs"],
+    ("runs", 0, "results", "matrices"): ["loadings", "intercepts", "unique", "lagged",
+                                         "innovation", "latent_cov", "r_squared"],
 }
 REQUIRED_FIELDS = sorted(((path, key) for path, keys in REQUIRED.items() for key in keys),
                          key=str)
@@ -386,7 +389,10 @@ TYPED_FIELDS = {
     ("format_version",): {"int"}, ("lagwise_version",): {"str"}, ("created",): {"str"},
     ("modified",): {"str"}, ("data",): {"dict", "null"}, ("items",): {"list", "null"},
     ("time",): {"dict"}, ("missing_codes",): {"list"}, ("preparation",): {"list"},
-    ("spec",): {"dict", "null"}, ("options",): {"dict"}, ("results",): {"dict", "null"},
+    ("spec",): {"dict", "null"}, ("options",): {"dict"}, ("runs",): {"list"},
+    ("current_run",): {"str", "null"}, ("runs", 0): {"dict"}, ("runs", 0, "name"): {"str"},
+    ("runs", 0, "time"): {"str"}, ("runs", 0, "fingerprint"): {"str"},
+    ("runs", 0, "note"): {"str"}, ("runs", 0, "results"): {"dict"},
     ("notes",): {"str"}, ("data", "file_name"): {"str"}, ("data", "sha256"): {"str", "null"},
     ("data", "table"): {"dict"}, ("data", "table", "rows"): {"list"},
     ("data", "table", "rows", 0): {"list"}, ("data", "table", "rows", 0, 1): {"int", "null"},
@@ -396,9 +402,11 @@ TYPED_FIELDS = {
     ("time", "max_gap_minutes"): {"int", "float", "null"}, ("items", 0): {"str"},
     ("spec", "states"): {"list"}, ("spec", "lags"): {"int"}, ("spec", "states", 0, "name"): {"str"},
     ("options", "estimator"): {"str"}, ("options", "depth"): {"int", "null"},
-    ("results", "parameters"): {"list"}, ("results", "converged"): {"bool"},
-    ("results", "parameters", 0, "estimate"): {"int", "float"},
-    ("results", "matrices", "loadings"): {"list"}, ("results", "fit", "df"): {"int"},
+    ("runs", 0, "results", "parameters"): {"list"},
+    ("runs", 0, "results", "converged"): {"bool"},
+    ("runs", 0, "results", "parameters", 0, "estimate"): {"int", "float"},
+    ("runs", 0, "results", "matrices", "loadings"): {"list"},
+    ("runs", 0, "results", "fit", "df"): {"int"},
 }
 
 
@@ -510,8 +518,8 @@ def test_damage_messages_name_the_problem(base_text, scratch):
 def test_a_bad_field_inside_a_value_is_named_with_its_path_in_the_project(base_text, scratch):
     # the values read themselves (from_json) with the project's prefix for where they sit
     doc = json.loads(base_text)
-    doc["results"]["parameters"][3]["se"] = "0.1"
-    assert "field 'results.parameters[3].se' should be a number, not text" in \
+    doc["runs"][0]["results"]["parameters"][3]["se"] = "0.1"
+    assert "field 'runs[0].results.parameters[3].se' should be a number, not text" in \
         str(refuse(scratch, json.dumps(doc)))
     doc = json.loads(base_text)
     doc["spec"]["states"][1]["items"][0] = 5
@@ -534,8 +542,20 @@ def test_a_newer_format_version_gets_a_clear_message(base_text, scratch):
 
 # ------------------------------------------------------------------------ older versions
 
+def _as_version_1(doc: dict) -> dict:
+    """The version-1 layout of resources/project-format.md (the current run as "results",
+    its bootstrap as "bootstrap"), written from a version-2 document."""
+    old = {key: value for key, value in doc.items() if key not in ("runs", "current_run")}
+    current = next((run for run in doc["runs"] if run["name"] == doc["current_run"]), None)
+    old.update(format_version=1, results=None if current is None else current["results"])
+    if current is not None and "bootstrap" in current:
+        old["bootstrap"] = current["bootstrap"]
+    return old
+
+
 def _as_version_0(doc: dict) -> dict:
-    """The version-0 layout of resources/project-format.md, written from a version-1 document."""
+    """The version-0 layout of resources/project-format.md, written from a version-2 document."""
+    doc = _as_version_1(doc)
     old = {key: value for key, value in doc.items()
            if key not in ("spec", "options", "created", "modified", "notes", "preparation")}
     old.update(format_version=0, model=doc["spec"], estimation=doc["options"],

@@ -20,6 +20,8 @@ from lagwise.models.errors import ProjectError
 from lagwise.models.estimate import fit
 from lagwise.models.estimators import FitOptions
 from lagwise.models.project import Project, embed_file, embed_table, save_project
+from lagwise.models.project.estimates import with_estimate
+from lagwise.models.runs import update_run
 from lagwise.models.readers import read_table
 from lagwise.models.recipe import load_diary
 from lagwise.models.reporting.html import report_html
@@ -65,8 +67,8 @@ def project_of(options: FitOptions = FitOptions(), rename: dict[str, str] | None
     if rename:
         diary = replace(diary, items=tuple(rename.get(i, i) for i in diary.items))
     result = fit(diary, spec, options)
-    return Project(data=data, time=TIME, spec=spec, options=options, result=result,
-                   notes=f"Seen on {SCRIPT} day")
+    return with_estimate(Project(data=data, time=TIME, spec=spec, options=options,
+                                 notes=f"Seen on {SCRIPT} day"), result)
 
 
 @pytest.fixture(scope="module")
@@ -148,6 +150,20 @@ def test_the_report_shows_the_data_and_the_warnings(demo_project):
 def test_an_unknown_run_is_refused_by_name(demo_project):
     with pytest.raises(ProjectError, match="no run named 'first try'"):
         report_input(demo_project, "first try")
+
+
+def test_a_named_run_is_reported_with_its_own_estimates(demo_project):
+    # two runs of the same diary: the one named is reported, not the current one
+    spec = make_spec(STATES, lags=1, innovations="independent")
+    second = fit(load_diary(demo_diary_path(), time=TIME), spec, FitOptions())
+    project = with_estimate(demo_project, second, name="independent innovations")
+    first = demo_project.run.name
+    assert project.current_run == "independent innovations"
+    inp = report_input(project, first)
+    assert inp.run == first and inp.result is demo_project.result and inp.current
+    assert report_input(project).result is second
+    text = " ".join(Page(report_html(inp, [])).text)
+    assert f"(run {first})" in text
 
 
 def test_copied_tables_are_tab_separated_and_html():
@@ -234,7 +250,9 @@ def test_the_lag2_check_and_the_bootstrap_are_reported_when_present(demo_project
     boot = bootstrap(diary, result.spec, result.options, result, replicates=10, seed=1, jobs=1)
     plain = " ".join(Page(report_html(report_input(demo_project))).text)
     assert "Lag-2 check" not in plain and "bootstrap" not in plain.lower()
-    inp = report_input(replace(demo_project, bootstrap=boot), check=check)
+    with_boot = replace(demo_project, runs=update_run(demo_project.runs, demo_project.current_run,
+                                                      bootstrap=boot))
+    inp = report_input(with_boot, check=check)
     text = " ".join(Page(report_html(inp)).text)
     assert check.verdict in text and "Holm's procedure (Holm, 1979)" in text
     assert REFERENCES["holm"] in text and REFERENCES["efron"] in text

@@ -15,7 +15,9 @@ import pytest
 from batch_people import RECIPE, people_tables, stacked
 from lagwise.models.errors import DataError, ProjectError
 from lagwise.models.preparation import Step, apply_steps
-from lagwise.models.project import Project, embed_table, open_project, project_diary, save_project
+from lagwise.models.project import (
+    Project, embed_table, open_project, project_diary, project_fingerprint, save_project,
+)
 from lagwise.models.study import StudyChoice, person_rows, study_from_frame, with_steps
 
 TABLE = stacked(people_tables(3, days=4))
@@ -45,7 +47,8 @@ def test_a_version_1_file_opens_as_one_person(tmp_path):
     save_project(Project.of_recipe(embed_table(one), RECIPE), path)
     doc = json.loads(path.read_text())
     assert "study" not in doc
-    path.write_text(json.dumps({**doc, "format_version": 1}))
+    del doc["runs"], doc["current_run"]   # the version-1 layout: one "results"
+    path.write_text(json.dumps({**doc, "format_version": 1, "results": None}))
     opened = open_project(path)
     assert opened.study is None
     assert _same_diary(project_diary(opened), RECIPE.diary(one))
@@ -76,3 +79,10 @@ def test_preparation_steps_reach_every_person():
     for before, after in zip(study.people, prepared.people):
         assert _same_diary(after.diary, apply_steps(before.diary, steps))
         assert not _same_diary(after.diary, before.diary)
+
+
+def test_each_person_has_a_fingerprint_of_their_own():
+    # a run estimated from one person's rows is not current for another person's
+    one, two = (project_fingerprint(_project(StudyChoice("person", p))) for p in ("P00", "P01"))
+    assert one != two
+    assert project_fingerprint(_project(StudyChoice("person", "P00", "elsewhere"))) == one

@@ -114,17 +114,21 @@ class DiagramScene(QGraphicsScene):
         self._font = QFont()
         self._font.setPointSizeF(LABEL_POINT_SIZE)
         self._links: list[LinkItem] = []
+        self._hints: list[QGraphicsItem] = []   # legend lines shown on screen only
 
     def link_items(self) -> list[LinkItem]:
         return list(self._links)
 
     def draw(self, nodes: Sequence[Node], links: Sequence[Link], title: str = "",
              legend: Sequence[str] = (), message: str = "",
-             width_words: str = "width by standardized size:", faint_words: str = "") -> None:
+             width_words: str = "width by standardized size:", faint_words: str = "",
+             hint: str = "") -> None:
         """Draw states, links, a title above and a legend at the right; `message` notes absent
-        links; `faint_words` (when given) explains the faint links in the legend."""
+        links; `faint_words` (when given) explains the faint links in the legend; `hint` (how
+        to use the diagram on screen) ends the legend in the window but not in pictures."""
         self.clear()
         self._links = []
+        self._hints = []
         names = [n.name for n in nodes]
         positions = layout(names)
         radius = self._node_radius(nodes)
@@ -153,7 +157,7 @@ class DiagramScene(QGraphicsScene):
             text.setPos(body.center().x() - text.boundingRect().width() / 2,
                         body.top() - text.boundingRect().height() - 14)
         if legend:
-            self._add_legend(legend, width_words, faint_words, self.itemsBoundingRect())
+            self._add_legend(legend, width_words, faint_words, self.itemsBoundingRect(), hint)
         self.setSceneRect(self.itemsBoundingRect().adjusted(-24, -20, 24, 20))
         self.redrawn.emit()
 
@@ -294,9 +298,21 @@ class DiagramScene(QGraphicsScene):
         apex = start * 0.125 + c1 * 0.375 + c2 * 0.375 + end * 0.125
         self._add_label(item, apex, outward=out)
 
-    def _add_legend(self, lines: Sequence[str], width_words: str, faint_words: str, body: QRectF) -> None:
+    def render(self, painter, target=QRectF(), source=QRectF(),
+               mode=Qt.AspectRatioMode.KeepAspectRatio) -> None:
+        """The scene as a picture (exports, the report): without the on-screen hint."""
+        for item in self._hints:
+            item.hide()
+        try:
+            super().render(painter, target, source, mode)
+        finally:
+            for item in self._hints:
+                item.show()
+
+    def _add_legend(self, lines: Sequence[str], width_words: str, faint_words: str, body: QRectF,
+                    hint: str = "") -> None:
         """A legend column right of the diagram: sign samples, width samples, the faint samples
-        (with `faint_words`), then `lines`."""
+        (with `faint_words`), then `lines` and the `hint`."""
         x = body.right() + 48
         y = 0.0
         column: list[QGraphicsItem] = []
@@ -328,7 +344,7 @@ class DiagramScene(QGraphicsScene):
             sample(0.3, 0.3, "positive", firm=False)
             sample(-0.3, 0.3, "negative", firm=False)
         y += 10
-        for line in lines:
+        for line in (*lines, hint) if hint else lines:
             text = QGraphicsTextItem()
             text.setFont(self._font)
             text.setDefaultTextColor(QColor(NEUTRAL))
@@ -338,6 +354,8 @@ class DiagramScene(QGraphicsScene):
             self.addItem(text)
             column.append(text)
             y += text.boundingRect().height() + 2
+        if hint:
+            self._hints.append(column[-1])
         shift = body.center().y() - y / 2
         for item in column:
             item.moveBy(0.0, shift)

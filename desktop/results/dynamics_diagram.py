@@ -57,13 +57,14 @@ class DynamicsDiagram(DiagramScene):
         nodes = [Node(s, tooltip=f"State {s}") for s in result.states]
         what = "standardized effects" if mode == "standardized" else "estimates"
         own = "inertia" if lag == 1 else "own lag-2 path"
-        legend = [f"Arrows: the state at t-{lag} → the state at t. Loops: {own}. Labels: {what}.",
-                  "Hover over a path for its estimate, standardized value, SE and 95% interval."]
+        legend = [f"Arrows: the state at t-{lag} → the state at t. Loops: {own}. Labels: {what}."]
         cross = [l for l in links if l.source != l.target]
         message = "" if cross else "No cross-lagged effects are free in this model."
         title = "Lag-1 dynamics" if lag == 1 else "Lag-2 paths"
         self.draw(nodes, links, title=title, legend=legend, message=message,
-                  faint_words="" if alike else FAINT_WORDS)
+                  faint_words="" if alike else FAINT_WORDS,
+                  hint="Hover over a path for its estimate, standardized value, SE and 95% "
+                       "interval.")
 
     def arrows(self) -> list:
         """The drawn cross-lagged arrows (loops excluded)."""

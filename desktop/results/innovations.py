@@ -141,9 +141,9 @@ class InnovationsPanel(ResultsPanel):
         message = "" if links else "No associations between innovations are free in this model."
         self.scene.draw(nodes, links, title=f"Innovation {words}",
                         legend=[f"Lines: {words} between the states' innovations (no direction). "
-                                "Inside each circle: the innovation variance.",
-                                "Hover over a line for both correlations and the estimate with its SE."],
-                        message=message, width_words="width by size:")
+                                "Inside each circle: the innovation variance."],
+                        message=message, width_words="width by size:",
+                        hint="Hover over a line for both correlations and the estimate with its SE.")
 
     def pictures(self) -> dict:
         return {"diagram": self.scene}

@@ -2,8 +2,10 @@
 
 Besides the five tabs over the estimate, "Responses" (what follows a rise in one state, beside
 "Dynamics"), "State scores" (exact estimator only), "Lag-2 check" (a Lag2View, exposed as
-`lag2`, whose signals the window wires) and "Stability" (the bootstrap: a StabilityPanel
-exposed as `stability`, wired the same way). Above the tabs, on every one of them, the warnings
+`lag2`, whose signals the window wires), "Stability" (the bootstrap: a StabilityPanel
+exposed as `stability`, wired the same way), "Runs" (every estimate kept, which is current:
+`runs`, editing the session given to `set_session`) and "Compare" (the runs chosen there side
+by side: `compare`). Above the tabs, on every one of them, the warnings
 strip lists everything to check about the shown fit (models.advice: the fit's flags, the
 diary's readiness for this model, the lag-2 check of its lag-1 model); below them, the caution
 line carries the fit's cautions, which every exported table repeats.
@@ -14,6 +16,7 @@ from __future__ import annotations
 from PySide6.QtCore import Qt, QTimer
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QStackedWidget, QTabWidget, QVBoxLayout, QWidget
 
+from lagwise.desktop.results.compare_view import ComparePanel
 from lagwise.desktop.results.dynamics_diagram import DynamicsPanel
 from lagwise.desktop.results.fit_view import FitPanel
 from lagwise.desktop.results.innovations import InnovationsPanel
@@ -21,6 +24,7 @@ from lagwise.desktop.results.measurement import MeasurementPanel
 from lagwise.desktop.results.lag2_view import Lag2View
 from lagwise.desktop.results.parameters import ParametersPanel
 from lagwise.desktop.results.responses_view import ResponsesPanel
+from lagwise.desktop.results.runs_view import RunsPanel
 from lagwise.desktop.results.stability_view import StabilityPanel
 from lagwise.desktop.results.state_scores import StateScoresPanel
 from lagwise.desktop.results.warnings_strip import CautionLine, WarningsStrip
@@ -37,7 +41,7 @@ ESTIMATING_MESSAGE = "Estimating…\n\nThe results will appear here when the est
 
 class ResultsView(QWidget):
     """Tabs Measurement, Dynamics, Responses, Innovations, Fit, Parameters, State scores,
-    Lag-2 check.
+    Lag-2 check, Stability, Runs, Compare.
 
     `show_result(None)` shows the empty state. Each tab is a ResultsPanel with
     `pictures()` and `tables()` (what its Export button saves). `panels()` are the five tabs
@@ -65,7 +69,12 @@ class ResultsView(QWidget):
                                                     "Innovations", "Fit", "Parameters",
                                                     "State scores", "Lag-2 check")):
             self.tabs.addTab(panel, title)
+        self.runs = RunsPanel()
+        self.compare = ComparePanel()
         self.tabs.addTab(self.stability, "Stability")
+        self.tabs.addTab(self.runs, "Runs")
+        self.tabs.addTab(self.compare, "Compare")
+        self.runs.compare_requested.connect(self._compare)
         self.warnings = WarningsStrip()
         self.caution = CautionLine()
         self.lag2.check_changed.connect(self._show_warnings)
@@ -117,6 +126,19 @@ class ResultsView(QWidget):
     def result(self) -> FitResult | None:
         return self._result
 
+    def set_session(self, session) -> None:
+        """The session whose runs the Runs tab lists and edits (desktop.session.Session)."""
+        self.runs.set_session(session)
+        session.runsChanged.connect(self.compare.clear)
+
+    def _compare(self, runs) -> None:
+        self.compare.show_runs(runs)
+        self.tabs.setCurrentWidget(self.compare)
+
+    def tab_panels(self) -> tuple[ResultsPanel, ...]:
+        """Every tab's panel, in order."""
+        return (*self.all_panels(), self.stability, self.runs, self.compare)
+
     def panels(self) -> tuple[ResultsPanel, ...]:
         return (self.measurement, self.dynamics, self.innovations, self.fit, self.parameters)
 
@@ -143,7 +165,7 @@ class ResultsView(QWidget):
             return
         self._readiness = data_readiness(self._diary, result)
         caution = caution_line(result)
-        for panel in (*self.all_panels(), self.stability):
+        for panel in self.tab_panels():
             panel.caution = caution
         self._unfilled = {panel for panel in self.all_panels() if panel in self.deferred()}
         for panel in self.all_panels():

@@ -1,7 +1,7 @@
 """The project document: what a `.lagwise` file holds, and where its data come from.
 
 `Project` is the whole analysis (data, items, time settings, missing-value codes,
-preparation steps, model, estimator settings, last results, notes); `ProjectData` its raw
+preparation steps, model, estimator settings, its runs and which is current, notes); `ProjectData` its raw
 table, embedded or linked by path and SHA-256. The functions here make data sources
 (`embed_file`, `embed_table`, `link_file`), read linked data with its SHA-256 checked
 (`project_table`, `relink_data`) and rebuild the diary (`project_diary`). The errors raised
@@ -24,6 +24,7 @@ from lagwise.models.readers import read_table
 from lagwise.models.bootstrap import Bootstrap
 from lagwise.models.responses import ResponseChoice
 from lagwise.models.results import FitResult
+from lagwise.models.runs import Run, find_run
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
 from lagwise.models.study import StudyChoice, person_rows
@@ -94,9 +95,10 @@ class Project:
     items, time, missing_codes, prompts_per_day, scales: how the table becomes a diary
         (`recipe`; scales: (item, (low, high)) pairs the user stated, models.scales).
     preparation: preparation steps as plain JSON values (models.preparation), in order.
-    spec/options/result: the model, the estimator settings and the last results (None: none).
-    bootstrap: the bootstrap of those results (models.bootstrap), when one was run.
-    responses: what the Responses tab shows for those results (None: its defaults).
+    spec/options: the model and the estimator settings being edited.
+    runs: every estimate kept (models.runs), oldest first; current_run: the name of the one
+        shown (None: none). `result` and `bootstrap` are the current run's.
+    responses: what the Responses tab shows for the current results (None: its defaults).
     result_current: False when the data, steps, model or settings changed after the results
         were estimated (the window then shows them as out of date).
     study: the person column of a table holding many people, the person whose diary the
@@ -115,9 +117,9 @@ class Project:
     preparation: tuple[Any, ...] = ()
     spec: ModelSpec | None = None
     options: FitOptions = FitOptions()
-    result: FitResult | None = None
+    runs: tuple[Run, ...] = ()
+    current_run: str | None = None
     result_current: bool = True
-    bootstrap: Bootstrap | None = None
     responses: ResponseChoice | None = None
     notes: str = ""
     study: StudyChoice | None = None
@@ -125,6 +127,23 @@ class Project:
     modified: str = ""
     lagwise_version: str = ""
     file: Path | None = None
+
+    @property
+    def run(self) -> Run | None:
+        """The current run (None: none)."""
+        return None if self.current_run is None else find_run(self.runs, self.current_run)
+
+    @property
+    def result(self) -> FitResult | None:
+        """The current run's result."""
+        run = self.run
+        return None if run is None else run.result
+
+    @property
+    def bootstrap(self) -> Bootstrap | None:
+        """The current run's bootstrap."""
+        run = self.run
+        return None if run is None else run.bootstrap
 
     @property
     def recipe(self) -> DiaryRecipe:

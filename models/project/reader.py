@@ -15,7 +15,6 @@ from __future__ import annotations
 import json
 import os
 from dataclasses import replace
-from datetime import datetime
 from pathlib import Path, PurePosixPath
 from typing import Any
 
@@ -25,12 +24,13 @@ from lagwise.models import jsonread as jr
 from lagwise.models.diary import Diary, TimeSettings
 from lagwise.models.errors import FieldError, LagwiseError, ProjectError
 from lagwise.models.project.document import (
-    Project, ProjectData, damage, project_diary, reason,
+    FORMAT_VERSION, Project, ProjectData, damage, project_diary, reason,
 )
+from lagwise.models.project.estimates import project_fingerprint
 from lagwise.models.project.table import parse_table
 from lagwise.models.project.upgrade import upgrade
-from lagwise.models.bootstrap import Bootstrap
 from lagwise.models.responses import ResponseChoice
+from lagwise.models.runs import Run
 from lagwise.models.scales import scales_from_json
 from lagwise.models.results import FitResult
 from lagwise.models.estimators import FitOptions
@@ -40,8 +40,8 @@ from lagwise.models.study import StudyChoice
 MAX_FILE_BYTES = 256 * 2**20      # the whole file
 
 _TOP_KEYS = ("format", "format_version", "lagwise_version", "created", "modified", "data",
-             "items", "time", "missing_codes", "preparation", "spec", "options", "results",
-             "notes")
+             "items", "time", "missing_codes", "preparation", "spec", "options", "runs",
+             "current_run", "notes")
 
 
 def open_project(path: str | Path) -> Project:
@@ -74,9 +74,10 @@ def project_from_bytes(raw: bytes, folder: Path, label: str) -> tuple[Project, P
     if not isinstance(doc, dict):
         raise ProjectError(f"{label}: not a Lagwise project file (it holds {jr.kind(doc)}, "
                            "not a JSON object)")
+    upgraded = doc.get("format_version") != FORMAT_VERSION
     doc = upgrade(doc, label)
     try:
-        return _project(doc, folder)
+        return _project(doc, folder, upgraded)
     except FieldError as problem:
         raise ProjectError(f"{label}: the project file is damaged: {damage(problem)}") from None
 
@@ -129,18 +130,28 @@ def _parse(raw: bytes, label: str) -> Any:
 
 # ---------------------------------------------------------------------------- fields
 
-def _bootstrap(value: object, results: object) -> Bootstrap | None:
-    """The stored bootstrap of the stored results (its parameters must be theirs)."""
-    if value is None:
-        return None
-    if results is None:
-        raise FieldError("bootstrap", "belongs to results, but the project has none")
-    boot = Bootstrap.from_json(value, "bootstrap")
-    free = [q for q in results["parameters"] if q.get("free")]
-    if [(str(p.kind), p.from_, p.to) for p in boot.parameters] != [
-            (q["kind"], q["from"], q["to"]) for q in free]:
-        raise FieldError("bootstrap.parameters", "should be the free parameters of the results")
-    return boot
+def _runs(value: object, fingerprint: str | None) -> tuple[Run, ...]:
+    """The stored runs (names unique). A run converted from an older format has no
+    fingerprint (models.project.upgrade): it gets `fingerprint`, the project's own."""
+    entries = jr.array(value, "runs")
+    if fingerprint is not None:
+        entries = [{**doc, "fingerprint": fingerprint}
+                   if isinstance(doc, dict) and "fingerprint" not in doc else doc
+                   for doc in entries]
+    runs = tuple(Run.from_json(doc, f"runs[{i}]") for i, doc in enumerate(entries))
+    seen: set[str] = set()
+    for i, run in enumerate(runs):
+        if run.name in seen:
+            raise FieldError(f"runs[{i}].name", f"repeats the name '{run.name}'")
+        seen.add(run.name)
+    return runs
+
+
+def _current(value: object, runs: tuple[Run, ...]) -> str | None:
+    name = jr.name(value, "current_run", null=True)
+    if name is not None and name not in {run.name for run in runs}:
+        raise FieldError("current_run", "should name one of the runs")
+    return name
 
 
 def _responses(value: object, result: FitResult | None) -> ResponseChoice | None:
@@ -152,9 +163,10 @@ def _responses(value: object, result: FitResult | None) -> ResponseChoice | None
     return ResponseChoice.from_json(value, "responses", states=result.states)
 
 
-def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
-    doc = jr.obj(doc, "", _TOP_KEYS, ("recovery_of", "results_current", "bootstrap",
-                                           "responses", "scales", "study"))
+def _project(doc: dict, folder: Path, upgraded: bool = False) -> tuple[Project, Path | None]:
+    """The project of a current-version document (`upgraded`: converted from an older one)."""
+    doc = jr.obj(doc, "", _TOP_KEYS, ("recovery_of", "results_current", "responses", "scales",
+                                      "study"))
     time, per_day = _time(doc["time"])
     items = doc["items"]
     if items is not None:
@@ -180,22 +192,23 @@ def _project(doc: dict, folder: Path) -> tuple[Project, Path | None]:
     if recovery_of is not None:
         recovery_of = Path(jr.text(recovery_of, "recovery_of", jr.MAX_TEXT))
     spec = doc["spec"]
-    results = doc["results"]
-    result = None if results is None else FitResult.from_json(results, "results")
+    scales = tuple(scales_from_json(doc.get("scales", {})).items())
     project = Project(
         data=data, items=items, time=time, missing_codes=codes, prompts_per_day=per_day,
-        scales=tuple(scales_from_json(doc.get("scales", {})).items()),
-        preparation=tuple(preparation),
+        scales=scales, preparation=tuple(preparation), study=study)
+    runs = _runs(doc["runs"], project_fingerprint(project) if upgraded and doc["runs"] else None)
+    current = _current(doc["current_run"], runs)
+    result = None if current is None else next(r.result for r in runs if r.name == current)
+    project = replace(
+        project,
         spec=None if spec is None else ModelSpec.from_json(spec, "spec", validate=False),
         options=FitOptions.from_json(doc["options"], "options"),
-        result=result,
+        runs=runs, current_run=current,
         result_current=jr.boolean(doc.get("results_current", True), "results_current"),
-        bootstrap=_bootstrap(doc.get("bootstrap"), results),
         responses=_responses(doc.get("responses"), result),
         notes=jr.text(doc["notes"], "notes", jr.MAX_TEXT),
-        study=study,
-        created=_timestamp(doc["created"], "created"),
-        modified=_timestamp(doc["modified"], "modified"),
+        created=jr.timestamp(doc["created"], "created"),
+        modified=jr.timestamp(doc["modified"], "modified"),
         lagwise_version=jr.text(doc["lagwise_version"], "lagwise_version", 200),
     )
     return project, recovery_of
@@ -215,7 +228,7 @@ def _data(value: Any, folder: Path) -> ProjectData:
                         "data.storage", ("embedded", "linked"))
     if storage == "embedded":
         doc = jr.obj(value, "data", ("storage", "file_name", "sha256", "table"))
-        digest = _sha(doc["sha256"], "data.sha256", null=True)
+        digest = jr.sha256(doc["sha256"], "data.sha256", null=True)
         table = parse_table(doc["table"], "data.table")
         return ProjectData(jr.text(doc["file_name"], "data.file_name"), digest, table)
     doc = jr.obj(value, "data", ("storage", "file_name", "sha256", "path"))
@@ -226,7 +239,7 @@ def _data(value: Any, folder: Path) -> ProjectData:
     if not link.is_absolute():
         link = folder.joinpath(*PurePosixPath(stored).parts)
     return ProjectData(jr.text(doc["file_name"], "data.file_name"),
-                       _sha(doc["sha256"], "data.sha256"), None, Path(os.path.normpath(link)))
+                       jr.sha256(doc["sha256"], "data.sha256"), None, Path(os.path.normpath(link)))
 
 
 def _check_roles(table: pd.DataFrame, items: tuple[str, ...] | None, time: TimeSettings) -> None:
@@ -241,23 +254,3 @@ def _code(value: Any, where: str) -> str | float:
     if isinstance(value, str):
         return jr.text(value, where)
     return jr.number(value, where)
-
-
-def _sha(value: Any, where: str, null: bool = False) -> str | None:
-    if value is None and null:
-        return None
-    text = jr.text(value, where)
-    if len(text) != 64 or any(c not in "0123456789abcdef" for c in text):
-        raise FieldError(where, "should be a SHA-256 digest (64 lower-case hex digits)")
-    return text
-
-
-def _timestamp(value: Any, where: str) -> str:
-    text = jr.text(value, where, 100)
-    try:
-        moment = datetime.fromisoformat(text.replace("Z", "+00:00"))
-    except ValueError:
-        raise FieldError(where, f"should be an ISO 8601 time, not {text[:40]!r}") from None
-    if moment.tzinfo is None:
-        raise FieldError(where, "should be an ISO 8601 time with its UTC offset")
-    return text

@@ -38,14 +38,33 @@ def upgrade_0_to_1(doc: dict) -> dict:
     return new
 
 
-def upgrade_1_to_2_study(doc: dict) -> dict:
-    """Format version 1 -> 2, the study's part: version 2 may hold an optional "study" (the
-    person column, the person shown, the batch folder); a version-1 file is one person's
-    table, so it gets none."""
-    return {**doc, "format_version": 2}
+def upgrade_1_to_2(doc: dict) -> dict:
+    """Format version 1 -> 2.
+
+    Version 1 kept one estimate, "results" (with its "bootstrap"); version 2 keeps every
+    estimate as a named run in "runs" and names the current one in "current_run". Stored
+    results become the run "Run 1", made when the file was last saved, with the project's
+    preparation steps and an empty note; its data fingerprint is left out here and filled
+    in on opening from the project's own data, recipe and steps (models.project.estimates).
+    Version 2 may also hold a "study" (the person column of a table of many people, the
+    person shown, the batch folder; models.study); a version-1 file is one person's table
+    and gets none.
+    """
+    new = dict(doc)
+    new["format_version"] = 2
+    results = new.pop("results", None)
+    boot = new.pop("bootstrap", None)
+    new["runs"], new["current_run"] = [], None
+    if results is not None:
+        run = {"name": "Run 1", "time": new.get("modified"),
+               "preparation": new.get("preparation", []), "results": results, "note": ""}
+        if boot is not None:
+            run["bootstrap"] = boot
+        new["runs"], new["current_run"] = [run], "Run 1"
+    return new
 
 
-UPGRADES: dict[int, Callable[[dict], dict]] = {0: upgrade_0_to_1, 1: upgrade_1_to_2_study}
+UPGRADES: dict[int, Callable[[dict], dict]] = {0: upgrade_0_to_1, 1: upgrade_1_to_2}
 
 # Before estimators checked their settings, version-1 files could keep a setting the chosen
 # estimator ignored (a window depth or listwise handling with the exact estimator, a night
@@ -55,7 +74,8 @@ IGNORED_SETTINGS = {"exact": {"depth": None, "missing": "fiml"},
 
 
 def drop_ignored_settings(doc: dict) -> dict:
-    """The document with IGNORED_SETTINGS reset in its estimator settings and its results'."""
+    """The document with IGNORED_SETTINGS reset in its estimator settings and its runs'
+    results'."""
     def clean(options: object) -> object:
         if not isinstance(options, dict):
             return options
@@ -63,11 +83,18 @@ def drop_ignored_settings(doc: dict) -> dict:
         reset = IGNORED_SETTINGS.get(name, {}) if isinstance(name, str) else {}
         return {**options, **{key: value for key, value in reset.items() if key in options}}
 
+    def clean_results(results: object) -> object:
+        if isinstance(results, dict) and "options" in results:
+            return {**results, "options": clean(results["options"])}
+        return results
+
     new = dict(doc)
     if "options" in new:
         new["options"] = clean(new["options"])
-    if isinstance(new.get("results"), dict) and "options" in new["results"]:
-        new["results"] = {**new["results"], "options": clean(new["results"]["options"])}
+    if isinstance(new.get("runs"), list):
+        new["runs"] = [{**run, "results": clean_results(run["results"])}
+                       if isinstance(run, dict) and "results" in run else run
+                       for run in new["runs"]]
     return new
 
 

@@ -8,7 +8,7 @@ shows (models.advice), and the lag-2 check, bootstrap and impulse responses when
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -19,8 +19,10 @@ from lagwise.models.errors import ProjectError
 from lagwise.models.lag2check import Lag2Check
 from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.project import Project, lagwise_version, project_diary
+from lagwise.models.project.estimates import project_fingerprint
 from lagwise.models.responses import Responses, impulse_responses
 from lagwise.models.results import FitResult
+from lagwise.models.runs import find_run
 from lagwise.models.screening import screen_diary
 
 
@@ -65,32 +67,38 @@ class ReportInput:
 
 def report_input(project: Project, run: str | None = None, *, check: Lag2Check | None = None,
                  monitor: Monitor | None = None) -> ReportInput:
-    """The report of `project`'s current result (`run` None); `check`: a lag-2 check of that
-    result's model, when one was run. ProjectError for a run the project does not hold, a
-    project without results, or data that cannot be read."""
-    if run is not None:
-        raise ProjectError(f"the project holds no run named '{run}'")
-    result = project.result
-    if result is None:
+    """The report of one run of `project` (`run` None: the current run): its result, lag-2
+    check (`check`, when given, replaces the stored one: the window's check of that model),
+    bootstrap and note, with the diary as that run's preparation steps made it. ProjectError
+    for a run the project does not hold, a project without results, or data that cannot be
+    read."""
+    if run is None and project.run is None:
         raise ProjectError(f"{project.name}: the project holds no results yet; estimate the "
                            "model first (lagwise fit PROJECT --save PROJECT)")
+    chosen = project.run if run is None else find_run(project.runs, run)
+    result = chosen.result
+    current = chosen is project.run
+    check = check if check is not None else chosen.lag2
     checkpoint(monitor, 0.1, "Reading the diary")
-    diary = project_diary(project)
+    as_run = replace(project, preparation=chosen.preparation)   # the run's own steps
+    diary = project_diary(as_run)
     checkpoint(monitor, 0.3, "Screening the diary")
-    scales = dict(project.scales)
-    facts = diary_facts(diary.select(result.items), project, scales)
+    facts = diary_facts(diary.select(result.items), as_run, dict(project.scales))
     warnings = fit_warnings(result, data_readiness(diary, result), check)
     responses = None
-    if project.responses is not None and result.stationary:
+    if current and project.responses is not None and result.stationary:
         checkpoint(monitor, 0.7, "Impulse responses")
         choice = project.responses
         responses = impulse_responses(result, choice.horizon, choice.order or None,
-                                      project.bootstrap)
+                                      chosen.bootstrap)
     checkpoint(monitor, 1.0, "Report ready")
-    return ReportInput(title=project.name, run=run, result=result, diary=facts,
-                       warnings=warnings, notes=project.notes, check=check,
-                       bootstrap=project.bootstrap, responses=responses,
-                       version=lagwise_version(), current=project.result_current)
+    notes = "\n\n".join(text for text in (project.notes, chosen.note) if text)
+    return ReportInput(title=project.name, run=chosen.name, result=result, diary=facts,
+                       warnings=warnings, notes=notes, check=check,
+                       bootstrap=chosen.bootstrap, responses=responses,
+                       version=lagwise_version(),
+                       current=project.result_current if current else
+                       chosen.fingerprint == project_fingerprint(project))
 
 
 def diary_facts(diary: Diary, project: Project,

@@ -159,3 +159,18 @@ def test_export_button_leaves_room_for_its_menu_arrow(window):
     margins = 2 * style.pixelMetric(QStyle.PixelMetric.PM_ButtonMargin, None, button)
     assert button.menu() is not None
     assert button.width() >= text + arrow + margins
+
+
+def test_the_hover_hint_is_on_screen_but_not_in_pictures(lagwise_app, qtbot):
+    # a picture (export, report) cannot be hovered: the hint belongs to the window only
+    from lagwise.desktop.export import svg_bytes
+    from lagwise.desktop.results.dynamics_diagram import DynamicsDiagram
+    from results_fixture import demo_result
+
+    scene = DynamicsDiagram()
+    scene.show_result(demo_result())
+    on_screen = [i.toPlainText() for i in scene.items() if hasattr(i, "toPlainText")]
+    assert any(t.startswith("Hover over a path") for t in on_screen)
+    picture = svg_bytes(scene).decode("utf-8")
+    assert "Hover" not in picture and "Arrows: the state at t-1" in picture
+    assert all(item.isVisible() for item in scene.items())   # shown again after the picture

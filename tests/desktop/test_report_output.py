@@ -24,6 +24,7 @@ from lagwise.desktop.results import ResultsView
 from lagwise.desktop.results.widgets import COPY_SHORTCUT
 from lagwise.models.errors import OutputError
 from lagwise.models.project import Project, embed_file
+from lagwise.models.project.estimates import with_estimate
 from lagwise.models.reporting.html import report_html
 from lagwise.models.reporting.source import report_input
 from lagwise.models.responses import ResponseChoice
@@ -52,9 +53,9 @@ class Page(HTMLParser):
 
 
 def project(result) -> Project:
-    return Project(data=embed_file(DEMO / "demo_diary.csv"),
-                   time=demo_diary_time(), spec=result.spec, result=result,
-                   responses=ResponseChoice())
+    return with_estimate(Project(data=embed_file(DEMO / "demo_diary.csv"),
+                                 time=demo_diary_time(), spec=result.spec,
+                                 responses=ResponseChoice()), result)
 
 
 def demo_diary_time():

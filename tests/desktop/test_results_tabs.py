@@ -66,7 +66,7 @@ def missed_prompts(diary, items) -> np.ndarray:
 def test_the_new_tabs_sit_beside_the_estimate(view):
     names = [view.tabs.tabText(i) for i in range(view.tabs.count())]
     assert names == ["Measurement", "Dynamics", "Responses", "Innovations", "Fit", "Parameters",
-                     "State scores", "Lag-2 check", "Stability"]
+                     "State scores", "Lag-2 check", "Stability", "Runs", "Compare"]
     assert isinstance(view.lag2, Lag2View)
     assert view.tabs.widget(names.index("Lag-2 check")) is view.lag2
     assert view.tabs.widget(names.index("State scores")) is view.state_scores

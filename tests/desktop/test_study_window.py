@@ -101,6 +101,9 @@ def test_estimate_every_person_and_open_one(lagwise_app, qtbot, tmp_path, artifa
     for name, widget in (("window", window), ("batch", batch), ("across", across)):
         widget.grab().save(str(artifacts / f"study-{name}.png"))
     assert window.study_bar.geometry().right() < window.width()   # fits at 1280x800
+    assert window.study_bar.choose("P01") and session.result is None   # P02's run is not P01's
+    session.undo_stack.undo()
+    settle(qtbot)
     assert session.result_is_current()
     direct = fit(study.people[2].diary, SPEC, FitOptions())
     shown = window.results.measurement.loadings
