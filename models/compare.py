@@ -23,7 +23,7 @@ from dataclasses import dataclass
 from scipy.stats import chi2 as chi2_dist
 
 from lagwise.models.errors import ProjectError
-from lagwise.models.kinds import LAGGED_KINDS, Kind
+from lagwise.models.kinds import Kind, parameter_words
 from lagwise.models.numbers import fmt, p_phrase
 from lagwise.models.results import FitResult
 from lagwise.models.runs import Run
@@ -158,14 +158,9 @@ def _parameter_rows(runs: tuple[Run, ...]) -> tuple[Row, ...]:
     keys = list(dict.fromkeys(key for table in tables for key in table))
     order = {kind: i for i, kind in enumerate(Kind)}
     keys.sort(key=lambda key: order[Kind(key[0])])
-    return tuple(Row(Kind(kind).title, _label(kind, from_, to, lag),
+    return tuple(Row(Kind(kind).title, parameter_words(kind, from_, to, lag),
                      tuple(_number(table.get((kind, from_, to, lag))) for table in tables))
                  for kind, from_, to, lag in keys)
-
-
-def _label(kind: str, from_: str, to: str, lag: int) -> str:
-    at = f" (lag {lag})" if lag and Kind(kind) not in LAGGED_KINDS else ""
-    return f"{Kind(kind).label}: {from_} -> {to}{at}"
 
 
 def _number(value) -> float | None:

@@ -62,3 +62,27 @@ _LABELS = {
     Kind.LATENT_INTERCEPT: "Latent intercept",
 }
 LAGGED_KINDS = (Kind.INERTIA, Kind.CROSS_LAGGED, Kind.LAG2)
+
+
+def parameter_words(kind: str, from_: str, to: str, lag: int = 0) -> str:
+    """One parameter in words, its item or state named once where it has one (the window's
+    parameter rows, the comparison of runs)."""
+    kind = Kind(kind)
+    if kind == Kind.LOADING:
+        return f"{from_} → {to}"
+    if kind in LAGGED_KINDS:
+        return f"{from_} (t-{lag or 1}) → {to}"
+    if kind == Kind.INTERCEPT:
+        return f"{to}: intercept"
+    if kind == Kind.UNIQUE:
+        return f"{to}: unique variance"
+    if kind == Kind.UNIQUE_AUTOCORRELATION:
+        return f"{to}: unique part carried over (t-1)"
+    if kind == Kind.INNOVATION:
+        return f"{to}: variance" if from_ == to else f"{from_} with {to}: covariance"
+    if kind == Kind.PARTIAL_CORRELATION:
+        return f"{from_} with {to}: partial correlation"
+    if kind == Kind.LATENT_INTERCEPT:
+        return f"{to}: latent intercept (later copies)"
+    return f"{to}: variance (oldest copy)" if from_ == to else \
+        f"{from_} with {to}: covariance (oldest copy)"

@@ -228,7 +228,7 @@ def test_compare_lines_up_every_parameter_with_its_difference(two_runs):
     assert comparison.comparable == (True, True) and comparison.notes == ()
     assert len(comparison.parameters) == len(full.parameters)
     by_label = {row.label: row for row in comparison.parameters}
-    cross = by_label["Cross-lagged effect: calm -> drive"]
+    cross = by_label["calm (t-1) → drive"]
     assert cross.values[0] == full.get("cross_lagged", "calm", "drive").estimate
     assert cross.values[1] == nested.get("cross_lagged", "calm", "drive").estimate
     assert cross.differences[0] == cross.values[1] - cross.values[0]

@@ -37,7 +37,7 @@ class ComparePanel(ResultsPanel):
         self.notes_label.setTextFormat(Qt.TextFormat.PlainText)
         self.notes_label.hide()
         self.model = RecordsModel(())
-        self.table = table_view(self.model, stretch_last=True)
+        self.table = table_view(self.model, stretch_last=False)
         self.table.setObjectName("compareTable")
         for widget in (self.tests_label, self.notes_label):
             self.body.addWidget(widget)
@@ -50,7 +50,7 @@ class ComparePanel(ResultsPanel):
         self.tests_label.setText("\n".join(t.sentence for t in comparison.tests) or NO_TEST)
         self.notes_label.setText("\n".join(comparison.notes))
         self.notes_label.setVisible(bool(comparison.notes))
-        columns = [Column(title, lambda row, j=j: row[j], "text")
+        columns = [Column(title, lambda row, j=j: row[j], "text" if j < 2 else "figure")
                    for j, title in enumerate(comparison.header())]
         self.model = RecordsModel(columns, comparison.table())
         self.table.setModel(self.model)

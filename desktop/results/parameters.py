@@ -19,7 +19,7 @@ from lagwise.desktop.results.stability_view import BootstrapIntervals, Parameter
 from lagwise.desktop.results.tables import Column
 from lagwise.desktop.results.widgets import ResultsPanel, note_label, table_view
 from lagwise.desktop.style import plain
-from lagwise.models.kinds import Kind
+from lagwise.models.kinds import Kind, parameter_words
 from lagwise.models.numbers import MISSING, fmt
 from lagwise.models.results import FitResult, Parameter
 
@@ -46,26 +46,8 @@ class Group:
 
 
 def parameter_name(p: Parameter) -> str:
-    """The row's name in words: an item or state named once where the parameter has one."""
-    kind = Kind(p.kind)
-    if kind == Kind.LOADING:
-        return f"{p.from_} → {p.to}"
-    if kind in (Kind.INERTIA, Kind.CROSS_LAGGED, Kind.LAG2):
-        return f"{p.from_} (t-{p.lag or 1}) → {p.to}"
-    if kind == Kind.INTERCEPT:
-        return f"{p.to}: intercept"
-    if kind == Kind.UNIQUE:
-        return f"{p.to}: unique variance"
-    if kind == Kind.UNIQUE_AUTOCORRELATION:
-        return f"{p.to}: unique part carried over (t-1)"
-    if kind == Kind.INNOVATION:
-        return f"{p.to}: variance" if p.from_ == p.to else f"{p.from_} with {p.to}: covariance"
-    if kind == Kind.PARTIAL_CORRELATION:
-        return f"{p.from_} with {p.to}: partial correlation"
-    if kind == Kind.LATENT_INTERCEPT:
-        return f"{p.to}: latent intercept (later copies)"
-    return f"{p.to}: variance (oldest copy)" if p.from_ == p.to else \
-        f"{p.from_} with {p.to}: covariance (oldest copy)"
+    """The row's name in words (models.kinds.parameter_words)."""
+    return parameter_words(p.kind, p.from_, p.to, p.lag)
 
 
 def grouped_rows(parameters) -> list[Group | Parameter]:

@@ -34,7 +34,8 @@ _RIGHT = int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
 class Column:
     """One table column: header, how to read the value from a row, and its number style.
 
-    style "text" shows the value as it is; other styles go through `fmt`.
+    style "text" shows the value as it is (left-aligned), "figure" a number already written
+    by `fmt` (right-aligned); other styles go through `fmt`.
     """
 
     header: str
@@ -87,11 +88,11 @@ class RecordsModel(QAbstractTableModel):
             shown = self._shown.get((row, col))
             if shown is None:
                 value = column.value(self._rows[row])
-                shown = str(value) if column.style == "text" else fmt(value, column.style)
+                shown = str(value) if column.style in ("text", "figure") else fmt(value, column.style)
                 self._shown[(row, col)] = shown
             return shown
         value = column.value(self._rows[row])
-        if column.style == "text":
+        if column.style in ("text", "figure"):
             return str(value)
         return None if value is None or not math.isfinite(float(value)) else float(value)
 

@@ -312,7 +312,7 @@ def test_render_each_tab_to_png(view, lagwise_app, qtbot):
     ARTIFACTS.mkdir(exist_ok=True)
     names = [view.tabs.tabText(i) for i in range(view.tabs.count())]
     assert names == ["Measurement", "Dynamics", "Responses", "Innovations", "Fit", "Parameters",
-                     "State scores", "Lag-2 check", "Stability"]
+                     "State scores", "Lag-2 check", "Stability", "Runs", "Compare"]
     for index, name in enumerate(names):
         view.tabs.setCurrentIndex(index)
         qtbot.wait(20)
