@@ -355,11 +355,11 @@ class MainWindow(QMainWindow):
 
         def load() -> None:
             self.files.discard_recoveries()
+            choice = dialog.study_choice()
             self.session.load_data(dialog.diary_rows(), diary, settings,
-                                   data=embed_table(frame, settings.path),
-                                   study=dialog.study_choice())
-            study, choice = dialog.study(), dialog.study_choice()
-            who = "" if study is None else f"{len(study)} people; {choice.person}'s diary: "
+                                   data=embed_table(frame, settings.path), study=choice)
+            who = "" if choice is None else \
+                f"{len(dialog.study())} people; {choice.person}'s diary: "
             self.statusBar().showMessage(
                 f"Imported {Path(settings.path).name}: {who}{diary.n_items} items, "
                 f"{diary.n_occasions} prompts. Next: give the items states.", 8000)
