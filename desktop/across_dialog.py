@@ -5,13 +5,15 @@ lies above and below 0; the median and interquartile range of each inertia; and 
 with their status, share of prompts answered and the codes of their fit's warnings (or why
 they were not fitted). A line above them says that these are person-specific models, not a
 multilevel model. Every number comes from models.across, formatted by models.numbers.fmt.
+The dialog stays open beside the window; clicking a person in the People tab announces them
+(`personChosen`), and the window of a study opens that person's stored results.
 """
 
 from __future__ import annotations
 
 from pathlib import Path
 
-from PySide6.QtCore import Qt
+from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import (
     QDialog, QHBoxLayout, QHeaderView, QLabel, QTableWidget, QTableWidgetItem, QTabWidget,
     QVBoxLayout, QWidget,
@@ -32,9 +34,12 @@ class AcrossDialog(QDialog):
     """The summaries across the people of one batch folder (raises DataError when the folder
     holds no finished batch)."""
 
+    personChosen = Signal(str)   # a person clicked in the People tab
+
     def __init__(self, folder: str | Path, parent: QWidget | None = None) -> None:
         super().__init__(parent)
-        outcomes = read_batch(folder)
+        self.folder = Path(folder)
+        self.outcomes = outcomes = read_batch(folder)
         across = across_people(outcomes)
         self.setWindowTitle(f"Across people: {Path(folder).name}")
         self.setObjectName("acrossDialog")
@@ -55,6 +60,10 @@ class AcrossDialog(QDialog):
                                   "75th percentile", "Interquartile range"))
         self.people = self._tab("People", "people", _people_rows(outcomes),
                                 ("Person", "Status", "Prompts answered", "Warnings or reason"))
+        self.people.setToolTip("Click a person to open their results in the window "
+                               "(a project holding this study)")
+        self.people.cellClicked.connect(
+            lambda row, _column: self.personChosen.emit(self.outcomes[row].person))
 
     def _tab(self, title: str, name: str, rows: list[tuple[str, ...]],
              header: tuple[str, ...]) -> QTableWidget:

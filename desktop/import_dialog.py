@@ -1,9 +1,13 @@
 """The import dialog: a data file becomes a diary, column by column.
 
-Every column gets a role (item, day, prompt number, timestamp, ignore), guessed from its
-name and contents and changeable by the user. The preview below updates as roles change:
+Every column gets a role (item, day, prompt number, timestamp, person, ignore), guessed from
+its name and contents and changeable by the user. The preview below updates as roles change:
 how many occasions, days, answered prompts and lag windows the diary would have, the data
 layer's notes, or its error message. Nothing reaches the project until the user accepts.
+
+A person column makes the file a study of many people (models.study): every person's rows
+become a diary of their own; the preview counts the people and their prompts, describes the
+first person's diary, and guesses the answer scales and far-out values from everyone's answers.
 
 Each item's answer scale (floor and ceiling are counted at its ends) is shown guessed from
 the answers (models.scales) and can be typed over as LOW-HIGH. Answers far outside the rest
@@ -14,6 +18,7 @@ preview with one button that adds them to the missing-value codes.
 from __future__ import annotations
 
 import re
+from html import escape
 from dataclasses import replace
 from pathlib import Path
 
@@ -28,14 +33,15 @@ from PySide6.QtWidgets import (
 from lagwise.desktop import style
 from lagwise.desktop.session import ImportSettings
 from lagwise.models.diary import Diary, TimeSettings
-from lagwise.models.errors import LagwiseError
+from lagwise.models.errors import DataError, LagwiseError
 from lagwise.models.outliers import FarValue, far_values
+from lagwise.models.study import Study, StudyChoice, person_rows, study_from_frame
 from lagwise.models.readers import SUPPORTED_SUFFIXES, looks_like_dates, numeric_cells, read_table
 from lagwise.models.scales import Scale, guess_scale, parse_scale, scale_text
 from lagwise.models.summary import diary_summary
 
-ROLES: tuple[str, ...] = ("item", "day", "prompt number", "timestamp", "ignore")
-SINGLE_ROLES = ("day", "prompt number", "timestamp")  # at most one column each
+ROLES: tuple[str, ...] = ("item", "day", "prompt number", "timestamp", "person", "ignore")
+SINGLE_ROLES = ("day", "prompt number", "timestamp", "person")  # at most one column each
 FILE_FILTER = ("Diary files (" + " ".join(f"*{s}" for s in SUPPORTED_SUFFIXES) + ");;"
                "All files (*)")
 PREVIEW_ROWS = 8
@@ -54,6 +60,7 @@ DATE_FORMATS: tuple[tuple[str, str | None], ...] = (
 TIME_WORDS = frozenset({"time", "timestamp", "datetime", "clock", "moment"})
 DAY_WORDS = frozenset({"day", "date", "days", "dag", "datum"})
 PROMPT_WORDS = frozenset({"prompt", "beep", "signal", "occasion", "prompts", "beeps"})
+PERSON_ROWS = 5   # an identifier column with at least this many rows per value names people
 ID_WORDS = frozenset({"id", "pid", "participant", "subject", "person", "case"})
 
 
@@ -67,7 +74,9 @@ def guess_role(name: str, column) -> str:
     """A sensible first role for a column from its name and contents.
 
     Names with time/timestamp/datetime -> timestamp; day/date -> day; prompt/beep/signal ->
-    prompt number; identifiers -> ignore; other columns holding numbers -> item; text -> ignore.
+    prompt number; identifiers -> person when they take at most one value per PERSON_ROWS rows
+    (and at least two values), else ignore; other columns holding numbers -> item; text ->
+    ignore.
     """
     words = name_words(name)
     if words & TIME_WORDS:
@@ -77,7 +86,8 @@ def guess_role(name: str, column) -> str:
     if words & PROMPT_WORDS:
         return "prompt number"
     if words and words <= ID_WORDS | {"nr", "no", "number"}:
-        return "ignore"
+        people = column.dropna().nunique()
+        return "person" if 2 <= people and people * PERSON_ROWS <= len(column) else "ignore"
     values, bad = numeric_cells(column)
     filled = bad | ~np.isnan(values)
     if filled.any() and (~bad & filled).sum() > 0.5 * filled.sum():
@@ -173,6 +183,7 @@ class ImportDialog(QDialog):
         self._frame = None
         self._path = ""
         self._diary: Diary | None = None
+        self._study: Study | None = None
         self._settings: ImportSettings | None = None
         self._days_independent = days_independent
         self._boxes: dict[str, QComboBox] = {}
@@ -345,13 +356,35 @@ class ImportDialog(QDialog):
     def frame(self):
         return self._frame
 
+    def person_column(self) -> str | None:
+        """The column with the role "person" (None: the file is one person's)."""
+        return next((n for n, role in self.roles().items() if role == "person"), None)
+
+    def study(self) -> Study | None:
+        """Every person's diary under the current roles (None: one person, or no diary)."""
+        return self._study
+
+    def study_choice(self) -> StudyChoice | None:
+        """The person column and the person whose diary `diary` is (None: one person)."""
+        if self._study is None or self._diary is None:
+            return None
+        first = next(p for p in self._study.people if p.diary is self._diary)
+        return StudyChoice(self._study.person_column, first.person)
+
+    def diary_rows(self):
+        """The rows `diary` is made from: the whole table, or the shown person's rows."""
+        choice = self.study_choice()
+        if choice is None:
+            return self._frame
+        return person_rows(self._frame, choice.person_column, choice.person, self._path)
+
     def settings(self) -> ImportSettings | None:
         return self._settings
 
     # ----- preview -------------------------------------------------------------------
     def update_preview(self) -> None:
         """Rebuild the diary from the current roles through the data layer and describe it."""
-        self._diary, self._settings = None, None
+        self._diary, self._settings, self._study = None, None, None
         if self._frame is None:
             self._set_ok(False)
             return
@@ -368,19 +401,23 @@ class ImportDialog(QDialog):
         try:
             settings = ImportSettings(path=self._path, items=items, time=time,
                                       missing_codes=codes, prompts_per_day=per_day)
-            diary = settings.recipe.diary(self._frame, source=self._path)
+            study, diary = self._read(settings)
         except LagwiseError as exc:
             self._show_error(str(exc))
             return
-        self._diary = diary
-        self._settings = replace(settings, scales=tuple(self._show_scales(diary).items()))
-        self._show_far_values(diary)
+        self._diary, self._study = diary, study
+        answers = diary.values if study is None else np.vstack(
+            [p.diary.values for p in study.people if p.diary is not None])   # every person's
+        self._settings = replace(settings, scales=tuple(self._show_scales(diary.items,
+                                                                          answers).items()))
+        self._show_far_values(diary.items, answers)
         summary = diary_summary(diary)
         occasions, answered = summary["occasions"], summary["answered"]
         windows = summary["windows"]["1"] + summary["partial_windows"]["1"]
         mode = {"grid": "a grid of days and prompt numbers", "timestamp": "their timestamps",
                 "order": "file order (no day or time column)"}[time.mode]
         self.summary_label.setText(
+            _people_line(study, diary) +
             f"{counted(diary.n_items, 'item', True)} · {counted(occasions, 'occasion', True)} · "
             f"{counted(summary['days'], 'day', True)} · "
             f"{counted(answered, 'prompt', True)} answered ({occasions - answered} missed) · "
@@ -390,6 +427,19 @@ class ImportDialog(QDialog):
         self.error_label.setText("")
         self._set_ok(True)
         self.previewChanged.emit()
+
+    def _read(self, settings: ImportSettings) -> tuple[Study | None, Diary]:
+        """The study (with a person column) and the diary the preview describes: the file's,
+        or the first person's whose rows make one (DataError when nobody's do)."""
+        person = self.person_column()
+        if person is None:
+            return None, settings.recipe.diary(self._frame, source=self._path)
+        study = study_from_frame(self._frame, settings.recipe, person, source=self._path)
+        first = next((p for p in study.people if p.diary is not None), None)
+        if first is None:
+            raise DataError(f"no person's rows make a diary ({study.people[0].person}: "
+                            f"{study.people[0].problem})")
+        return study, first.diary
 
     # ----- answer scales and far-out values ---------------------------------------------
     def _build_scales(self) -> QGroupBox:
@@ -422,7 +472,7 @@ class ImportDialog(QDialog):
         self.far_button.clicked.connect(self.treat_far_values_as_missing)
         row.addWidget(self.far_label)
         row.addWidget(self.far_button, 0, Qt.AlignmentFlag.AlignLeft)
-        self._show_far_values(None)
+        self._show_far_values()
         return row
 
     def scales(self) -> dict[str, Scale]:
@@ -440,14 +490,15 @@ class ImportDialog(QDialog):
         self.missing_edit.setText(", ".join(codes))
         self.update_preview()
 
-    def _show_scales(self, diary: Diary) -> dict[str, Scale]:
-        """Fill the scale table (typed scales kept, the others guessed); return the scales."""
+    def _show_scales(self, items: tuple[str, ...], answers: np.ndarray) -> dict[str, Scale]:
+        """Fill the scale table (typed scales kept, the others guessed from `answers`, one
+        column per item); return the scales."""
         scales = {}
         table = self.scales_table
         table.blockSignals(True)
-        table.setRowCount(diary.n_items)
-        for row, name in enumerate(diary.items):
-            column = diary.values[:, row]
+        table.setRowCount(len(items))
+        for row, name in enumerate(items):
+            column = answers[:, row]
             seen = column[~np.isnan(column)]
             scale = self._stated.get(name) or guess_scale(column)
             table.setItem(row, 0, _cell(name))
@@ -471,8 +522,9 @@ class ImportDialog(QDialog):
             return
         self.update_preview()
 
-    def _show_far_values(self, diary: Diary | None) -> None:
-        self._far = () if diary is None else far_values(diary.items, diary.values)
+    def _show_far_values(self, items: tuple[str, ...] = (),
+                         answers: np.ndarray | None = None) -> None:
+        self._far = () if answers is None else far_values(items, answers)
         lines = []
         for name in dict.fromkeys(far.item for far in self._far):
             found = ", ".join(f"{far.code} ({counted(far.count, 'time')})"
@@ -514,7 +566,7 @@ class ImportDialog(QDialog):
         return ", ".join(c for c in cells if c)
 
     def _show_error(self, message: str) -> None:
-        self._show_far_values(None)
+        self._show_far_values()
         self.summary_label.setText("—")
         self.notes_label.setText("")
         self.error_label.setText(message)
@@ -529,3 +581,17 @@ def _cell(text: str) -> QTableWidgetItem:
     item = QTableWidgetItem(text)
     item.setFlags(Qt.ItemFlag.ItemIsEnabled | Qt.ItemFlag.ItemIsSelectable)
     return item
+
+
+def _people_line(study: Study | None, shown: Diary) -> str:
+    """'12 people, 180-260 prompts each (not a diary: P07) · P01's diary:' (rich text)."""
+    if study is None:
+        return ""
+    counts = [p.diary.n_occasions for p in study.people if p.diary is not None]
+    span = f"{min(counts)}" if min(counts) == max(counts) else f"{min(counts)}-{max(counts)}"
+    refused = [p.person for p in study.people if p.diary is None]
+    first = next(p.person for p in study.people if p.diary is shown)
+    line = f"<b>{len(study)}</b> {'person' if len(study) == 1 else 'people'}, {span} prompts each"
+    if refused:
+        line += f" (rows not a diary: {escape(', '.join(refused))})"
+    return f"{line}<br>{escape(first)}'s diary: "

@@ -38,12 +38,14 @@ from lagwise.desktop.project_files import ProjectFiles
 from lagwise.desktop.report_output import ReportExport
 from lagwise.desktop.results import ResultsView
 from lagwise.desktop.session import Session, Snapshot
+from lagwise.desktop.study_bar import StudyBar
 from lagwise.desktop.worker import Worker
 from lagwise.models.bootstrap import bootstrap
 from lagwise.models.errors import LagwiseError
 from lagwise.models.estimate import fit
 from lagwise.models.lag2check import adopt, lag2_check
 from lagwise.models.numbers import fmt
+from lagwise.models.project import embed_table
 
 PAGES = ("Data", "States", "Dynamics", "Results")
 PAGE_SECTIONS = ("data", "states", "dynamics", "results")   # their sections in the guide
@@ -102,6 +104,7 @@ class MainWindow(QMainWindow):
         self._build_status()
         self._connect()
         self._restore_layout()
+        self.study_bar.refresh()   # shown for a study only, whatever the saved layout says
         self._update_title()
         self._update_actions()
 
@@ -268,6 +271,9 @@ class MainWindow(QMainWindow):
         tools.addSeparator()
         tools.addAction(self.estimate_action)
         self.addToolBar(tools)
+        self.study_bar = StudyBar(self.session, lambda: self.show_page(PAGES.index("Results")),
+                                  self)
+        self.addToolBar(self.study_bar)
 
     def _short_twin(self, action: QAction, text: str) -> QAction:
         """A toolbar copy of `action` with a short, fixed label (the menu keeps the long one)."""
@@ -349,9 +355,13 @@ class MainWindow(QMainWindow):
 
         def load() -> None:
             self.files.discard_recoveries()
-            self.session.load_data(frame, diary, settings)
+            choice = dialog.study_choice()
+            self.session.load_data(dialog.diary_rows(), diary, settings,
+                                   data=embed_table(frame, settings.path), study=choice)
+            who = "" if choice is None else \
+                f"{len(dialog.study())} people; {choice.person}'s diary: "
             self.statusBar().showMessage(
-                f"Imported {Path(settings.path).name}: {diary.n_items} items, "
+                f"Imported {Path(settings.path).name}: {who}{diary.n_items} items, "
                 f"{diary.n_occasions} prompts. Next: give the items states.", 8000)
             self.show_page(0)
 
@@ -374,13 +384,11 @@ class MainWindow(QMainWindow):
 
     def open_batch(self) -> None:
         """Show a `lagwise batch` output folder across people (desktop.across_dialog)."""
-        from lagwise.desktop.across_dialog import AcrossDialog
-
         folder = QFileDialog.getExistingDirectory(self, "Open batch results")
         if not folder:
             return
         try:
-            AcrossDialog(folder, self).show()
+            self.study_bar.show_across(folder)
         except LagwiseError as exc:
             QMessageBox.warning(self, "Could not open the batch results", style.plain(str(exc)))
 
@@ -703,6 +711,7 @@ class MainWindow(QMainWindow):
         self._close_confirmed = False
         self.files.autosave_timer.stop()
         self.files.discard_recoveries()
+        self.study_bar.stop()
         if self.worker.busy:
             self.statusBar().showMessage("Stopping the estimation…")
             QApplication.setOverrideCursor(Qt.CursorShape.WaitCursor)

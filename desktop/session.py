@@ -36,6 +36,7 @@ from lagwise.models.runs import (
 )
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
+from lagwise.models.study import StudyChoice, person_rows
 from lagwise.models.recipe import DiaryRecipe
 
 
@@ -118,6 +119,7 @@ class Session(QObject):
         self._prepared: tuple[Diary, tuple[Step, ...], Diary] | None = None  # cache
         self._data: ProjectData | None = None
         self._notes = ""
+        self._study: StudyChoice | None = None   # many people: desktop.study_state
         self._file: Path | None = None
         self._created = ""
         self._untitled = "untitled"
@@ -139,6 +141,16 @@ class Session(QObject):
     @property
     def import_settings(self) -> ImportSettings | None:
         return self._import
+
+    @property
+    def study(self) -> StudyChoice | None:
+        """The person column, the person shown and the batch folder (None: one person)."""
+        return self._study
+
+    @property
+    def data(self) -> ProjectData | None:
+        """The project's raw table (every person's rows) and where it came from."""
+        return self._data
 
     @property
     def spec(self) -> ModelSpec:
@@ -204,13 +216,14 @@ class Session(QObject):
                         self._diary, self.fingerprint())
 
     def fingerprint(self) -> str:
-        """The fingerprint of the present data, recipe and preparation steps (models.project;
-        the table is hashed once per data source)."""
+        """The fingerprint of the present data, recipe, preparation steps and person shown
+        (models.project; the table is hashed once per data source)."""
         if self._digest is None or self._digest[0] is not self._data:
             self._digest = (self._data, table_digest(self._data))
         recipe = self._import.recipe if self._import is not None else None
         return data_fingerprint(self._digest[1], recipe or DiaryRecipe(),
-                                steps_to_json(self._preparation))
+                                steps_to_json(self._preparation),
+                                None if self._study is None else self._study.person)
 
     def result_is_current(self) -> bool:
         """True when the current run was estimated from the present data, recipe and
@@ -232,19 +245,21 @@ class Session(QObject):
     def load_data(self, frame, diary: Diary, settings: ImportSettings,
                   spec: ModelSpec | None = None, options: FitOptions | None = None,
                   preparation: tuple[Step, ...] = (), notes: str | None = None,
-                  data: ProjectData | None = None) -> None:
+                  data: ProjectData | None = None, study: StudyChoice | None = None) -> None:
         """Start on a new diary: a new, untitled project whose model is reset (or set to
         `spec`), preparation steps set to `preparation` and undo history cleared. The new
         diary counts as unsaved.
 
         data: where the table came from, as a project stores it (None: embedded from `frame`
-        and `settings.path`).
+        and `settings.path`); study: for a table of many people, `frame` and `diary` are the
+        rows and diary of `study.person`.
         """
         self.undo_stack.clear()
         self._frame = frame
         self._diary = diary
         self._import = settings
         self._data = data if data is not None else embed_table(frame, settings.path)
+        self._study = study
         self._spec = spec if spec is not None else EMPTY_SPEC
         if options is not None:
             self._options = options
@@ -264,7 +279,7 @@ class Session(QObject):
         self.undo_stack.clear()
         self._frame = self._diary = self._import = self._data = None
         self._spec, self._options = EMPTY_SPEC, FitOptions()
-        self._preparation, self._notes = (), ""
+        self._preparation, self._notes, self._study = (), "", None
         self._runs, self._current, self._stale, self._numbered = (), None, None, 0
         self._file, self._created, self._untitled = None, "", "untitled"
         self.fileChanged.emit()
@@ -376,7 +391,7 @@ class Session(QObject):
             spec=spec, options=self._options, runs=self._runs, current_run=self._current,
             result_current=self._current is None or self.result_is_current(),
             responses=None if self._current is None else self._responses, notes=self._notes,
-            created=self._created, file=self._file)
+            study=self._study, created=self._created, file=self._file)
 
     def load_project(self, project: Project, table, saved: bool = True,
                      diaries: tuple[Diary, Diary] | None = None) -> None:
@@ -405,9 +420,11 @@ class Session(QObject):
                                   scales=project.scales)
         if data is not None and data.table is None:
             data = replace(data, table=table)
-        self.load_data(table, raw, settings, spec=project.spec or EMPTY_SPEC,
+        study = project.study
+        rows = table if study is None else person_rows(table, study.person_column, study.person)
+        self.load_data(rows, raw, settings, spec=project.spec or EMPTY_SPEC,
                        options=project.options, preparation=steps, notes=project.notes,
-                       data=data)
+                       data=data, study=study)
         self._prepared = (raw, self._preparation, prepared)
         self._file, self._created = project.file, project.created
         self.fileChanged.emit()
@@ -543,7 +560,24 @@ class Session(QObject):
             self.undo_stack.push(_Swap(self, "_notes", self.notesChanged, self._notes, notes,
                                        text))
 
+    def set_study(self, study: StudyChoice) -> None:
+        """Keep another batch folder (not an edit: not undoable, but unsaved)."""
+        self._study = study
+        self._set_unsaved(True)
+
     # ----- used by the commands ------------------------------------------------------
+    def show_person(self, study: StudyChoice, frame, diary: Diary,
+                    current: str | None = None) -> tuple:
+        """Show another person's rows and diary with run `current` (desktop.study_state's
+        undoable change; the runs stay). Returns the replaced (study, frame, diary, current)."""
+        old = (self._study, self._frame, self._diary, self._current)
+        self._study, self._frame, self._diary, self._current = study, frame, diary, current
+        self._stale = None
+        self.dataChanged.emit()
+        self.runsChanged.emit()
+        self.resultChanged.emit()
+        return old
+
     def _set_data(self, settings: ImportSettings, diary: Diary) -> None:
         self._import, self._diary = settings, diary
         self.dataChanged.emit()

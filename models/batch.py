@@ -58,8 +58,7 @@ def run_batch(study: Study, settings: BatchSettings, out: str | Path, *,
     if jobs is not None and jobs < 1:
         raise ValueError("jobs should be 1 or more (None: every core)")
     folder = batchfiles.open_folder(out, settings)
-    common = settings.fingerprint()
-    prints = {e.person: f"{common}:{data_fingerprint(e)}" for e in study.people}
+    prints = person_fingerprints(study, settings)
     done: dict[str, PersonOutcome] = {}
     for entry in study.people:
         stored = batchfiles.load_outcome(folder, entry.person, prints[entry.person])
@@ -88,6 +87,13 @@ def run_batch(study: Study, settings: BatchSettings, out: str | Path, *,
                  json.dumps(across.to_json(), indent=2, allow_nan=False), "the batch summary")
     write_output(folder / batchfiles.ESTIMATES, estimates_csv(across), "the estimates table")
     return BatchOutcome(outcomes, reused, across)
+
+
+def person_fingerprints(study: Study, settings: BatchSettings) -> dict[str, str]:
+    """Person -> the fingerprint of the settings and their data, as their outcome file
+    holds it (models.batchfiles.load_outcome finds a finished person by it)."""
+    common = settings.fingerprint()
+    return {e.person: f"{common}:{data_fingerprint(e)}" for e in study.people}
 
 
 def _locally(todo: list[PersonDiary], settings: BatchSettings, prints: dict[str, str],

@@ -27,6 +27,7 @@ from lagwise.models.results import FitResult
 from lagwise.models.runs import Run, find_run
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
+from lagwise.models.study import StudyChoice, person_rows
 from lagwise.models.recipe import DiaryRecipe
 
 FORMAT = "lagwise-project"
@@ -100,6 +101,8 @@ class Project:
     responses: what the Responses tab shows for the current results (None: its defaults).
     result_current: False when the data, steps, model or settings changed after the results
         were estimated (the window then shows them as out of date).
+    study: the person column of a table holding many people, the person whose diary the
+        project shows, and the folder of its batch results (None: one person's table).
     created/modified: UTC ISO 8601 times, set by `save_project`.
     lagwise_version: the Lagwise version that last wrote the file.
     file: where the project was opened from or last saved to (not stored in the file).
@@ -119,6 +122,7 @@ class Project:
     result_current: bool = True
     responses: ResponseChoice | None = None
     notes: str = ""
+    study: StudyChoice | None = None
     created: str = ""
     modified: str = ""
     lagwise_version: str = ""
@@ -252,6 +256,10 @@ def project_diary(project: Project, table: pd.DataFrame | None = None,
         source = str(data.link)
     elif project.file is not None:
         source = f"{source} (in {project.file.name})"
+    if project.study is not None:
+        choice = project.study
+        table = person_rows(table, choice.person_column, choice.person, source)
+        source = f"{source}, {choice.person_column} {choice.person}"
     diary = project.recipe.diary(table, source=source)
     if prepared and project.preparation:
         from lagwise.models.preparation import apply_steps, steps_from_json  # loads statistics modules

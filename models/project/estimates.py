@@ -3,8 +3,8 @@
 The fingerprint tells runs on different data or preparation apart: SHA-256 over one compact,
 key-sorted JSON text of the stored table's digest (embedded data: SHA-256 of the table as the
 project stores it; linked data: the file's SHA-256, which is checked whenever the file is
-read), the recipe (items, time settings, missing codes, prompts per day, stated scales) and
-the preparation steps.
+read), the recipe (items, time settings, missing codes, prompts per day, stated scales), the
+preparation steps and, for a table of many people, the person shown (models.study).
 """
 
 from __future__ import annotations
@@ -34,24 +34,28 @@ def table_digest(data: ProjectData | None) -> str | None:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
-def data_fingerprint(table: str | None, recipe: DiaryRecipe, preparation: Sequence[Any]) -> str:
-    """SHA-256 (hex) of the table's digest (`table_digest`), the recipe and the preparation
-    steps (JSON values)."""
+def data_fingerprint(table: str | None, recipe: DiaryRecipe, preparation: Sequence[Any],
+                     person: str | None = None) -> str:
+    """SHA-256 (hex) of the table's digest (`table_digest`), the recipe, the preparation
+    steps (JSON values) and the person whose rows the diary holds (None: the whole table)."""
     doc = {"table": table,
            "recipe": {"items": None if recipe.items is None else list(recipe.items),
                       "time": recipe.time.to_json(),
                       "missing_codes": list(recipe.missing_codes),
                       "prompts_per_day": recipe.prompts_per_day,
                       "scales": scales_to_json(dict(recipe.scales))},
-           "preparation": list(preparation)}
+           "preparation": list(preparation),
+           **({} if person is None else {"person": person})}
     text = json.dumps(doc, sort_keys=True, separators=(",", ":"), ensure_ascii=False,
                       default=str)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
 def project_fingerprint(project: Project) -> str:
-    """The fingerprint of the project's data, recipe and preparation steps as they are now."""
-    return data_fingerprint(table_digest(project.data), project.recipe, project.preparation)
+    """The fingerprint of the project's data, recipe, preparation steps and person shown as
+    they are now."""
+    return data_fingerprint(table_digest(project.data), project.recipe, project.preparation,
+                            None if project.study is None else project.study.person)
 
 
 def with_estimate(project: Project, result: FitResult, name: str | None = None) -> Project:

@@ -35,6 +35,7 @@ from lagwise.models.scales import scales_from_json
 from lagwise.models.results import FitResult
 from lagwise.models.estimators import FitOptions
 from lagwise.models.spec import ModelSpec
+from lagwise.models.study import StudyChoice
 
 MAX_FILE_BYTES = 256 * 2**20      # the whole file
 
@@ -164,7 +165,8 @@ def _responses(value: object, result: FitResult | None) -> ResponseChoice | None
 
 def _project(doc: dict, folder: Path, upgraded: bool = False) -> tuple[Project, Path | None]:
     """The project of a current-version document (`upgraded`: converted from an older one)."""
-    doc = jr.obj(doc, "", _TOP_KEYS, ("recovery_of", "results_current", "responses", "scales"))
+    doc = jr.obj(doc, "", _TOP_KEYS, ("recovery_of", "results_current", "responses", "scales",
+                                      "study"))
     time, per_day = _time(doc["time"])
     items = doc["items"]
     if items is not None:
@@ -180,8 +182,12 @@ def _project(doc: dict, folder: Path, upgraded: bool = False) -> tuple[Project, 
             raise FieldError("preparation",
                              f"is not a list of preparation steps ({error})") from None
     data = None if doc["data"] is None else _data(doc["data"], folder)
+    study = None if doc.get("study") is None else StudyChoice.from_json(doc["study"], "study")
     if data is not None and data.table is not None:
         _check_roles(data.table, items, time)
+        if study is not None and study.person_column not in set(data.table.columns):
+            raise FieldError("study.person_column", f"names the column '{study.person_column}', "
+                             "which the embedded table lacks")
     recovery_of = doc.get("recovery_of")
     if recovery_of is not None:
         recovery_of = Path(jr.text(recovery_of, "recovery_of", jr.MAX_TEXT))
@@ -189,7 +195,7 @@ def _project(doc: dict, folder: Path, upgraded: bool = False) -> tuple[Project, 
     scales = tuple(scales_from_json(doc.get("scales", {})).items())
     project = Project(
         data=data, items=items, time=time, missing_codes=codes, prompts_per_day=per_day,
-        scales=scales, preparation=tuple(preparation))
+        scales=scales, preparation=tuple(preparation), study=study)
     runs = _runs(doc["runs"], project_fingerprint(project) if upgraded and doc["runs"] else None)
     current = _current(doc["current_run"], runs)
     result = None if current is None else next(r.result for r in runs if r.name == current)

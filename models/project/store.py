@@ -123,6 +123,7 @@ def _document(project: Project, folder: Path) -> dict:
         "results_current": project.result_current,
         **({} if project.responses is None else {"responses": project.responses.to_json()}),
         "notes": project.notes,
+        **({} if project.study is None else {"study": project.study.to_json()}),
     }
 
 

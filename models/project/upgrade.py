@@ -46,6 +46,9 @@ def upgrade_1_to_2(doc: dict) -> dict:
     results become the run "Run 1", made when the file was last saved, with the project's
     preparation steps and an empty note; its data fingerprint is left out here and filled
     in on opening from the project's own data, recipe and steps (models.project.estimates).
+    Version 2 may also hold a "study" (the person column of a table of many people, the
+    person shown, the batch folder; models.study); a version-1 file is one person's table
+    and gets none.
     """
     new = dict(doc)
     new["format_version"] = 2
