@@ -127,10 +127,16 @@ class Plan:
             need = self.days_needed(n)
             days = (f"about {math.ceil(need)} days give 80% power" if need is not None
                     else "more days than the longest design are needed for 80% power")
-            out.append(f"With {top.design.words()}, {_kind_words(p)} ({fmt(p.truth, digits=2)}) "
-                       f"is found in about {round(100 * p.power)}% of diaries; {days}."
-                       if math.isfinite(p.power) else
-                       f"With {top.design.words()}, no diary was fitted for {p.label}.")
+            if not math.isfinite(p.power):
+                out.append(f"With {top.design.words()}, no diary was fitted for {p.label}.")
+            elif p.truth == 0.0:
+                out.append(f"With {top.design.words()}, {_kind_words(p)}, which is 0 in the "
+                           f"assumed model, is wrongly found in about {round(100 * p.power)}% "
+                           f"of diaries (5% expected).")
+            else:
+                out.append(f"With {top.design.words()}, {_kind_words(p)} "
+                           f"({fmt(p.truth, digits=2)}) is found in about "
+                           f"{round(100 * p.power)}% of diaries; {days}.")
         return out
 
     def to_json(self) -> dict:
@@ -192,3 +198,20 @@ def _kind_words(p: PathSummary) -> str:
 
 def _num(value: float | None) -> float | None:
     return None if value is None or not math.isfinite(value) else float(value)
+
+
+HEADER = ("Path", "Kind", "Truth", "Days", "Prompts", "Answered", "Diaries", "Power",
+          "± MC", "Bias", "SD", "Coverage", "Not converged")
+
+
+def table_rows(plan: Plan) -> list[tuple[str, ...]]:
+    """The results table (HEADER's columns), one row per path and design, numbers by fmt."""
+    out = []
+    for n in range(len(plan.designs[0].paths)):
+        for s in plan.designs:
+            p, d = s.paths[n], s.design
+            out.append((p.label, p.kind.label, fmt(p.truth), fmt(d.days, "int"),
+                        fmt(d.prompts, "int"), f"{round(100 * d.answered)}%", fmt(s.replications, "int"),
+                        fmt(p.power), fmt(p.power_se), fmt(p.bias), fmt(p.sd), fmt(p.coverage),
+                        fmt(s.not_converged)))
+    return out
