@@ -72,7 +72,7 @@ def run(args: argparse.Namespace) -> int:
     from lagwise.models.atomic import write_output
     from lagwise.models.design import Design
     from lagwise.models.plan import run_plan
-    from lagwise.models.planresults import HEADER, table_rows
+    from lagwise.models.planresults import ALIGN, HEADER, table_rows
     from lagwise.models.texttable import table
 
     truth, estimator = _truth(args)
@@ -91,11 +91,14 @@ def run(args: argparse.Namespace) -> int:
     plan = run_plan(truth, designs, replications=args.replications, seed=args.seed,
                     lag2=lag2, jobs=args.jobs, scheduler=args.scheduler,
                     monitor=StderrProgress())
-    print("\n".join(table(HEADER, table_rows(plan), "<<>>>>>>>>>>>", indent="")))
+    print("\n".join(table(HEADER, table_rows(plan), ALIGN, indent="")))
     print()
     for s in plan.designs:
         if s.lag2_power is not None:
             print(f"Lag-2 check, {s.design.words()}: power {s.lag2_power:.2f}.")
+    print(f"{args.prompts} prompts a day, {round(100 * args.answered)}% answered "
+          f"({args.pattern}); power, coverage and not converged are shares of diaries, "
+          "± MC the Monte Carlo error of the power.")
     print("\n".join(plan.sentences()))
     print("Planning assumes the model is right: the power is that of diaries drawn from it.")
     if args.json:

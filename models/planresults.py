@@ -55,7 +55,8 @@ class PathSummary:
 
     @property
     def label(self) -> str:
-        return f"{self.from_} -> {self.to}" if self.kind != Kind.INERTIA else self.to
+        """'tension -> low mood', or 'tension (inertia)'."""
+        return f"{self.from_} -> {self.to}" if self.kind != Kind.INERTIA else f"{self.to} (inertia)"
 
     def to_json(self) -> dict:
         return {"kind": str(self.kind), "from": self.from_, "to": self.to, "truth": self.truth,
@@ -200,8 +201,9 @@ def _num(value: float | None) -> float | None:
     return None if value is None or not math.isfinite(value) else float(value)
 
 
-HEADER = ("Path", "Kind", "Truth", "Days", "Prompts", "Answered", "Diaries", "Power",
-          "± MC", "Bias", "SD", "Coverage", "Not converged")
+HEADER = ("Path", "Truth", "Days", "Diaries", "Power", "± MC", "Bias", "SD", "Coverage",
+          "Not converged")
+ALIGN = "<" + ">" * (len(HEADER) - 1)
 
 
 def table_rows(plan: Plan) -> list[tuple[str, ...]]:
@@ -209,9 +211,8 @@ def table_rows(plan: Plan) -> list[tuple[str, ...]]:
     out = []
     for n in range(len(plan.designs[0].paths)):
         for s in plan.designs:
-            p, d = s.paths[n], s.design
-            out.append((p.label, p.kind.label, fmt(p.truth), fmt(d.days, "int"),
-                        fmt(d.prompts, "int"), f"{round(100 * d.answered)}%", fmt(s.replications, "int"),
-                        fmt(p.power), fmt(p.power_se), fmt(p.bias), fmt(p.sd), fmt(p.coverage),
-                        fmt(s.not_converged)))
+            p = s.paths[n]
+            out.append((p.label, fmt(p.truth), fmt(s.design.days, "int"),
+                        fmt(s.replications, "int"), fmt(p.power), fmt(p.power_se),
+                        fmt(p.bias), fmt(p.sd), fmt(p.coverage), fmt(s.not_converged)))
     return out
