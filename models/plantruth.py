@@ -110,7 +110,7 @@ def from_json(doc: object, where: str = "model") -> Truth:
     spec = ModelSpec(states=states, lags=1)
     spec.validate()
     k, items = spec.k, spec.items
-    b = np.diag([_one(fields["inertia"], s, INERTIA, f"{where}.inertia") for s in names])
+    b = np.diag([_one(fields["inertia"], s, INERTIA) for s in names])
     for n, (fr, to, effect) in enumerate(fields["cross_lagged"]):
         place = f"{where}.cross_lagged[{n}]"
         if fr == to:
@@ -134,8 +134,7 @@ def from_json(doc: object, where: str = "model") -> Truth:
     for j, s in enumerate(states):
         for it in s.items:
             default = RELIABILITY if len(s.items) > 1 else None
-            r = _one(reliability, it, default, f"{where}.reliability") \
-                if reliability is not None else default
+            r = default if reliability is None else _one(reliability, it, default)
             if r is None:
                 continue
             if not 0.0 < r <= 1.0:
@@ -165,8 +164,7 @@ def _per_name(value: object, where: str) -> float | dict[str, float] | None:
     return jr.mapping(value, where, item=jr.number)
 
 
-def _one(values: float | dict[str, float], name: str, default: float | None,
-         where: str) -> float | None:
+def _one(values: float | dict[str, float], name: str, default: float | None) -> float | None:
     if isinstance(values, dict):
         return values.get(name, default)
     return values

@@ -88,7 +88,7 @@ def test_power_of_a_var1_agrees_with_ols_on_within_day_pairs():
     truth = plantruth.from_json(MODEL)
     plan = run_plan(truth, [Design(40, 6, 0.75)], replications=60, seed=3, jobs=2)
     assert plan.complete and plan.designs[0].converged >= 57
-    _agrees(plan, 40, 2000, seed=11)
+    _agrees(plan, 40, 1000, seed=11)
 
 
 @pytest.mark.slow
@@ -109,13 +109,21 @@ def test_power_agrees_with_ols_and_with_the_large_sample_approximation():
         assert abs(p.sd - se[place]) <= 3 * p.sd_se, (kind, p.sd, se[place])
 
 
-def test_one_and_two_workers_give_the_same_plan():
+def test_one_and_two_workers_and_a_dask_cluster_give_the_same_plan():
     truth = plantruth.from_json(MODEL)
     designs = [Design(8, 5, 0.8), Design(12, 5, 0.8, "late")]
     one = run_plan(truth, designs, replications=6, seed=9, jobs=1)
     two = run_plan(truth, designs, replications=6, seed=9, jobs=2)
     assert one.to_json() == two.to_json()
     assert run_plan(truth, designs, replications=6, seed=10, jobs=1).to_json() != one.to_json()
+    from distributed import LocalCluster
+
+    # one worker thread: BLAS threads are set per process, so fits must not overlap in one
+    with LocalCluster(host="127.0.0.1", protocol="tcp://", processes=False, n_workers=1,
+                      threads_per_worker=1, dashboard_address=None) as cluster:
+        dask = run_plan(truth, designs, replications=6, seed=9,
+                        scheduler=cluster.scheduler_address)
+    assert dask.to_json() == one.to_json()
 
 
 class _StopAfter:
