@@ -17,7 +17,7 @@ import json
 
 from lagwise.desktop.cli_common import in_range
 from lagwise.models.errors import ProjectError, SpecError
-from lagwise.models.estimators import ESTIMATORS
+from lagwise.models.estimators import ESTIMATORS, FitOptions
 from lagwise.models.limits import JOBS, NIGHT_GAP, PROMPTS_PER_DAY, SEED
 
 CURRENT_RUN = "current"
@@ -47,7 +47,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="which prompts are missed: 'random' (any alike) or 'late' "
                              "(more late in the day)")
     design.add_argument("--estimator", choices=ESTIMATORS, default=None,
-                        help="estimator of the refits (default: the project's, else stationary)")
+                        help="estimator of the refits (default: the project's, with its night rule; "
+                             "else stationary)")
     design.add_argument("--night-gap", type=in_range(NIGHT_GAP), metavar="N",
                         help="exact estimator: the states carry over N missed prompts of night")
     design.add_argument("--lag2", nargs=3, metavar=("FROM", "TO", "EFFECT"),
@@ -75,9 +76,12 @@ def run(args: argparse.Namespace) -> int:
     from lagwise.models.planresults import ALIGN, HEADER, table_rows
     from lagwise.models.texttable import table
 
-    truth, estimator = _truth(args)
-    designs = [Design(days, args.prompts, args.answered, args.pattern,
-                      args.estimator or estimator, args.night_gap) for days in args.days]
+    truth, options = _truth(args)
+    if args.estimator is None:      # the analysis's own estimator and night rule
+        args.estimator = options.estimator
+        args.night_gap = options.night_gap if args.night_gap is None else args.night_gap
+    designs = [Design(days, args.prompts, args.answered, args.pattern, args.estimator,
+                      args.night_gap) for days in args.days]
     lag2 = None
     if args.lag2 is not None:
         names = list(truth.spec.state_names)
@@ -120,7 +124,7 @@ def _truth(args: argparse.Namespace):
             text = open(args.model, encoding="utf-8").read()
         except (OSError, UnicodeDecodeError) as error:
             raise SpecError(f"cannot read {args.model} ({error})") from None
-        return plantruth.from_json(jsonread.parse(text)), "stationary"
+        return plantruth.from_json(jsonread.parse(text)), FitOptions()
     from lagwise.models.project import open_project
 
     project = open_project(args.project)
@@ -130,7 +134,7 @@ def _truth(args: argparse.Namespace):
     if project.result is None:
         raise ProjectError(f"{args.project} holds no results yet: fit the model first, or "
                            "give --model MODEL.json")
-    return plantruth.from_result(project.result), project.result.estimator
+    return plantruth.from_result(project.result), project.result.options
 
 
 def _days(text: str) -> list[int]:

@@ -191,3 +191,17 @@ def test_a_wrong_design_is_one_plain_line():
         Design(20, 6, 1.5)
     with pytest.raises(SpecError, match="night"):
         Design(20, 6, night_gap=3)      # the stationary estimator never joins days
+
+
+def test_the_night_rule_carries_the_states_over_the_night_gap():
+    truth = plantruth.from_json({"states": [{"name": "a", "items": ["a1"]}], "inertia": 0.6})
+    rng = np.random.default_rng(8)
+    joined = simulate(truth, Design(3000, 4, 1.0, estimator="exact", night_gap=1), rng)
+    apart = simulate(truth, Design(3000, 4, 1.0), rng)
+    for diary, expected in ((joined, 0.6 ** 2), (apart, 0.0)):
+        y = diary.values[:, 0].reshape(3000, 4)
+        r = np.corrcoef(y[:-1, -1], y[1:, 0])[0, 1]
+        # an AR(1) correlates phi^h over h steps (common practice): the last prompt and the
+        # next day's first are 2 steps apart over a night of 1 missed prompt; the sampling
+        # error of r is about 1 / sqrt(n)
+        assert abs(r - expected) <= 4 / math.sqrt(3000), (expected, r)

@@ -2,7 +2,7 @@
 
 The assumed truth is the current result (or, before an estimate, the model's states with
 default values: models.plantruth). The designs are typed as a list of days with the prompts
-per day, the answered share and its pattern; Run asks the window to simulate them in its
+per day, the answered share and its pattern (estimator and night rule: the analysis's own); Run asks the window to simulate them in its
 worker (`runRequested`), and `show_plan` shows the table per path and design, the power
 curve over days with its Monte Carlo band and the 80% line, and the plain sentences.
 """
@@ -142,8 +142,9 @@ class PlanPage(QWidget):
         if not parts or not all(p.isdigit() for p in parts):
             raise LagwiseError("Type the days of each design as whole numbers separated by "
                                "commas, e.g. 20, 40, 60.")
+        options = self.session.options    # the estimator and night rule of the analysis
         return [Design(int(days), self.prompts.value(), round(self.answered.value(), 4),
-                       self.pattern.currentText())
+                       self.pattern.currentText(), options.estimator, options.night_gap)
                 for days in sorted({int(p) for p in parts})]
 
     def request_run(self) -> None:
