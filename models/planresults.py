@@ -126,8 +126,11 @@ class Plan:
         out = []
         for n, p in enumerate(top.paths):
             need = self.days_needed(n)
-            days = (f"about {math.ceil(need)} days give 80% power" if need is not None
-                    else "more days than the longest design are needed for 80% power")
+            shortest = min(s.design.days for s in self.designs)
+            days = ("more days than the longest design are needed for 80% power"
+                    if need is None else
+                    f"already the shortest design ({shortest} days) gives 80% power"
+                    if need <= shortest else f"about {math.ceil(need)} days give 80% power")
             if not math.isfinite(p.power):
                 out.append(f"With {top.design.words()}, no diary was fitted for {p.label}.")
             elif p.truth == 0.0:

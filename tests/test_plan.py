@@ -12,6 +12,7 @@ number of answered within-day pairs.
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -205,3 +206,22 @@ def test_the_night_rule_carries_the_states_over_the_night_gap():
         # next day's first are 2 steps apart over a night of 1 missed prompt; the sampling
         # error of r is about 1 / sqrt(n)
         assert abs(r - expected) <= 4 / math.sqrt(3000), (expected, r)
+
+
+def test_days_for_80_percent_power_interpolate_linearly_between_designs():
+    from lagwise.models.planresults import Plan, summarise
+
+    truth = plantruth.from_json(MODEL)
+    designs = [Design(20, 6), Design(40, 6), Design(60, 6)]
+    plan = summarise(truth, designs, 0, [], seed=0, complete=True)
+
+    def with_power(values):
+        rows = [replace(s, paths=(replace(s.paths[0], power=v),) + s.paths[1:])
+                for s, v in zip(plan.designs, values)]
+        return Plan(tuple(rows), 0, 0, True)
+
+    # linear interpolation between (40, 0.7) and (60, 0.9) reaches 0.8 halfway (common practice)
+    assert with_power([0.5, 0.7, 0.9]).days_needed(0) == pytest.approx(50.0)
+    assert with_power([0.85, 0.9, 0.95]).days_needed(0) == 20.0
+    assert with_power([0.1, 0.2, 0.3]).days_needed(0) is None
+    assert "already the shortest design (20 days)" in with_power([0.85, 0.9, 0.95]).sentences()[0]
