@@ -5,6 +5,7 @@
     lagwise fit DATA ...      fit a model (desktop.cli_fit)
     lagwise report PROJECT .. the report of a saved analysis (desktop.cli_report)
     lagwise batch DATA ...    one model per person of a long file (desktop.cli_batch)
+    lagwise plan PROJECT ...  power and days for the next diary (desktop.cli_plan)
     lagwise bench ...         speed of the estimators (desktop.cli_bench)
     lagwise demo ...          the bundled demo (desktop.app.run_demo)
 
@@ -45,6 +46,8 @@ COMMANDS: dict[str, Command] = {
     "batch": Command("lagwise.desktop.cli_batch", "add_arguments", "run",
                      "fit the same model to every person of a long file, one model per "
                      "person"),
+    "plan": Command("lagwise.desktop.cli_plan", "add_arguments", "run",
+                    "plan the next diary: power and days needed, by simulation"),
     "bench": Command("lagwise.desktop.cli_bench", "add_arguments", "run",
                      "measure how fast the estimators are"),
     "demo": Command("lagwise.desktop.app", "add_demo_arguments", "run_demo",

@@ -33,6 +33,7 @@ from lagwise.desktop.import_dialog import FILE_FILTER, ImportDialog
 from lagwise.desktop.notes_dialog import NotesDialog
 from lagwise.desktop.pages.data_page import DataPage
 from lagwise.desktop.pages.dynamics_page import DynamicsPage
+from lagwise.desktop.pages.plan_page import PlanPage
 from lagwise.desktop.pages.states_page import StatesPage
 from lagwise.desktop.project_files import ProjectFiles
 from lagwise.desktop.report_output import ReportExport
@@ -46,9 +47,10 @@ from lagwise.models.estimate import fit
 from lagwise.models.lag2check import adopt, lag2_check
 from lagwise.models.numbers import fmt
 from lagwise.models.project import embed_table
+from lagwise.models.plan import run_plan
 
-PAGES = ("Data", "States", "Dynamics", "Results")
-PAGE_SECTIONS = ("data", "states", "dynamics", "results")   # their sections in the guide
+PAGES = ("Data", "States", "Dynamics", "Results", "Plan")
+PAGE_SECTIONS = ("data", "states", "dynamics", "results", "plan")   # their sections in the guide
 SETTINGS_GEOMETRY = "window/geometry"
 SETTINGS_STATE = "window/state"
 SETTINGS_PAGE = "window/page"
@@ -57,9 +59,11 @@ SETTINGS_SPLITTERS = "splitters/"
 JOB_ESTIMATE = "estimate"
 JOB_LAG2 = "lag-2 check"
 JOB_BOOTSTRAP = "bootstrap"
+JOB_PLAN = "plan"
 _JOB_WORDS = {JOB_ESTIMATE: ("Estimating…", "Estimation"),
               JOB_LAG2: ("Running the lag-2 check…", "The lag-2 check"),
-              JOB_BOOTSTRAP: ("Checking stability (bootstrap)…", "The bootstrap")}
+              JOB_BOOTSTRAP: ("Checking stability (bootstrap)…", "The bootstrap"),
+              JOB_PLAN: ("Planning: simulating diaries…", "The plan")}
 _LAG2_DATA_CHANGED = ("The data or their preparation changed since the last lag-2 check. Press "
                       "“Run lag-2 check” to test the model on the present data.")
 
@@ -128,6 +132,7 @@ class MainWindow(QMainWindow):
         self.states_page = StatesPage(self.session)
         self.dynamics_page = DynamicsPage(self.session)
         self.results_page = self._results_page()
+        self.plan_page = PlanPage(self.session)
         for name, page in zip(PAGES, self.pages()):
             self.nav.addItem(QListWidgetItem(name))
             self.stack.addWidget(page)
@@ -168,7 +173,8 @@ class MainWindow(QMainWindow):
         return page
 
     def pages(self) -> tuple[QWidget, ...]:
-        return (self.data_page, self.states_page, self.dynamics_page, self.results_page)
+        return (self.data_page, self.states_page, self.dynamics_page, self.results_page,
+                self.plan_page)
 
     def _action(self, text: str, shortcut=None, slot=None, tip: str = "") -> QAction:
         action = QAction(text, self)
@@ -309,6 +315,7 @@ class MainWindow(QMainWindow):
         self._connect_lag2()
         self.results.set_session(s)
         self.results.stability.run_requested.connect(self.run_bootstrap)
+        self.plan_page.runRequested.connect(self.run_plan)
         self.results.responses.choice_changed.connect(
             lambda: s.set_responses(self.results.responses.response_choice()))
         self.dynamics_page.set_estimate_action(self.estimate_action)
@@ -430,6 +437,13 @@ class MainWindow(QMainWindow):
                           replicates=int(replicates), job=JOB_BOOTSTRAP)
         return True
 
+    def run_plan(self, truth, designs, replications: int, seed: int) -> None:
+        """Start a study plan (models.plan.run_plan, on every core) in the worker; a stopped
+        plan still delivers the diaries finished so far."""
+        self._running, self._running_document = None, self.session.document
+        self.worker.start(run_plan, truth, tuple(designs), replications=replications,
+                          seed=seed, job=JOB_PLAN)
+
     def _ready_snapshot(self, title: str) -> Snapshot | None:
         """The frozen inputs for a run, or None after telling the user what is missing."""
         try:
@@ -472,6 +486,12 @@ class MainWindow(QMainWindow):
             return
         if self.worker.job == JOB_BOOTSTRAP:
             self._bootstrap_done(result)
+            return
+        if self.worker.job == JOB_PLAN:
+            self.plan_page.show_plan(result)
+            self.statusBar().showMessage("Plan finished." if result.complete else
+                                         "Plan stopped: the diaries finished so far are shown.",
+                                         15000)
             return
         if self.worker.job == JOB_LAG2:
             self.results.lag2.show_check(result)

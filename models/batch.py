@@ -1,10 +1,8 @@
 """Batch estimation: the same model and settings fitted to every person of a study, each
 person on their own, in parallel.
 
-Locally the people are fitted in joblib's loky worker processes (`jobs`, None: every core;
-1: one after another in this process); given the address of a running Dask scheduler
-(`scheduler="tcp://host:8786"`) they are submitted to that cluster through
-dask.distributed's Client instead. Each person's outcome
+The people are fitted by models.parallel: locally in worker processes (`jobs`) or on a
+running Dask cluster (`scheduler`). Each person's outcome
 (models.personfit) is written the moment it arrives (models.batchfiles), so an interrupted
 batch resumes with the people still missing. Progress goes to the monitor per finished
 person (fraction: people done of all); cancelling stops the queued people and keeps the
@@ -14,21 +12,16 @@ finished ones.
 from __future__ import annotations
 
 import json
-from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
-
-import joblib
 
 from lagwise.models import batchfiles
 from lagwise.models.across import Across, across_people, estimates_csv
 from lagwise.models.atomic import write_output
-from lagwise.models.errors import LagwiseError
+from lagwise.models.parallel import run_tasks
 from lagwise.models.personfit import BatchSettings, PersonOutcome, data_fingerprint, fit_person
 from lagwise.models.progress import Monitor, checkpoint
-from lagwise.models.study import PersonDiary, Study
-
-CONNECT_TIMEOUT = "20s"
+from lagwise.models.study import Study
 
 
 @dataclass(frozen=True)
@@ -70,8 +63,8 @@ def run_batch(study: Study, settings: BatchSettings, out: str | Path, *,
     checkpoint(monitor, len(done) / max(n, 1),
                f"{len(done)} of {n} people already done; fitting {len(todo)}")
     if todo:
-        runner = _on_cluster(todo, settings, prints, scheduler) if scheduler else \
-            _locally(todo, settings, prints, jobs)
+        runner = run_tasks(fit_person, [(e, settings, prints[e.person]) for e in todo],
+                           jobs=jobs, scheduler=scheduler)
         try:
             for outcome in runner:
                 batchfiles.save_outcome(folder, outcome)
@@ -95,34 +88,3 @@ def person_fingerprints(study: Study, settings: BatchSettings) -> dict[str, str]
     common = settings.fingerprint()
     return {e.person: f"{common}:{data_fingerprint(e)}" for e in study.people}
 
-
-def _locally(todo: list[PersonDiary], settings: BatchSettings, prints: dict[str, str],
-             jobs: int | None) -> Iterator[PersonOutcome]:
-    """Outcomes as they finish, from joblib's loky worker processes."""
-    tasks = (joblib.delayed(fit_person)(e, settings, prints[e.person]) for e in todo)
-    workers = min(joblib.cpu_count() if jobs is None else jobs, len(todo))
-    outputs = joblib.Parallel(n_jobs=workers, backend="loky",
-                              return_as="generator_unordered")(tasks)
-    try:
-        yield from outputs
-    finally:
-        outputs.close()
-
-
-def _on_cluster(todo: list[PersonDiary], settings: BatchSettings, prints: dict[str, str],
-                scheduler: str) -> Iterator[PersonOutcome]:
-    """Outcomes as they finish, from the workers of the Dask cluster at `scheduler`."""
-    from distributed import Client, as_completed   # only a cluster batch loads dask
-
-    try:
-        client = Client(scheduler, timeout=CONNECT_TIMEOUT, set_as_default=False)
-    except (OSError, ValueError) as error:
-        raise LagwiseError(f"cannot reach the scheduler at {scheduler} ({error})") from None
-    futures = [client.submit(fit_person, e, settings, prints[e.person], pure=False)
-               for e in todo]
-    try:
-        for future in as_completed(futures, loop=client.loop):
-            yield future.result()
-    finally:
-        client.cancel(futures)
-        client.close()

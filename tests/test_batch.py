@@ -14,7 +14,7 @@ import pytest
 from batch_people import RECIPE, people_tables, person_table, stacked
 from lagwise.models import personfit
 from lagwise.models.across import NOT_MULTILEVEL
-from lagwise.models import batch
+from lagwise.models import parallel
 from lagwise.models.batch import run_batch
 from lagwise.models.errors import Cancelled, DataError, LagwiseError, SpecError
 from lagwise.models.bootstrap import bootstrap
@@ -202,7 +202,7 @@ def test_a_long_file_splits_into_people_each_on_their_own_grid():
 
 
 def test_an_unreachable_scheduler_is_one_line(tmp_path, monkeypatch):
-    monkeypatch.setattr(batch, "CONNECT_TIMEOUT", "1s")
+    monkeypatch.setattr(parallel, "CONNECT_TIMEOUT", "1s")
     study = study_from_frame(stacked(people_tables(1)), RECIPE, "person")
     with pytest.raises(LagwiseError, match="cannot reach the scheduler at tcp://127.0.0.1:9"):
         run_batch(study, SETTINGS, tmp_path, scheduler="tcp://127.0.0.1:9")
