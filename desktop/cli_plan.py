@@ -20,7 +20,6 @@ from lagwise.models.errors import ProjectError, SpecError
 from lagwise.models.estimators import ESTIMATORS, FitOptions
 from lagwise.models.limits import JOBS, NIGHT_GAP, PROMPTS_PER_DAY, SEED
 
-CURRENT_RUN = "current"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -31,8 +30,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     truth.add_argument("project", nargs="?", metavar="PROJECT.lagwise",
                        help="a saved analysis: its current result is the truth")
     truth.add_argument("--run", metavar="NAME",
-                       help=f"the run of PROJECT to use (only '{CURRENT_RUN}', its current "
-                            "result, for now)")
+                       help="the run of PROJECT whose estimates are the truth (default: its "
+                            "current run)")
     truth.add_argument("--model", metavar="MODEL.json",
                        help="a model typed in as JSON: states and items, inertia, "
                             "cross_lagged, innovation_correlation, loadings, reliability")
@@ -127,14 +126,14 @@ def _truth(args: argparse.Namespace):
         return plantruth.from_json(jsonread.parse(text)), FitOptions()
     from lagwise.models.project import open_project
 
+    from lagwise.models.runs import find_run
+
     project = open_project(args.project)
-    if args.run not in (None, CURRENT_RUN):
-        raise ProjectError(f"{args.project} has no run named '{args.run}' (only "
-                           f"'{CURRENT_RUN}', its current result, can be planned from)")
-    if project.result is None:
+    if args.run is None and project.result is None:
         raise ProjectError(f"{args.project} holds no results yet: fit the model first, or "
                            "give --model MODEL.json")
-    return plantruth.from_result(project.result), project.result.options
+    result = project.result if args.run is None else find_run(project.runs, args.run).result
+    return plantruth.from_result(result), result.options
 
 
 def _days(text: str) -> list[int]:

@@ -14,6 +14,7 @@ from lagwise.desktop.cli import main
 from lagwise.models import plantruth
 from lagwise.models.design import Design
 from lagwise.models.plan import run_plan
+from lagwise.models.project import open_project
 from lagwise.resources import demo_diary_path
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -96,7 +97,7 @@ def test_bad_input_is_one_line_and_exit_2(tmp_path, model_file, capsys, argv, wo
     assert words in err and err.count("\n") == 1
 
 
-def test_a_run_other_than_the_current_result_is_refused(tmp_path, capsys):
+def test_a_named_run_is_the_truth_and_an_unknown_run_is_refused(tmp_path, capsys):
     saved = tmp_path / "p.lagwise"
     assert main(["fit", str(demo_diary_path()), "--day", "day", "--prompt", "prompt",
                  "--state", "tension=tense,restless,worried", "--state",
@@ -104,3 +105,10 @@ def test_a_run_other_than_the_current_result_is_refused(tmp_path, capsys):
     capsys.readouterr()
     assert main(["plan", str(saved), "--run", "other", "--days", "20", "--prompts", "6"]) == 2
     assert "no run named 'other'" in capsys.readouterr().err
+    out = tmp_path / "plan.json"
+    assert main(["plan", str(saved), "--run", "Run 1", "--days", "10", "--prompts", "6",
+                 "--replications", "2", "--jobs", "1", "--json", str(out)]) == 0
+    result = open_project(saved).run.result
+    paths = json.loads(out.read_text())["designs"][0]["paths"]
+    inertia = next(p for p in paths if p["kind"] == "inertia" and p["to"] == "tension")
+    assert inertia["truth"] == result.get("inertia", "tension", "tension").estimate
