@@ -4,7 +4,7 @@ DATA holds every person's rows stacked, column COL naming the person. Each perso
 become a diary of their own (the time, item and missing-value options as for `lagwise fit`)
 and the same model and estimator settings are fitted to each, in local worker processes
 (--jobs) or on a running Dask cluster (--scheduler). DIR receives one file per person as it
-finishes, then people.jsonl, summary.json and estimates.csv (models.batchfiles); a rerun
+finishes, then people.jsonl, summary.json, estimates.csv and estimates-wide.csv (models.batchfiles); a rerun
 into the same DIR fits only the people still missing.
 
 Exit codes: 0 every person fitted, 4 some were not (listed on stderr with the reason),
@@ -47,7 +47,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                             "(started with 'dask scheduler' and 'dask worker ADDRESS')")
     parser.add_argument("--out", metavar="DIR", required=True,
                         help="folder for the results: one file per person, people.jsonl, "
-                             "summary.json, estimates.csv (a rerun fits only missing people)")
+                             "summary.json, estimates.csv, estimates-wide.csv (a rerun fits "
+                             "only missing people)")
 
 
 def run(args: argparse.Namespace) -> int:

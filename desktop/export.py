@@ -163,14 +163,14 @@ def export_menu(parent: QWidget, picture: Picture | None = None,
     menu = QMenu("Export", parent)
     if picture is not None:
         png = QAction("Save picture as PNG…", menu)
-        png.triggered.connect(lambda: _ask_and_save(parent, picture, name, "png"))
+        png.triggered.connect(lambda: ask_and_save(parent, picture, name, "png"))
         svg = QAction("Save picture as SVG…", menu)
-        svg.triggered.connect(lambda: _ask_and_save(parent, picture, name, "svg"))
+        svg.triggered.connect(lambda: ask_and_save(parent, picture, name, "svg"))
         menu.addAction(png)
         menu.addAction(svg)
     if table_model is not None:
         table = QAction("Save numbers as CSV…", menu)
-        table.triggered.connect(lambda: _ask_and_save(parent, table_model, name, "csv"))
+        table.triggered.connect(lambda: ask_and_save(parent, table_model, name, "csv"))
         menu.addAction(table)
     return menu
 
@@ -190,7 +190,9 @@ _NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
 _FILTERS = {"png": "PNG picture (*.png)", "svg": "SVG picture (*.svg)", "csv": "CSV table (*.csv)"}
 
 
-def _ask_and_save(parent: QWidget, target, name: str, kind: str) -> None:
+def ask_and_save(parent: QWidget, target, name: str, kind: str) -> None:
+    """Ask for a file name (suggested `name`.`kind`), then save `target` as PNG, SVG or CSV;
+    a failure is shown in a message box and nothing is written."""
     path, _ = QFileDialog.getSaveFileName(parent, "Save as", f"{name}.{kind}", _FILTERS[kind])
     if not path:
         return

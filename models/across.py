@@ -134,6 +134,27 @@ def estimates_csv(across: Across) -> str:
     return out.getvalue()
 
 
+def estimates_wide_csv(across: Across) -> str:
+    """The wide table: one row per fitted person; for each free parameter (in the order the
+    people's fits list them) its estimate, lower and upper 95% limit (full precision)."""
+    names = list(dict.fromkeys(row.name for row in across.rows))
+    cells: dict[str, dict[str, Row]] = {}
+    for row in across.rows:
+        cells.setdefault(row.person, {})[row.name] = row
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(("person", *(f"{name} {part}" for name in names
+                                 for part in ("estimate", "lower", "upper"))))
+    for person in across.fitted:
+        line = [person]
+        for name in names:
+            row = cells.get(person, {}).get(name)
+            lower, upper = (row.interval or ("", "")) if row is not None else ("", "")
+            line += ["" if row is None else row.parameter.estimate, lower, upper]
+        writer.writerow(line)
+    return out.getvalue()
+
+
 def format_across(across: Across) -> str:
     """The summaries in words, for the command line."""
     n = len(across.fitted)

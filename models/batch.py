@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from lagwise.models import batchfiles
-from lagwise.models.across import Across, across_people, estimates_csv
+from lagwise.models.across import Across, across_people, estimates_csv, estimates_wide_csv
 from lagwise.models.atomic import write_output
 from lagwise.models.parallel import run_tasks
 from lagwise.models.personfit import BatchSettings, PersonOutcome, data_fingerprint, fit_person
@@ -79,6 +79,7 @@ def run_batch(study: Study, settings: BatchSettings, out: str | Path, *,
     write_output(folder / batchfiles.SUMMARY,
                  json.dumps(across.to_json(), indent=2, allow_nan=False), "the batch summary")
     write_output(folder / batchfiles.ESTIMATES, estimates_csv(across), "the estimates table")
+    write_output(folder / batchfiles.WIDE, estimates_wide_csv(across), "the wide estimates table")
     return BatchOutcome(outcomes, reused, across)
 
 

@@ -26,7 +26,7 @@ from lagwise.models.errors import DataError, OutputError, SpecError
 from lagwise.models.personfit import BatchSettings, PersonOutcome
 
 MANIFEST, PEOPLE_DIR, PEOPLE_LINES = "batch.json", "people", "people.jsonl"
-SUMMARY, ESTIMATES = "summary.json", "estimates.csv"
+SUMMARY, ESTIMATES, WIDE = "summary.json", "estimates.csv", "estimates-wide.csv"
 FORMAT = "lagwise-batch"
 
 

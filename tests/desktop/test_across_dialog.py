@@ -3,6 +3,8 @@ models.across's, formatted by models.numbers.fmt, and each person's status and r
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 
 import pytest
@@ -42,6 +44,23 @@ def test_the_view_shows_the_batch_summary(lagwise_app, qtbot, tmp_path):
     people = _cells(dialog.people)
     assert [row[:2] for row in people] == [[o.person, o.status] for o in outcome.outcomes]
     assert people[-1][3] == outcome.outcomes[-1].reason
+    # every fitted person's every free parameter, as estimates.csv holds it (long)
+    long = list(csv.DictReader(io.StringIO((tmp_path / "estimates.csv").read_text())))
+    shown = _cells(dialog.estimates)
+    assert len(shown) == len(long) and len({row[0] for row in shown}) == 3
+    for row, written in zip(shown, long):
+        assert row[0] == written["person"] and row[2] == fmt(float(written["estimate"]))
+        assert row[4:6] == [fmt(float(written["lower"])), fmt(float(written["upper"]))]
+    # one row per person: the same numbers, wide
+    wide = list(csv.DictReader(io.StringIO((tmp_path / "estimates-wide.csv").read_text())))
+    assert [w["person"] for w in wide] == ["P00", "P01", "P02"]
+    for written in long:
+        person = next(w for w in wide if w["person"] == written["person"])
+        assert float(person[f"{written['parameter']} estimate"]) == float(written["estimate"])
+    assert dialog.wide.rowCount() == 3
+    # the strip plot: one dot per fitted person and lagged path
+    assert dialog.strips is not None and dialog.strips.renderer().isValid()
+    assert dialog.tabs.tabText(dialog.tabs.count() - 1) == "Strip plot"
 
 
 def test_a_folder_without_a_batch_is_one_line(lagwise_app, tmp_path):
