@@ -21,11 +21,14 @@ from PySide6.QtWidgets import (
 )
 
 from lagwise.desktop import style
+from lagwise.desktop.compute_settings import Compute, load_compute, save_compute
 from lagwise.desktop.session import Session
 from lagwise.desktop.study_state import StudyState
 from lagwise.desktop.worker import Worker
 from lagwise.models import batchfiles
 from lagwise.models.batch import BatchOutcome, person_fingerprints, run_batch
+from lagwise.models.errors import SpecError
+from lagwise.models.parallel import scheduler_address
 from lagwise.models.personfit import BatchSettings, PersonOutcome
 from lagwise.models.study import with_steps
 
@@ -80,11 +83,20 @@ class BatchDialog(QDialog):
         row.addWidget(self.folder_edit, 1)
         row.addWidget(choose)
         form.addRow("Results folder:", row)
+        compute = load_compute()
         self.jobs_spin = QSpinBox()
         self.jobs_spin.setRange(1, os.cpu_count() or 1)
-        self.jobs_spin.setValue(max(1, (os.cpu_count() or 1) - 1))
-        self.jobs_spin.setToolTip("Worker processes, one person each at a time.")
+        self.jobs_spin.setValue(compute.jobs)
+        self.jobs_spin.setToolTip("Worker processes on this computer, one person each at a time.")
         form.addRow("&Worker processes:", self.jobs_spin)
+        self.scheduler_edit = QLineEdit(compute.scheduler or "")
+        self.scheduler_edit.setObjectName("batchScheduler")
+        self.scheduler_edit.setPlaceholderText("empty: this computer; or a Dask scheduler, "
+                                               "e.g. tcp://192.168.1.20:8786")
+        self.scheduler_edit.setToolTip("The address of a running Dask scheduler: the people are "
+                                       "fitted by its workers (kept for next time, as in "
+                                       "Model ▸ Computing…)")
+        form.addRow("Dask &scheduler:", self.scheduler_edit)
         layout.addLayout(form)
         self.table = QTableWidget(0, 3)
         self.table.setObjectName("batchPeople")
@@ -138,6 +150,12 @@ class BatchDialog(QDialog):
         if self.session.spec.k == 0 or problem:
             self._stopped(problem or "Build a model first (States page).")
             return False
+        try:
+            compute = Compute(self.jobs_spin.value(), scheduler_address(self.scheduler_edit.text()))
+        except SpecError as error:
+            self._stopped(str(error))
+            return False
+        save_compute(compute)
         study = with_steps(self.state.study(), self.session.preparation)
         settings = BatchSettings(self.session.spec, self.session.options)
         self._folder = Path(self.folder_edit.text().strip())
@@ -148,8 +166,8 @@ class BatchDialog(QDialog):
         self.message.setText(f"Fitting {len(study)} people…")
         self.start_button.setEnabled(False)
         self.cancel_button.setEnabled(True)
-        self.worker.start(run_batch, study, settings, self._folder, jobs=self.jobs_spin.value(),
-                          job="batch")
+        self.worker.start(run_batch, study, settings, self._folder, jobs=compute.jobs,
+                          scheduler=compute.scheduler, job="batch")
         return True
 
     def statuses(self) -> dict[str, str]:

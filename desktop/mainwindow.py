@@ -28,6 +28,7 @@ from PySide6.QtWidgets import (
 )
 
 from lagwise.desktop import style
+from lagwise.desktop.compute_settings import ComputeDialog, load_compute
 from lagwise.desktop.guide import RESULTS_SECTIONS, GuideWindow, add_guide_button
 from lagwise.desktop.import_dialog import FILE_FILTER, ImportDialog
 from lagwise.desktop.notes_dialog import NotesDialog
@@ -257,6 +258,11 @@ class MainWindow(QMainWindow):
         model_menu = bar.addMenu("&Model")
         model_menu.addAction(self.estimate_action)
         model_menu.addAction(self.cancel_action)
+        model_menu.addSeparator()
+        self.compute_action = model_menu.addAction("C&omputing…")
+        self.compute_action.setStatusTip("Run many fits (every person, a plan) on this "
+                                         "computer's cores or on a Dask cluster")
+        self.compute_action.triggered.connect(lambda: ComputeDialog(self).open())
         view_menu = bar.addMenu("&View")
         for action in self.page_actions:
             view_menu.addAction(action)
@@ -441,8 +447,10 @@ class MainWindow(QMainWindow):
         """Start a study plan (models.plan.run_plan, on every core) in the worker; a stopped
         plan still delivers the diaries finished so far."""
         self._running, self._running_document = None, self.session.document
+        compute = load_compute()            # this computer's cores or a cluster (Model menu)
         self.worker.start(run_plan, truth, tuple(designs), replications=replications,
-                          seed=seed, job=JOB_PLAN)
+                          seed=seed, jobs=compute.jobs, scheduler=compute.scheduler,
+                          job=JOB_PLAN)
 
     def _ready_snapshot(self, title: str) -> Snapshot | None:
         """The frozen inputs for a run, or None after telling the user what is missing."""

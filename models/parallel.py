@@ -10,15 +10,31 @@ error or a Cancelled) cancels the tasks still queued.
 
 from __future__ import annotations
 
+import re
 import warnings
 from collections.abc import Callable, Iterator, Sequence
 from typing import Any
 
 import joblib
 
-from lagwise.models.errors import LagwiseError
+from lagwise.models.errors import LagwiseError, SpecError
 
 CONNECT_TIMEOUT = "20s"
+_ADDRESS = re.compile(r"(?:(tcp|tls)://)?([A-Za-z0-9_.\-]+|\[[0-9A-Fa-f:]+\]):(\d{1,5})/?")
+
+
+def scheduler_address(text: str | None) -> str | None:
+    """A Dask scheduler address as typed ("host:8786" or "tcp://host:8786"; tls too) in the
+    form the client takes, or None for empty text (this computer's cores). SpecError in one
+    line for anything else."""
+    text = (text or "").strip()
+    if not text:
+        return None
+    match = _ADDRESS.fullmatch(text)
+    if match is None or not 0 < int(match.group(3)) < 65536:
+        raise SpecError(f"'{text[:80]}' is not a scheduler address: type HOST:PORT, e.g. "
+                        "tcp://192.168.1.20:8786 (empty: this computer)")
+    return f"{match.group(1) or 'tcp'}://{match.group(2)}:{match.group(3)}"
 
 
 def run_tasks(function: Callable[..., Any], tasks: Sequence[tuple], *,
@@ -32,7 +48,7 @@ def run_tasks(function: Callable[..., Any], tasks: Sequence[tuple], *,
     if not tasks:
         return (result for result in ())
     if scheduler:
-        return _on_cluster(function, tasks, scheduler)
+        return _on_cluster(function, tasks, scheduler_address(scheduler))
     return _locally(function, tasks, jobs)
 
 

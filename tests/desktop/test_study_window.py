@@ -154,3 +154,32 @@ def test_far_out_answers_of_any_person_are_offered_as_missing(lagwise_app, qtbot
     qtbot.addWidget(dialog)
     assert dialog.study_choice().person == "P00"      # the preview describes P00's diary
     assert "-99" in dialog.far_codes() and "Item 'c1': -99 (1 time)" in dialog.far_label.text()
+
+
+def test_every_person_on_a_dask_cluster_typed_in_the_dialog(lagwise_app, qtbot, tmp_path):
+    # the scheduler's address typed in the window sends the people to the cluster's workers
+    # (a LocalCluster on the loopback address) and is kept for the next time
+    from distributed import LocalCluster
+
+    from lagwise.desktop.compute_settings import Compute, load_compute, save_compute
+
+    path, study = _study_file(tmp_path)
+    window = open_window(qtbot, 1280, 800)
+    import_file(qtbot, window, path)
+    window.session.edit_spec(SPEC, "Model")
+    batch = window.study_bar.estimate_everyone()
+    batch.folder_edit.setText(str(tmp_path / "cluster"))
+    batch.scheduler_edit.setText("not an address")
+    assert not batch.start() and "not a scheduler address" in batch.message.text()
+    try:
+        with LocalCluster(host="127.0.0.1", protocol="tcp://", processes=False, n_workers=1,
+                          threads_per_worker=1, dashboard_address=None) as cluster:
+            batch.scheduler_edit.setText(cluster.scheduler_address)
+            with qtbot.waitSignal(batch.finished_batch, timeout=180_000):
+                assert batch.start()
+            assert load_compute().scheduler == cluster.scheduler_address
+    finally:
+        save_compute(Compute(1, None))   # later tests compute on this machine
+    assert batch.statuses() == {p.person: "fitted" for p in study.people}
+    batch.close()
+    window.session.mark_saved(None)
