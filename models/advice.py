@@ -103,9 +103,9 @@ def fit_warnings(result: FitResult, ready: Readiness | None = None,
         out.append(_from_flag(Flag(FlagCode.NOT_STATIONARY, f"The spectral radius of the lagged "
                                    f"paths is {fmt(result.spectral_radius)} (1 or more).")))
     out += [_from_flag(flag) for flag in result.flags]
-    if ready is not None:
-        out += [Advice(AdviceCode.DATA_READINESS, _READINESS_TITLE, f"{text} {_READINESS_NOTE}")
-                for text in ready.warnings]
+    if ready is not None and ready.warnings:   # one warning, each finding in its explanation
+        out.append(Advice(AdviceCode.DATA_READINESS, _READINESS_TITLE,
+                          " ".join((*ready.warnings, _READINESS_NOTE))))
     if check is not None and check.restricted.spec == lag1_version(result.spec):
         out += _lag2_warnings(result, check)
     return tuple(out)

@@ -21,7 +21,8 @@ from lagwise.models.estimators import FitOptions
 from lagwise.models.flags import FlagCode
 from lagwise.models.lag2check import lag2_check
 from lagwise.models.objective import MIN_WINDOWS_PER_PARAMETER
-from lagwise.models.recipe import load_diary
+from lagwise.models.readers import read_table
+from lagwise.models.recipe import DiaryRecipe, load_diary
 from lagwise.models.report import format_result
 from lagwise.models.spec import ModelSpec
 from lagwise.models.windows import lag_windows
@@ -100,3 +101,19 @@ def test_report_and_caution_line_carry_every_caution():
     line = caution_line(result)
     for caution in result.cautions:
         assert caution in report and caution in line
+
+
+def test_the_readiness_findings_are_one_warning_with_each_finding_explained():
+    # a short diary (the demo's first 8 days) misses more than one rule of thumb; the strip
+    # lists the readiness once, with every finding in its explanation
+    diary, spec, _ = demo()
+    table = read_table(demo_diary_path())
+    first_days = sorted(table["day"].unique())[:8]
+    short = DiaryRecipe.of(diary.items, TimeSettings(mode="grid", day="day", prompt="prompt")).diary(
+        table[table["day"].isin(first_days)])
+    result = fit(short, spec)
+    ready = data_readiness(short, result)
+    assert len(ready.warnings) >= 2
+    readiness = [w for w in fit_warnings(result, ready) if w.code == AdviceCode.DATA_READINESS]
+    assert len(readiness) == 1
+    assert all(text in readiness[0].explanation for text in ready.warnings)
