@@ -117,9 +117,14 @@ class DynamicsPanel(ResultsPanel):
         self.chart.setMinimumHeight(190)   # with its note, no taller than the diagram's minimum
         style_plot(self.chart.getPlotItem(), "Inertia with 95% interval")
         self.chart_note = note_label()
+        self.effect_box = QComboBox()   # continuous time: own effects, or one state's effects
+        self.effect_box.setToolTip("Which effects over an interval to draw")
+        self.effect_box.currentIndexChanged.connect(self._redraw_over_time)
+        self.effect_box.hide()
         chart_box = QWidget()
         chart_layout = QVBoxLayout(chart_box)
         chart_layout.setContentsMargins(0, 0, 0, 0)
+        chart_layout.addWidget(self.effect_box)
         chart_layout.addWidget(self.chart, 1)
         chart_layout.addWidget(self.chart_note)
         top = QSplitter(Qt.Orientation.Horizontal)
@@ -176,7 +181,17 @@ class DynamicsPanel(ResultsPanel):
             self.split.setSizes([total - want, want])
 
     def _show_inertia(self, result: FitResult) -> None:
+        self.effect_box.setVisible(result.continuous is not None)
         if result.continuous is not None:
+            self.effect_box.blockSignals(True)
+            chosen = self.effect_box.currentData()
+            self.effect_box.clear()
+            self.effect_box.addItem("Each state's own effect", None)
+            for state in result.states:
+                self.effect_box.addItem(f"Effects of {state} on the others", state)
+            index = self.effect_box.findData(chosen)
+            self.effect_box.setCurrentIndex(max(index, 0))
+            self.effect_box.blockSignals(False)
             self._show_over_time(result)
             return
         plot = self.chart.getPlotItem()
@@ -200,35 +215,51 @@ class DynamicsPanel(ResultsPanel):
             note += " Inertia fixed in this model: " + ", ".join(fixed) + "."
         self.chart_note.setText(note)
 
+    def _redraw_over_time(self) -> None:
+        if self._result is not None and self._result.continuous is not None:
+            self._show_over_time(self._result)
+
     def _show_over_time(self, result: FitResult) -> None:
-        """Continuous time: each state's own effect B_ii(D) = [expm(A D)]_ii over intervals
-        of 0 to 8 hours, with its delta-method 95% band (models.ctresults)."""
+        """Continuous time: over intervals of 0 to 8 hours, each state's own effect
+        B_ii(D) = [expm(A D)]_ii, or the effects B_ji(D) of the chosen state i on the others,
+        with their delta-method 95% bands (models.ctresults)."""
         effects = effects_by_interval(result)
         plot = self.chart.getPlotItem()
         plot.clear()
-        style_plot(plot, "Own effect over an interval, 95% band")
-        plot.addLegend(offset=(-10, 10), labelTextColor=INK)
+        if plot.legend is not None:
+            plot.legend.clear()
+        source = self.effect_box.currentData()
+        states = list(result.states)
+        if source is None:
+            curves = [(i, i, state) for i, state in enumerate(states)]
+            title, axis = "Own effect over an interval, 95% band", "share of a rise left"
+        else:
+            i = states.index(source)
+            curves = [(j, i, f"on {state}") for j, state in enumerate(states) if j != i]
+            title, axis = f"Effects of {source} over an interval, 95% band", "effect of a rise"
+        style_plot(plot, html.escape(title))
+        if plot.legend is None:
+            plot.addLegend(offset=(-10, 10), labelTextColor=INK)
         plot.addItem(pg.InfiniteLine(pos=0, angle=0, pen=pg.mkPen(RULE, width=1)))
         x = effects.intervals
-        for i, state in enumerate(result.states):
-            colour = QColor(SERIES[i % len(SERIES)])
-            lower = pg.PlotDataItem(x, effects.lower[:, i, i], pen=pg.mkPen(None))
-            upper = pg.PlotDataItem(x, effects.upper[:, i, i], pen=pg.mkPen(None))
+        for n, (to, from_, name) in enumerate(curves):
+            colour = QColor(SERIES[(to if source is None else n) % len(SERIES)])
+            lower = pg.PlotDataItem(x, effects.lower[:, to, from_], pen=pg.mkPen(None))
+            upper = pg.PlotDataItem(x, effects.upper[:, to, from_], pen=pg.mkPen(None))
             fill = QColor(colour)
             fill.setAlphaF(0.18)
             band = pg.FillBetweenItem(lower, upper, brush=pg.mkBrush(fill))
             band.setZValue(-5)
             for item in (lower, upper, band):
                 plot.addItem(item)
-            plot.plot(x, effects.values[:, i, i], pen=pg.mkPen(colour, width=2.2),
-                      name=html.escape(state))
+            plot.plot(x, effects.values[:, to, from_], pen=pg.mkPen(colour, width=2.2),
+                      name=html.escape(name))
         unit = result.continuous.unit
         plot.setLabel("bottom", f"interval ({unit})")
-        plot.setLabel("left", "share of a rise left")
+        plot.setLabel("left", axis)
         self.chart_note.setText(
-            f"How much of a rise in a state remains after an interval: [exp(A D)]_ii. Bands: "
-            f"95% delta method. The cross-effects over intervals are in the report and the "
-            f"JSON (effects_by_interval); the diary's median interval is "
+            f"How much of a rise in a state remains, or reaches another state, after an "
+            f"interval: [exp(A D)]. Bands: 95% delta method. The diary's median interval is "
             f"{fmt(result.continuous.median_interval)} {unit}.")
 
     def pictures(self) -> dict:

@@ -55,6 +55,24 @@ def test_dynamics_tab_draws_each_states_own_effect_over_intervals_with_bands(vie
     assert len(bands) == len(result.states)
 
 
+def test_the_effects_of_one_state_on_the_others_over_intervals(view):
+    # B(D) = expm(A D), entry [to, from]: the engine's effects_by_interval, drawn per target
+    result = continuous_result()
+    effects = effects_by_interval(result)
+    states = list(result.states)
+    box = view.dynamics.effect_box
+    assert box.isVisibleTo(view.dynamics)
+    box.setCurrentIndex(box.findData(states[0]))
+    plot = view.dynamics.chart.getPlotItem()
+    curves = [item for item in plot.listDataItems() if item.name()]
+    assert [c.name() for c in curves] == [f"on {s}" for s in states[1:]]
+    for to, curve in zip(range(1, len(states)), curves):
+        np.testing.assert_array_equal(curve.getData()[1], effects.values[:, to, 0])
+    bands = [item for item in plot.items if type(item).__name__ == "FillBetweenItem"]
+    assert len(bands) == len(states) - 1
+    assert "Effects of" in plot.titleLabel.text
+
+
 def test_dynamics_table_lists_the_free_drift(view):
     result = continuous_result()
     model = view.dynamics.paths
@@ -80,7 +98,7 @@ def test_a_discrete_result_afterwards_gets_its_inertia_chart_back(view, qtbot):
     view.show_result(demo_result())
     qtbot.waitUntil(lambda: not view.filling)
     plot = view.dynamics.chart.getPlotItem()
-    assert plot.legend is None
+    assert plot.legend is None and not view.dynamics.effect_box.isVisibleTo(view.dynamics)
     assert "Inertia" in plot.titleLabel.text
 
 
