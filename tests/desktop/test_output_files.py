@@ -94,7 +94,7 @@ def test_a_failed_export_is_one_line_in_a_message_box(tmp_path, monkeypatch, lab
     shown = []
     monkeypatch.setattr(QMessageBox, "warning", lambda *args: shown.append(args[1:3]))
     fill_disk(monkeypatch)
-    export._ask_and_save(label, one_row("1"), "shown", "csv")
+    export.ask_and_save(label, one_row("1"), "shown", "csv")
     monkeypatch.undo()
     assert len(shown) == 1 and shown[0][0] == "Could not save"
     assert "\n" not in shown[0][1] and "unchanged" in shown[0][1]

@@ -472,7 +472,11 @@ def test_window_layout_is_remembered(qtbot, lagwise_app):
     first = MainWindow()
     qtbot.addWidget(first)
     first.show()
-    first.resize(first.minimumSizeHint().width() + 13, first.minimumSizeHint().height() + 7)
+    least, room = first.minimumSizeHint(), first.screen().availableGeometry()
+    # a size just above the least the window takes, within the screen (a restored window is
+    # kept on the screen, so a wider one would come back narrower)
+    first.resize(max(least.width(), min(least.width() + 13, room.width() - 4)),
+                 max(least.height(), min(least.height() + 7, room.height() - 4)))
     first.show_page(PAGES.index("Dynamics"))
     settle(qtbot)
     size = first.size()
