@@ -79,11 +79,11 @@ class ResultsView(QWidget):
         self.caution = CautionLine()
         self.lag2.check_changed.connect(self._show_warnings)
         self._unfilled: set[ResultsPanel] = set()
-        # a timer, not a posted call: the event loop serves other timers and painting between
-        # two fills (posted calls that post again all run in one pass)
+        # a timer, not a posted call (posted calls that post again all run in one pass), and
+        # not a zero one: between two fills the window paints and serves its other timers
         self._filler = QTimer(self)
         self._filler.setSingleShot(True)
-        self._filler.setInterval(0)
+        self._filler.setInterval(20)
         self._filler.timeout.connect(self._fill_rest)
         self.tabs.currentChanged.connect(lambda _index: self._fill(self.tabs.currentWidget()))
         self.empty = QLabel(EMPTY_MESSAGE)
