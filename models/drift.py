@@ -15,6 +15,8 @@ is the Lyapunov equation of A'.
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 from scipy.linalg import solve_continuous_lyapunov
 
@@ -170,7 +172,15 @@ def _stationary_route(a: np.ndarray, w: np.ndarray, b: np.ndarray, b_bar: np.nda
 
 def _eigen(a: np.ndarray) -> Eigen | None:
     """The eigendecomposition route (models.drifteigen) for a stable, well-conditioned A;
-    None sends `discrete_system` and `discrete_adjoint` to the matrix exponentials."""
+    None sends `discrete_system` and `discrete_adjoint` to the matrix exponentials. The last
+    few drifts are remembered: one likelihood evaluation asks for the same A several times."""
+    a = np.ascontiguousarray(a, dtype=float)
+    return _eigen_of(a.tobytes(), a.shape[0])
+
+
+@lru_cache(maxsize=4)
+def _eigen_of(key: bytes, k: int) -> Eigen | None:
+    a = np.frombuffer(key).reshape(k, k)
     return decompose(a) if is_stable(a) else None
 
 

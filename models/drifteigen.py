@@ -47,16 +47,22 @@ def _phi1(z: np.ndarray) -> np.ndarray:
 
 
 def exp_stack(e: Eigen, d: np.ndarray) -> np.ndarray:
-    """B(D) for each interval, (n, k, k)."""
-    return (e.v[None] * np.exp(np.outer(d, e.lam))[:, None, :] @ e.v_inv).real
+    """B(D) for each interval, (n, k, k): B_ab = sum_i exp(lam_i D) V_ai V^-1_ib, all intervals
+    in one matrix product."""
+    k = e.lam.size
+    basis = np.einsum("ai,ib->iab", e.v, e.v_inv).reshape(k, k * k)
+    return (np.exp(np.outer(d, e.lam)) @ basis).real.reshape(-1, k, k)
 
 
 def integral_stack(e: Eigen, w: np.ndarray, d: np.ndarray) -> np.ndarray:
-    """Q(D) = int_0^D expm(A s) W expm(A' s) ds for each interval, (n, k, k)."""
+    """Q(D) = int_0^D expm(A s) W expm(A' s) ds for each interval, (n, k, k):
+    Q_ab = sum_ij V_ai Wt_ij conj(V_bj) (exp(s_ij D) - 1) / s_ij, one matrix product."""
+    k = e.lam.size
     wt = e.v_inv @ w @ e.v_inv.conj().T
-    s = e.lam[:, None] + e.lam.conj()[None, :]
-    psi = d[:, None, None] * _phi1(d[:, None, None] * s[None])
-    return (e.v[None] @ (wt[None] * psi) @ e.v.conj().T[None]).real
+    basis = np.einsum("ai,ij,bj->ijab", e.v, wt, e.v.conj()).reshape(k * k, k * k)
+    s = (e.lam[:, None] + e.lam.conj()[None, :]).reshape(-1)
+    psi = d[:, None] * _phi1(d[:, None] * s[None])
+    return (psi @ basis).real.reshape(-1, k, k)
 
 
 def _divided_differences(e: Eigen, d: np.ndarray) -> np.ndarray:
@@ -72,6 +78,8 @@ def _divided_differences(e: Eigen, d: np.ndarray) -> np.ndarray:
 
 def exp_adjoint(e: Eigen, d: np.ndarray, b_bar: np.ndarray) -> np.ndarray:
     """sum over intervals of the adjoint of d expm(A D)[.] applied to B_bar(D): dL/dA, (k, k)."""
+    k = e.lam.size
     vh, vinv_h = e.v.conj().T, e.v_inv.conj().T
-    inner = ((vh[None] @ b_bar @ vinv_h[None]) * _divided_differences(e, d).conj()).sum(axis=0)
+    pairs = b_bar.reshape(-1, k * k).T @ _divided_differences(e, d).conj().reshape(-1, k * k)
+    inner = np.einsum("ia,bj,abij->ij", vh, vinv_h, pairs.reshape(k, k, k, k))
     return (vinv_h @ inner @ vh).real
