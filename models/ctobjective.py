@@ -5,7 +5,8 @@ The states follow d eta = A (eta - mu) dt + G dW; between prompts D apart the fi
 Q(D) = int_0^D expm(A s) W expm(A' s) ds (models.drift), and each segment starts from the
 stationary distribution (A S + S A' + W = 0). The measurement part (loadings, intercepts,
 unique variances) is the discrete model's, the levels sit in the intercepts. The gradient is
-the filter's reverse mode chained through Van Loan's exponential and the Lyapunov equation.
+the filter's reverse mode chained through the drift's eigendecomposition (or Van Loan's
+exponential) and the Lyapunov equation.
 Start values: the stationary window estimate, with A = logm(B) / D and W = -(A S + S A')
 at the median interval D. Optimisation, observed-information standard errors and the table
 are shared (models.solution); the layout's lag-1 paths and innovations hold B and Q at the

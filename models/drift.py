@@ -8,6 +8,9 @@ exponential", IEEE Trans. Automatic Control 23:395-404, Theorem 1):
     expm(D [[-A, W], [0, A']]) = [[E11, E12], [0, E22]],  B = E22',  Q = E22' E12.
 The stationary covariance S solves the continuous Lyapunov equation A S + S A' + W = 0 (it
 exists when every eigenvalue of A has a negative real part).
+For a stable drift with well-conditioned eigenvectors all of this comes instead from one
+eigendecomposition (models.drifteigen), with Q(D) = S - B S B' in the derivatives; the
+exponentials remain for the other drifts (nearly defective or unstable).
 Derivatives in reverse mode: the adjoint of the Frechet derivative of expm at M is the
 Frechet derivative at M' (see `_frechet_adjoint`), and the adjoint of the Lyapunov equation
 is the Lyapunov equation of A'.
