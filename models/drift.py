@@ -8,6 +8,9 @@ exponential", IEEE Trans. Automatic Control 23:395-404, Theorem 1):
     expm(D [[-A, W], [0, A']]) = [[E11, E12], [0, E22]],  B = E22',  Q = E22' E12.
 The stationary covariance S solves the continuous Lyapunov equation A S + S A' + W = 0 (it
 exists when every eigenvalue of A has a negative real part).
+For a stable drift with well-conditioned eigenvectors all of this comes instead from one
+eigendecomposition (models.drifteigen), with Q(D) = S - B S B' in the derivatives; the
+exponentials remain for the other drifts (nearly defective or unstable).
 Derivatives in reverse mode: the adjoint of the Frechet derivative of expm at M is the
 Frechet derivative at M' (see `_frechet_adjoint`), and the adjoint of the Lyapunov equation
 is the Lyapunov equation of A'.
@@ -15,9 +18,12 @@ is the Lyapunov equation of A'.
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 from scipy.linalg import solve_continuous_lyapunov
 
+from lagwise.models.drifteigen import Eigen, decompose, exp_adjoint, exp_stack, integral_stack
 from lagwise.models.errors import EstimationError
 
 
@@ -94,6 +100,10 @@ def discrete_system(a: np.ndarray, w: np.ndarray, intervals: np.ndarray
     stable) the equal Q(D) = S - B S B' (S stationary: its covariance over D is S) is used."""
     k = a.shape[0]
     d = np.asarray(intervals, dtype=float).reshape(-1)
+    eig = _eigen(a)
+    if eig is not None:
+        q = integral_stack(eig, w, d)
+        return exp_stack(eig, d), 0.5 * (q + q.transpose(0, 2, 1))
     long = _long(a, d)
     e = expm_stack(d[~long, None, None] * _generator(a, w)[None])
     b, q = np.empty((d.size, k, k)), np.empty((d.size, k, k))
@@ -125,8 +135,12 @@ def discrete_adjoint(a: np.ndarray, w: np.ndarray, intervals: np.ndarray, b_bar:
     along the same two routes as `discrete_system`."""
     k = a.shape[0]
     d = np.asarray(intervals, dtype=float).reshape(-1)
-    long = _long(a, d)
     qs = 0.5 * (q_bar + q_bar.transpose(0, 2, 1))
+    eig = _eigen(a)
+    if eig is not None:
+        return _stationary_route(a, w, exp_stack(eig, d), b_bar, qs,
+                                 lambda bb: exp_adjoint(eig, d, bb))
+    long = _long(a, d)
     a_bar, w_bar = np.zeros((k, k)), np.zeros((k, k))
     if (~long).any():
         dv = d[~long, None, None]
@@ -141,15 +155,36 @@ def discrete_adjoint(a: np.ndarray, w: np.ndarray, intervals: np.ndarray, b_bar:
         w_bar += m_bar[:k, k:]
     if long.any():
         dv = d[long, None, None]
-        s = stationary_covariance(a, w)
-        b = expm_stack(dv * a[None])
-        ql, bt = qs[long], b.transpose(0, 2, 1)
-        bb = b_bar[long] - 2.0 * ql @ b @ s                                  # Q = S - B S B'
-        a_bar += (dv * _frechet_adjoint(dv * a[None], bb)).sum(axis=0)
-        a_s, w_s = stationary_adjoint(a, s, (ql - bt @ ql @ b).sum(axis=0))
-        a_bar += a_s
-        w_bar += w_s
+        a_l, w_l = _stationary_route(
+            a, w, expm_stack(dv * a[None]), b_bar[long], qs[long],
+            lambda bb: (dv * _frechet_adjoint(dv * a[None], bb)).sum(axis=0))
+        a_bar += a_l
+        w_bar += w_l
     return a_bar, w_bar
+
+
+def _stationary_route(a: np.ndarray, w: np.ndarray, b: np.ndarray, b_bar: np.ndarray,
+                      q_bar: np.ndarray, exp_adjoint_sum) -> tuple[np.ndarray, np.ndarray]:
+    """(dL/dA, dL/dW) through B = expm(A D) and Q = S - B S B' (A stable), given B per
+    interval and `exp_adjoint_sum`, which turns dL/dB per interval into the summed dL/dA."""
+    s = stationary_covariance(a, w)
+    bb = b_bar - 2.0 * q_bar @ b @ s
+    a_s, w_s = stationary_adjoint(a, s, (q_bar - b.transpose(0, 2, 1) @ q_bar @ b).sum(axis=0))
+    return exp_adjoint_sum(bb) + a_s, w_s
+
+
+def _eigen(a: np.ndarray) -> Eigen | None:
+    """The eigendecomposition route (models.drifteigen) for a stable, well-conditioned A;
+    None sends `discrete_system` and `discrete_adjoint` to the matrix exponentials. The last
+    few drifts are remembered: one likelihood evaluation asks for the same A several times."""
+    a = np.ascontiguousarray(a, dtype=float)
+    return _eigen_of(a.tobytes(), a.shape[0])
+
+
+@lru_cache(maxsize=4)
+def _eigen_of(key: bytes, k: int) -> Eigen | None:
+    a = np.frombuffer(key).reshape(k, k)
+    return decompose(a) if is_stable(a) else None
 
 
 def stationary_covariance(a: np.ndarray, w: np.ndarray) -> np.ndarray:

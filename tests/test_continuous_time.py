@@ -13,7 +13,7 @@ from scipy.linalg import expm, expm_frechet, logm
 from scipy.stats import multivariate_normal
 from two_state_model import SPEC, TRUE
 
-from lagwise.models.ctobjective import ContinuousObjective
+from lagwise.models.ctobjective import SCALE_PROBES, ContinuousObjective, probed_diagonal
 from lagwise.models.ctresults import effects_by_interval
 from lagwise.models.drift import (discrete_adjoint, discrete_system, expm_stack,
                                   stationary_adjoint, stationary_covariance)
@@ -174,6 +174,32 @@ def test_gradient_matches_central_differences():
     numeric = np.array([(objective.loglik(theta + 1e-6 * sz * e) - objective.loglik(theta - 1e-6 * sz * e))
                         / (2e-6 * sz) for e, sz in zip(np.eye(theta.size), sizes)])
     np.testing.assert_allclose(grad, numeric, rtol=1e-5, atol=1e-4)
+
+
+def test_probed_diagonal_recovers_the_hessian_diagonal():
+    # the Hessian of -x'Hx/2 is -H: exact from any number of +-1 probes when H is diagonal
+    # (r_i^2 = 1), unbiased otherwise (the mean of many probes approaches the diagonal)
+    rng = np.random.default_rng(2)
+    steps = np.geomspace(1e-4, 1e-1, 6)
+    diagonal = np.diag(rng.uniform(1.0, 50.0, 6))
+    np.testing.assert_allclose(probed_diagonal(lambda x: -diagonal @ x, np.ones(6), steps),
+                               -np.diag(diagonal), rtol=1e-10)
+    g = rng.normal(size=(6, 6))
+    dense = g @ g.T + 10.0 * np.eye(6)
+    estimate = probed_diagonal(lambda x: -dense @ x, np.ones(6), np.full(6, 1e-3), probes=4000)
+    np.testing.assert_allclose(estimate, -np.diag(dense), rtol=0.03)
+
+
+def test_the_optimiser_scale_takes_a_few_gradients_not_one_per_parameter():
+    diary = _diary(days=10, prompts=7, seed=5)
+    objective = ContinuousObjective(diary, SPEC, CT)
+    theta = _theta(objective, DRIFT, DIFFUSION)
+    calls = []
+    gradient = objective.loglik_and_gradient
+    objective.loglik_and_gradient = lambda x: calls.append(1) or gradient(x)
+    scale = objective.optimiser_scale(theta, np.maximum(np.abs(theta), 0.1))
+    assert theta.size > SCALE_PROBES + 1 and len(calls) == SCALE_PROBES + 1
+    assert np.all(np.isfinite(scale)) and np.all(scale > 0)
 
 
 def test_unstable_drift_is_outside_the_model_and_flagged():
