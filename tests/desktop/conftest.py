@@ -32,10 +32,16 @@ def isolated_settings(tmp_path_factory):
 
 @pytest.fixture(scope="session")
 def lagwise_app(qapp):
-    """The QApplication with Lagwise's names and look (desktop.app.make_app)."""
+    """The QApplication with Lagwise's names and look (desktop.app.make_app). At the end the
+    clipboard is emptied: data a test copied ("Copy table") and left on the offscreen
+    platform's clipboard crashes the interpreter's exit (seen with PySide6 6.x)."""
+    from PySide6.QtGui import QGuiApplication
+
     from lagwise.desktop.app import make_app
 
-    return make_app()
+    app = make_app()
+    yield app
+    QGuiApplication.clipboard().clear()
 
 
 @pytest.fixture(scope="session")
