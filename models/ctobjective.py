@@ -37,7 +37,7 @@ from lagwise.models.itemcheck import answered_moments
 from lagwise.models.kalman import state_space_gradient, state_space_loglik
 from lagwise.models.kinds import Kind
 from lagwise.models.lyapunov import solve_lyapunov
-from lagwise.models.optimise import observed_information
+from lagwise.models.optimise import ObservedInformation
 from lagwise.models.parameters import Gradients, Matrices, ParameterLayout
 from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.results import CAUTION_IDIOGRAPHIC, FitIndices
@@ -62,7 +62,7 @@ def _check(spec: ModelSpec) -> None:
                         "drift of 0 would never return the state to its level).")
 
 
-class ContinuousObjective:
+class ContinuousObjective(ObservedInformation):
     """Continuous-time log-likelihood of a diary as a function of the free parameters."""
 
     def __init__(self, diary: Diary, spec: ModelSpec, options: "FitOptions"):
@@ -141,19 +141,6 @@ class ContinuousObjective:
         diagonal = -probed_diagonal(lambda x: self.loglik_and_gradient(x)[1], theta0, steps)
         scale = np.where(diagonal > 0, 1.0 / np.sqrt(np.abs(diagonal)), sizes)
         return np.clip(scale, 1e-3 * sizes, 1e3 * sizes)
-
-    cheap_steps = False
-
-    def step_information(self, theta: np.ndarray) -> None:
-        return None
-
-    def information(self, theta: np.ndarray, sizes: np.ndarray,
-                    monitor: Monitor | None = None) -> np.ndarray:
-        """The observed information (forward differences of the analytic gradient)."""
-        return observed_information(self, theta, sizes, monitor)
-
-    def preflight(self) -> list[Flag]:
-        return []
 
     def score_covariance(self, theta: np.ndarray) -> np.ndarray:
         raise EstimationError("The continuous-time estimator's errors come from its likelihood.")

@@ -26,7 +26,7 @@ from lagwise.models.flags import Flag
 from lagwise.models.implied import NotAdmissible
 from lagwise.models.kalman import filter_plan, kalman_gradient, kalman_loglik, kalman_smooth
 from lagwise.models.objective import WindowObjective
-from lagwise.models.optimise import maximise, observed_information
+from lagwise.models.optimise import ObservedInformation, maximise
 from lagwise.models.parameters import Gradients, Matrices, ParameterLayout
 from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.results import CAUTION_IDIOGRAPHIC, FitIndices, StateScores
@@ -40,7 +40,7 @@ CAUTION_EXACT_SE = ("Standard errors come from the observed information of the e
                     "with a few hundred prompts they are approximate.")
 
 
-class ExactObjective:
+class ExactObjective(ObservedInformation):
     """Kalman-filter log-likelihood of a diary as a function of the free parameters."""
 
     def __init__(self, diary: Diary, spec: ModelSpec, options: "FitOptions"):
@@ -106,19 +106,6 @@ class ExactObjective:
     def optimiser_scale(self, theta0: np.ndarray, sizes: np.ndarray,
                         monitor: Monitor | None = None) -> np.ndarray:
         return sizes
-
-    cheap_steps = False  # its information costs a gradient per parameter: the precise L-BFGS-B
-
-    def step_information(self, theta: np.ndarray) -> None:
-        return None
-
-    def information(self, theta: np.ndarray, sizes: np.ndarray,
-                    monitor: Monitor | None = None) -> np.ndarray:
-        """The observed information (forward differences of the analytic gradient)."""
-        return observed_information(self, theta, sizes, monitor)
-
-    def preflight(self) -> list[Flag]:
-        return []
 
     def score_covariance(self, theta: np.ndarray) -> np.ndarray:
         raise EstimationError("The exact estimator's errors come from its exact likelihood.")

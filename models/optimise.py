@@ -130,6 +130,26 @@ def observed_information(objective: Likelihood, theta: np.ndarray, sizes: np.nda
     return -0.5 * (h_mat + h_mat.T)
 
 
+class ObservedInformation:
+    """What an objective whose errors come from its likelihood's observed information shares
+    (the exact and the continuous-time estimators): the information by forward differences of
+    the analytic gradient, costly enough that the precise L-BFGS-B replaces the cheap Newton
+    steps, and no pre-flight checks."""
+
+    cheap_steps = False
+
+    def step_information(self, theta: np.ndarray) -> None:
+        return None
+
+    def information(self, theta: np.ndarray, sizes: np.ndarray,
+                    monitor: Monitor | None = None) -> np.ndarray:
+        """The observed information (forward differences of the analytic gradient)."""
+        return observed_information(self, theta, sizes, monitor)
+
+    def preflight(self) -> list:
+        return []
+
+
 def newton_polish(objective: Likelihood, theta: np.ndarray, information: np.ndarray,
                   steps: int = 20) -> tuple[np.ndarray, int, bool]:
     """Newton steps theta += I^-1 g on the interior parameters while they raise the
