@@ -208,11 +208,6 @@ class ResultsView(QWidget):
         """Some tab still waits to be filled with the shown result."""
         return bool(self._unfilled)
 
-    def filled(self) -> None:
-        """Fill every tab not filled yet now (before reading or exporting hidden tabs)."""
-        for panel in tuple(self._unfilled):
-            self._fill(panel)
-
     def _show_warnings(self) -> None:
         if self._result is not None:
             self.warnings.show_warnings(fit_warnings(self._result, self._readiness, self.lag2.check),

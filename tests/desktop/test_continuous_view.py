@@ -12,7 +12,6 @@ import numpy as np
 import pytest
 from PySide6.QtCore import Qt
 
-from lagwise.desktop.results import ResultsView
 from lagwise.desktop.results.parameters import parameter_name
 from lagwise.models.ctresults import effects_by_interval
 from lagwise.models.estimate import fit
@@ -20,6 +19,7 @@ from lagwise.models.estimators import FitOptions
 from lagwise.models.kinds import Kind
 from lagwise.models.numbers import fmt
 from results_fixture import demo_diary, demo_result, demo_spec
+from window_helpers import shown_results
 
 DISPLAY = Qt.ItemDataRole.DisplayRole
 
@@ -32,13 +32,7 @@ def continuous_result():
 
 @pytest.fixture
 def view(lagwise_app, qtbot):
-    widget = ResultsView()
-    qtbot.addWidget(widget)
-    widget.resize(1280, 820)
-    widget.show()
-    widget.show_result(continuous_result())
-    qtbot.waitUntil(lambda: not widget.filling)  # hidden tabs fill one per turn of the loop
-    return widget
+    return shown_results(qtbot, continuous_result())
 
 
 def test_dynamics_tab_draws_each_states_own_effect_over_intervals_with_bands(view):

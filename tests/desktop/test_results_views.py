@@ -25,6 +25,7 @@ from lagwise.desktop.results.widgets import save
 from lagwise.desktop.results.palette import sign_color
 from lagwise.desktop.style import NEGATIVE, POSITIVE
 from lagwise.models.results import CAUTION_IDIOGRAPHIC, CAUTION_PSEUDO
+from window_helpers import shown_results
 from results_fixture import demo_result, demo_variant
 
 ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
@@ -46,13 +47,7 @@ def expected_row(p) -> dict[str, str]:
 
 @pytest.fixture
 def view(lagwise_app, qtbot):
-    widget = ResultsView()
-    qtbot.addWidget(widget)
-    widget.resize(1280, 820)
-    widget.show()
-    widget.show_result(demo_result())
-    qtbot.waitUntil(lambda: not widget.filling)  # hidden tabs fill one per turn of the loop
-    return widget
+    return shown_results(qtbot, demo_result())
 
 
 # ----- the one number format ----------------------------------------------------------------

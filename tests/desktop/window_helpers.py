@@ -31,6 +31,20 @@ def settle(qtbot, ms: int = 0) -> None:
         QApplication.processEvents()
 
 
+def shown_results(qtbot, result, width: int = 1280, height: int = 820):
+    """A shown ResultsView of `result`, every tab filled (they fill one per turn of the
+    event loop), closed by qtbot at the end of the test."""
+    from lagwise.desktop.results import ResultsView
+
+    view = ResultsView()
+    qtbot.addWidget(view)
+    view.resize(width, height)
+    view.show()
+    view.show_result(result)
+    qtbot.waitUntil(lambda: not view.filling)
+    return view
+
+
 def open_window(qtbot, width: int = 1400, height: int = 900) -> MainWindow:
     """A shown main window of the given size, closed by qtbot at the end of the test."""
     win = MainWindow()
