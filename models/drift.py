@@ -23,7 +23,8 @@ from functools import lru_cache
 import numpy as np
 from scipy.linalg import solve_continuous_lyapunov
 
-from lagwise.models.drifteigen import Eigen, decompose, exp_adjoint, exp_stack, integral_stack
+from lagwise.models.drifteigen import (Eigen, adjoint_lyapunov, decompose, exp_adjoint, exp_stack,
+                                      integral_stack, stationary)
 from lagwise.models.errors import EstimationError
 
 
@@ -188,11 +189,16 @@ def _eigen_of(key: bytes, k: int) -> Eigen | None:
 
 
 def stationary_covariance(a: np.ndarray, w: np.ndarray) -> np.ndarray:
-    """S with A S + S A' + W = 0; EstimationError when A is not stable."""
-    if not is_stable(a):
+    """S with A S + S A' + W = 0 (from the eigendecomposition where it serves, else by
+    scipy's Lyapunov solver); EstimationError when A is not stable."""
+    eig = _eigen(a)
+    if eig is not None:
+        s = stationary(eig, w)
+    elif not is_stable(a):
         raise EstimationError("The drift matrix is not stable (an eigenvalue has a real part "
                               "of 0 or more): the states have no stationary distribution.")
-    s = solve_continuous_lyapunov(a, -w)
+    else:
+        s = solve_continuous_lyapunov(a, -w)
     return 0.5 * (s + s.T)
 
 
@@ -200,7 +206,9 @@ def stationary_adjoint(a: np.ndarray, s: np.ndarray, s_bar: np.ndarray
                        ) -> tuple[np.ndarray, np.ndarray]:
     """(dL/dA, dL/dW) from dL/dS at the stationary S: with X solving A'X + XA + sym(S_bar) = 0,
     dL/dW = X and dL/dA = 2 X S."""
-    x = solve_continuous_lyapunov(a.T, -0.5 * (s_bar + s_bar.T))
+    eig = _eigen(a)
+    rhs = 0.5 * (s_bar + s_bar.T)
+    x = adjoint_lyapunov(eig, rhs) if eig is not None else solve_continuous_lyapunov(a.T, -rhs)
     x = 0.5 * (x + x.T)
     return 2.0 * x @ s, x
 

@@ -5,7 +5,10 @@ eigendecomposition of the drift, A = V diag(lam) V^-1 (complex in general):
            Wt = V^-1 W V^-H (the integral of Q's definition taken entry by entry),
     d expm(A D)[E] = V ((V^-1 E V) o Phi(D)) V^-1,
            Phi_ij = (exp(lam_i D) - exp(lam_j D)) / (lam_i - lam_j),  Phi_ii = D exp(lam_i D)
-(Daleckii-Krein; Higham 2008, "Functions of Matrices", Theorem 3.11). Quotients of the form
+(Daleckii-Krein; Higham 2008, "Functions of Matrices", Theorem 3.11). The stationary
+covariance (A S + S A' + W = 0) is Q's limit, S = V [-Wt_ij / s_ij] V^H, and the adjoint
+equation A' X + X A + E = 0 has X = V^-H [-(V^H E V)_ij / conj(s_ij)] V^-1 (both Lyapunov
+equations diagonalised by the eigenvectors). Quotients of the form
 (exp(z) - 1) / z go through expm1, so coinciding eigenvalues and vanishing s_ij take their
 limits without cancellation. The eigenvector matrix must be well conditioned (errors grow
 like cond(V) times the rounding unit): `decompose` declines otherwise (a nearly defective
@@ -83,3 +86,18 @@ def exp_adjoint(e: Eigen, d: np.ndarray, b_bar: np.ndarray) -> np.ndarray:
     pairs = b_bar.reshape(-1, k * k).T @ _divided_differences(e, d).conj().reshape(-1, k * k)
     inner = np.einsum("ia,bj,abij->ij", vh, vinv_h, pairs.reshape(k, k, k, k))
     return (vinv_h @ inner @ vh).real
+
+
+def stationary(e: Eigen, w: np.ndarray) -> np.ndarray:
+    """S with A S + S A' + W = 0 (A stable): S = V [-Wt_ij / s_ij] V^H."""
+    wt = e.v_inv @ w @ e.v_inv.conj().T
+    s = -(e.lam[:, None] + e.lam.conj()[None, :])
+    return (e.v @ (wt / s) @ e.v.conj().T).real
+
+
+def adjoint_lyapunov(e: Eigen, rhs: np.ndarray) -> np.ndarray:
+    """X with A' X + X A + E = 0 (A stable): X = V^-H [-(V^H E V)_ij / (conj lam_i + lam_j)]
+    V^-1."""
+    et = e.v.conj().T @ rhs @ e.v
+    s = -(e.lam.conj()[:, None] + e.lam[None, :])
+    return (e.v_inv.conj().T @ (et / s) @ e.v_inv).real

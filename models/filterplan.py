@@ -35,7 +35,8 @@ class FilterPlan:
     diary and reused for every evaluation. History node j: the answered items
     `patterns[node_pattern[j]]`, the node of the previous occasion `node_parent[j]` (-1 at a
     segment start), reached by a step of class `node_step[j]` (0 at segment starts and when all
-    steps are alike); `occasion_node` (n,) gives each occasion's node and `step` (n,) the class
+    steps are alike); `lone[j]` when no other history node has node j's step class (so no
+    other node can share its covariances); `occasion_node` (n,) gives each occasion's node and `step` (n,) the class
     of the step that reaches it. The nodes of position b
     are levels[b] = (lo, hi) for the first positions; those from levels[-1][1] on are chains,
     the rest of each longer segment: one node per occasion, each after its parent.
@@ -46,6 +47,7 @@ class FilterPlan:
     node_pattern: np.ndarray
     node_parent: np.ndarray
     node_step: np.ndarray
+    lone: np.ndarray              # (history nodes,) bool: no other node has its step class
     occasion_node: np.ndarray
     step: np.ndarray
     levels: tuple[tuple[int, int], ...]
@@ -110,9 +112,11 @@ def filter_plan(values: np.ndarray, segment: np.ndarray, step: np.ndarray | None
     first = np.zeros(n, dtype=bool)
     first[starts] = True
     keys = np.concatenate(pattern_parts + [pattern_of[rows]])
+    node_step = keys % n_step
     return FilterPlan(observed=observed, patterns=patterns, node_pattern=keys // n_step,
                       node_parent=np.concatenate(parent_parts + [parent]),
-                      node_step=keys % n_step, occasion_node=occasion_node, step=steps,
+                      node_step=node_step, lone=np.bincount(node_step)[node_step] == 1,
+                      occasion_node=occasion_node, step=steps,
                       levels=tuple(levels), starts=starts,
                       lengths=lengths, later=np.flatnonzero(~first),
                       forward=_lanes(starts, lengths, 1),

@@ -135,11 +135,13 @@ def test_equal_unit_intervals_give_the_discrete_exact_likelihood():
     assert objective.loglik(theta) == pytest.approx(discrete, abs=1e-8)
 
 
-@pytest.mark.parametrize("night", ["restart", "carry"])
-def test_irregular_intervals_match_the_dense_normal_density(night):
+@pytest.mark.parametrize("night, days, prompts", [("restart", 4, 6), ("carry", 4, 6),
+                                                  ("restart", 18, 3)])
+def test_irregular_intervals_match_the_dense_normal_density(night, days, prompts):
     # the whole series as one normal vector: Cov(eta_t, eta_s) = expm(A (t - s)) S for t >= s
-    # within a segment (independent segments when nights restart), y = nu + Lambda eta + e
-    diary = _diary(days=4, prompts=6, seed=11, p_missed=0.25)
+    # within a segment (independent segments when nights restart), y = nu + Lambda eta + e;
+    # four days run a node at a time, 18 days a position at a time (every interval its own)
+    diary = _diary(days=days, prompts=prompts, seed=11, p_missed=0.25)
     diary.values[np.random.default_rng(2).random(diary.values.shape) < 0.1] = np.nan
     objective = ContinuousObjective(diary, SPEC, FitOptions(estimator="continuous-time",
                                                             night=night))
@@ -164,8 +166,9 @@ def test_irregular_intervals_match_the_dense_normal_density(night):
     assert objective.loglik(theta) == pytest.approx(dense, abs=1e-8)
 
 
-def test_gradient_matches_central_differences():
-    diary = _diary(days=10, prompts=7, seed=5, p_missed=0.15)
+@pytest.mark.parametrize("days, prompts", [(10, 7), (20, 4)])
+def test_gradient_matches_central_differences(days, prompts):
+    diary = _diary(days=days, prompts=prompts, seed=5, p_missed=0.15)
     objective = ContinuousObjective(diary, SPEC, FitOptions(estimator="continuous-time",
                                                             interval_unit="minutes"))
     theta = _theta(objective, DRIFT / 60.0, DIFFUSION / 60.0) * 1.05

@@ -367,6 +367,40 @@ def test_gradient_with_shared_and_reused_covariances():
     assert _covariances(filter_plan(joined, np.zeros(80)), sys).size < 70
 
 
+def test_the_update_in_the_states_dimension_changes_only_the_rounding(monkeypatch):
+    # Woodbury's identity: the update through K = I + G' D G (states' dimension) equals the
+    # update through F = Zb P Zb' + H (items' dimension) (common practice); with a unique
+    # variance below the noise floor the filter keeps the items' dimension and still equals
+    # the stacked normal density.
+    from lagwise.models import kalman
+
+    calls = []
+    original = kalman._information_update
+    monkeypatch.setattr(kalman, "_information_update",
+                        lambda *a: calls.append(1) or original(*a))
+    y = _days(20, 6, seed=13)
+    segment = np.repeat(np.arange(20), 6)
+    got = kalman_gradient(y, segment, **ARGS_SM)
+    assert calls
+    monkeypatch.setattr(kalman, "_NOISE_FLOOR", np.inf)     # every update in the items' dimension
+    plain = kalman_gradient(y, segment, **ARGS_SM)
+    assert got.loglik == pytest.approx(plain.loglik, rel=1e-12)
+    for name in ("intercepts", "loadings", "unique", "lagged", "innovation"):
+        a, b = getattr(got, name), getattr(plain, name)
+        assert np.allclose(a, b, rtol=1e-10, atol=1e-10 * np.abs(b).max()), name
+    monkeypatch.undo()
+    monkeypatch.setattr(kalman, "_information_update",
+                        lambda *a: calls.append(2) or original(*a))
+    lam, lagged, psi, _ = CASES["2 states, lag 2"]
+    theta = np.array([0.6, 1e-9, 0.5])                       # nearly without error
+    y, seg = _data("missing, three segments")
+    mean, cov, _, _ = _dense(y, seg, NU, lam, theta, lagged, psi)
+    seen = ~np.isnan(y.ravel())
+    expected = multivariate_normal(mean[seen], cov[np.ix_(seen, seen)]).logpdf(y.ravel()[seen])
+    assert kalman_loglik(y, seg, NU, lam, theta, lagged, psi) == pytest.approx(expected, rel=1e-9)
+    assert 2 not in calls
+
+
 def test_a_plan_built_for_other_data_is_refused():
     y = np.random.default_rng(2).normal(size=(8, 3))
     plan = filter_plan(y, np.zeros(8))
