@@ -28,7 +28,7 @@ from PySide6.QtWidgets import (
 from lagwise.desktop.export import ask_and_save, export_menu, menu_button
 from lagwise.models.across import NOT_MULTILEVEL, Across, across_people, estimates_wide_csv
 from lagwise.models.kinds import parameter_words
-from lagwise.models.reporting.study import strip_figure
+from lagwise.models.reporting.study import STUDY_CAUTIONS, strip_figure
 from lagwise.models.batchfiles import read_batch
 from lagwise.models.numbers import fmt
 from lagwise.models.personfit import PersonOutcome
@@ -55,6 +55,7 @@ class AcrossDialog(QDialog):
     def __init__(self, folder: str | Path, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self.folder = Path(folder)
+        self.caution = " ".join((NOT_MULTILEVEL, *STUDY_CAUTIONS))   # every export repeats it
         self.outcomes = outcomes = read_batch(folder)
         across = across_people(outcomes)
         self.setWindowTitle(f"Across people: {Path(folder).name}")
@@ -81,7 +82,7 @@ class AcrossDialog(QDialog):
             "Estimates", "estimates", _estimate_rows(across),
             ("Person", "Parameter", "Estimate", "SE", "95% low", "95% high", "Warnings"),
             more=("Save one row per person as CSV…",
-                  lambda: ask_and_save(self, self.wide, "estimates-wide", "csv")))
+                  lambda: ask_and_save(self, self.wide, "estimates-wide", "csv", self.caution)))
         self.strips = self._strip_tab(across)
         self.people.setToolTip("Click a person to open their results in the window "
                                "(a project holding this study)")
@@ -105,7 +106,8 @@ class AcrossDialog(QDialog):
         top = QHBoxLayout()
         top.addWidget(caption, 1)
         button = menu_button("Export", "Save this picture as PNG or SVG")
-        button.setMenu(export_menu(button, picture=picture, name="lagged-paths-over-people"))
+        button.setMenu(export_menu(button, picture=picture, name="lagged-paths-over-people",
+                                   caution=self.caution))
         top.addWidget(button)
         box.addLayout(top)
         scroll = QScrollArea()
@@ -134,7 +136,8 @@ class AcrossDialog(QDialog):
         top = QHBoxLayout()
         top.addStretch(1)
         button = menu_button("Export", "Save this table as CSV")
-        button.setMenu(export_menu(button, table_model=table.model(), name=name))
+        button.setMenu(export_menu(button, table_model=table.model(), name=name,
+                                   caution=self.caution))
         if more is not None:                 # a further export of this tab
             button.menu().addAction(more[0]).triggered.connect(more[1])
         top.addWidget(button)

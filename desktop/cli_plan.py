@@ -72,7 +72,7 @@ def run(args: argparse.Namespace) -> int:
     from lagwise.models.atomic import write_output
     from lagwise.models.design import Design
     from lagwise.models.plan import run_plan
-    from lagwise.models.planresults import ALIGN, HEADER, table_rows
+    from lagwise.models.planresults import ALIGN, CAUTION, HEADER, table_rows
     from lagwise.models.texttable import table
 
     truth, options = _truth(args)
@@ -103,7 +103,7 @@ def run(args: argparse.Namespace) -> int:
           f"({args.pattern}); power, coverage and not converged are shares of diaries, "
           "± MC the Monte Carlo error of the power.")
     print("\n".join(plan.sentences()))
-    print("Planning assumes the model is right: the power is that of diaries drawn from it.")
+    print(CAUTION)
     if args.json:
         write_output(args.json, json.dumps(plan.to_json(), indent=2, allow_nan=False),
                      "the plan")

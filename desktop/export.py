@@ -155,22 +155,24 @@ def inert_cell(text: str) -> str:
 
 
 def export_menu(parent: QWidget, picture: Picture | None = None,
-                table_model: QAbstractItemModel | None = None, name: str = "lagwise") -> QMenu:
+                table_model: QAbstractItemModel | None = None, name: str = "lagwise",
+                caution: str = "") -> QMenu:
     """A menu with "Save picture as PNG/SVG" and "Save numbers as CSV" actions.
 
-    Attach it to a tool button or a context menu; `name` is the suggested file name.
+    Attach it to a tool button or a context menu; `name` is the suggested file name;
+    `caution` (if any) is the pictures' caption and the tables' last line.
     """
     menu = QMenu("Export", parent)
     if picture is not None:
         png = QAction("Save picture as PNG…", menu)
-        png.triggered.connect(lambda: ask_and_save(parent, picture, name, "png"))
+        png.triggered.connect(lambda: ask_and_save(parent, picture, name, "png", caution))
         svg = QAction("Save picture as SVG…", menu)
-        svg.triggered.connect(lambda: ask_and_save(parent, picture, name, "svg"))
+        svg.triggered.connect(lambda: ask_and_save(parent, picture, name, "svg", caution))
         menu.addAction(png)
         menu.addAction(svg)
     if table_model is not None:
         table = QAction("Save numbers as CSV…", menu)
-        table.triggered.connect(lambda: ask_and_save(parent, table_model, name, "csv"))
+        table.triggered.connect(lambda: ask_and_save(parent, table_model, name, "csv", caution))
         menu.addAction(table)
     return menu
 
@@ -190,9 +192,10 @@ _NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
 _FILTERS = {"png": "PNG picture (*.png)", "svg": "SVG picture (*.svg)", "csv": "CSV table (*.csv)"}
 
 
-def ask_and_save(parent: QWidget, target, name: str, kind: str) -> None:
-    """Ask for a file name (suggested `name`.`kind`), then save `target` as PNG, SVG or CSV;
-    a failure is shown in a message box and nothing is written."""
+def ask_and_save(parent: QWidget, target, name: str, kind: str, caution: str = "") -> None:
+    """Ask for a file name (suggested `name`.`kind`), then save `target` as PNG, SVG or CSV
+    (`caution` as the picture's caption or the table's last line); a failure is shown in a
+    message box and nothing is written."""
     path, _ = QFileDialog.getSaveFileName(parent, "Save as", f"{name}.{kind}", _FILTERS[kind])
     if not path:
         return
@@ -200,11 +203,9 @@ def ask_and_save(parent: QWidget, target, name: str, kind: str) -> None:
         path += "." + kind
     try:
         if kind == "csv":
-            save_table_csv(target, path)
-        elif kind == "svg":
-            save_scene_svg(target, path)
+            save_table_csv(target, path, caution)
         else:
-            save_widget_png(target, path)
+            save_picture(target, path, caution)
     except OutputError as exc:
         QMessageBox.warning(parent, "Could not save", plain(str(exc)))
 

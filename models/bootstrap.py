@@ -4,8 +4,8 @@
 days when the days are independent, else the stationary block bootstrap of Politis & Romano
 1994), refits the model to each with the fast refit path (`fit(..., standard_errors=False,
 start=result)`) and keeps the free parameters of every converged refit. Replicates run in
-joblib worker processes (loky), in batches that each carry one copy of the inputs; replicate
-i draws with its own generator from `numpy.random.SeedSequence(seed).spawn(replicates)[i]`,
+joblib worker processes (loky, through models.parallel), in batches that each carry one
+copy of the inputs; replicate i draws with its own generator from `numpy.random.SeedSequence(seed).spawn(replicates)[i]`,
 so the answer depends on the seed only, never on the number of workers or the order in which
 batches finish. Refits that fail or do not converge are counted and left out.
 
@@ -22,7 +22,6 @@ From the estimates (Efron & Tibshirani 1993, "An Introduction to the Bootstrap")
 from __future__ import annotations
 
 import math
-import warnings
 from dataclasses import dataclass
 from functools import partial
 
@@ -36,6 +35,7 @@ from lagwise.models.errors import EstimationError, FieldError, LagwiseError
 from lagwise.models.estimate import fit
 from lagwise.models.estimators import FitOptions
 from lagwise.models.kinds import PATH_KINDS, Kind
+from lagwise.models.parallel import run_tasks
 from lagwise.models.progress import Monitor, checkpoint
 from lagwise.models.resampling import METHODS, Resampler, resampler
 from lagwise.models.results import FitResult, Parameter, _finite
@@ -231,13 +231,12 @@ def bootstrap(diary: Diary, spec: ModelSpec, options: FitOptions, result: FitRes
               replicates: int = 500, seed: int = 0, jobs: int | None = None,
               monitor: Monitor | None = None) -> Bootstrap:
     """Bootstrap `result` (the fit of `spec` to `diary` with `options`): `replicates`
-    resampled diaries refitted in `jobs` worker processes (None: every core). Reports
-    progress to `monitor` as batches finish; Cancelled stops the workers and returns nothing.
-    Raises EstimationError when the diary cannot be resampled or no replicate converged."""
+    resampled diaries refitted in `jobs` worker processes (None: every core; through
+    models.parallel). Reports progress to `monitor` as batches finish; Cancelled stops the
+    workers and returns nothing. Raises EstimationError when the diary cannot be resampled
+    or no replicate converged, ValueError for jobs < 1."""
     if not 1 <= replicates <= MAX_REPLICATES:
         raise EstimationError(f"Ask for 1 to {MAX_REPLICATES} bootstrap replicates, not {replicates}.")
-    if jobs is not None and jobs < 1:
-        raise ValueError("jobs should be 1 or more (None: every core)")
     if result.spec != spec:
         raise ValueError("the result is not a fit of this model")
     checkpoint(monitor, 0.0, "Bootstrap: choosing how to resample")
@@ -245,15 +244,14 @@ def bootstrap(diary: Diary, spec: ModelSpec, options: FitOptions, result: FitRes
     plan = resampler(diary)
     work = _Work(diary, spec, options, result, plan)
     seeds = np.random.SeedSequence(seed).spawn(replicates)
-    workers = joblib.cpu_count() if jobs is None else jobs
-    size = batch_size(replicates, workers)
-    tasks = (joblib.delayed(_run_batch)(work, range(a, min(a + size, replicates)), seeds[a:a + size])
-             for a in range(0, replicates, size))
+    size = batch_size(replicates, joblib.cpu_count() if jobs is None else jobs)
+    tasks = [(work, range(a, min(a + size, replicates)), seeds[a:a + size])
+             for a in range(0, replicates, size)]
     n_free = len(result.free_parameters)
     estimates, kept = np.full((replicates, n_free), np.nan), np.zeros(replicates, bool)
     checkpoint(monitor, 0.0, f"Bootstrap: 0 of {replicates} replicates")
-    outputs = joblib.Parallel(n_jobs=workers, backend="loky", return_as="generator_unordered")(tasks)
     done = 0
+    outputs = run_tasks(_run_batch, tasks, jobs=jobs)
     try:
         for batch in outputs:
             for i, values in batch:
@@ -261,9 +259,8 @@ def bootstrap(diary: Diary, spec: ModelSpec, options: FitOptions, result: FitRes
                     estimates[i], kept[i] = values, True
             done += len(batch)
             checkpoint(monitor, done / replicates, f"Bootstrap: {done} of {replicates} replicates")
-    except BaseException:
-        _stop(outputs)
-        raise
+    finally:
+        outputs.close()          # the batches still queued or running are cancelled
     if not kept.any():
         raise EstimationError("No bootstrap replicate converged: the model cannot be refitted "
                               "to resampled diaries.")
@@ -290,13 +287,6 @@ def _run_batch(work: _Work, indices, seeds) -> list[tuple[int, np.ndarray | None
         values = np.array([p.estimate for p in refit.free_parameters])
         out.append((i, values if refit.converged and np.isfinite(values).all() else None))
     return out
-
-
-def _stop(outputs) -> None:
-    """Close joblib's generator: the batches still queued or running are cancelled."""
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")   # joblib's note that unfinished tasks were dropped
-        outputs.close()
 
 
 # ----- reading JSON -----------------------------------------------------------------------

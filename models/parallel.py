@@ -60,7 +60,8 @@ def _locally(function: Callable[..., Any], tasks: Sequence[tuple],
                               return_as="generator_unordered")(
         joblib.delayed(function)(*task) for task in tasks)
     try:
-        yield from outputs
+        for result in outputs:   # not `yield from`: it would close joblib's generator
+            yield result         # before the warnings filter below is in place
     finally:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")   # joblib's note that unfinished tasks were dropped

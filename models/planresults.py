@@ -23,6 +23,8 @@ from lagwise.models.numbers import fmt
 from lagwise.models.plantruth import Truth
 
 TARGET = 0.80
+CAUTION = ("Planning assumes the model is right: the power shown is that of diaries drawn "
+           "from the assumed model, not a promise about a real person.")
 
 
 @dataclass(frozen=True, eq=False)
@@ -150,7 +152,7 @@ class Plan:
                 "days_for_80_percent_power": [
                     {"kind": str(p.kind), "from": p.from_, "to": p.to,
                      "days": _num(self.days_needed(n))} for n, p in enumerate(paths)],
-                "summary": self.sentences()}
+                "summary": self.sentences(), "caution": CAUTION}
 
 
 def summarise(truth: Truth, designs: Sequence[Design], asked: int,

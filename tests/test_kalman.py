@@ -346,8 +346,9 @@ def test_joined_days_reach_a_reused_steady_state_and_match_statsmodels():
     assert np.allclose(st.smoothed_cov, ref.smoothed_state_cov.transpose(2, 0, 1), atol=1e-10)
     # the steady state was found and reused: at least the last two complete day-and-night
     # cycles add no new covariances
-    from lagwise.models.kalman import _covariances, _system
-    cov = _covariances(filter_plan(y, segment), _system(LAM_SM, THETA_SM, [B_SM], np.eye(2), None))
+    from lagwise.models.filtercov import covariances
+    from lagwise.models.kalman import _system
+    cov = covariances(filter_plan(y, segment), _system(LAM_SM, THETA_SM, [B_SM], np.eye(2), None))
     assert cov.size <= y.shape[0] - 2 * (prompts + night)
 
 
@@ -362,9 +363,10 @@ def test_gradient_with_shared_and_reused_covariances():
     _flat_gradient_check(lam, lagged, psi, np.zeros(3), THETA, y, np.repeat(np.arange(10), 6))
     joined = np.vstack([y[:30], np.full((5, 3), np.nan), rng.normal(size=(45, 3)) + NU])
     _flat_gradient_check(lam, lagged, psi, np.zeros(3), THETA, joined, np.zeros(80, int))
-    from lagwise.models.kalman import _covariances, _system   # the reuse did happen here
+    from lagwise.models.filtercov import covariances
+    from lagwise.models.kalman import _system   # the reuse did happen here
     sys = _system(lam, THETA, lagged, psi, None)
-    assert _covariances(filter_plan(joined, np.zeros(80)), sys).size < 70
+    assert covariances(filter_plan(joined, np.zeros(80)), sys).size < 70
 
 
 def test_the_update_in_the_states_dimension_changes_only_the_rounding(monkeypatch):
@@ -372,24 +374,24 @@ def test_the_update_in_the_states_dimension_changes_only_the_rounding(monkeypatc
     # update through F = Zb P Zb' + H (items' dimension) (common practice); with a unique
     # variance below the noise floor the filter keeps the items' dimension and still equals
     # the stacked normal density.
-    from lagwise.models import kalman
+    from lagwise.models import filtercov
 
     calls = []
-    original = kalman._information_update
-    monkeypatch.setattr(kalman, "_information_update",
+    original = filtercov.states_update
+    monkeypatch.setattr(filtercov, "states_update",
                         lambda *a: calls.append(1) or original(*a))
     y = _days(20, 6, seed=13)
     segment = np.repeat(np.arange(20), 6)
     got = kalman_gradient(y, segment, **ARGS_SM)
     assert calls
-    monkeypatch.setattr(kalman, "_NOISE_FLOOR", np.inf)     # every update in the items' dimension
+    monkeypatch.setattr(filtercov, "NOISE_FLOOR", np.inf)     # every update in the items' dimension
     plain = kalman_gradient(y, segment, **ARGS_SM)
     assert got.loglik == pytest.approx(plain.loglik, rel=1e-12)
     for name in ("intercepts", "loadings", "unique", "lagged", "innovation"):
         a, b = getattr(got, name), getattr(plain, name)
         assert np.allclose(a, b, rtol=1e-10, atol=1e-10 * np.abs(b).max()), name
     monkeypatch.undo()
-    monkeypatch.setattr(kalman, "_information_update",
+    monkeypatch.setattr(filtercov, "states_update",
                         lambda *a: calls.append(2) or original(*a))
     lam, lagged, psi, _ = CASES["2 states, lag 2"]
     theta = np.array([0.6, 1e-9, 0.5])                       # nearly without error
@@ -445,10 +447,11 @@ def test_long_segments_match_statsmodels_segment_by_segment(lengths):
 def test_a_long_segment_with_missed_prompts_reuses_its_covariances():
     # missed prompts only: after each one the covariances settle, bit for bit, on those of
     # the complete stretch, so the 3,000 occasions share a few hundred filter nodes
-    from lagwise.models.kalman import _covariances, _system
+    from lagwise.models.filtercov import covariances
+    from lagwise.models.kalman import _system
     y, segment = _long([3000], seed=32, skipped=0.0)
     sys = _system(LAM_SM, THETA_SM, [B_SM], np.eye(2), None)
-    assert _covariances(filter_plan(y, segment), sys).size < 3000 // 5
+    assert covariances(filter_plan(y, segment), sys).size < 3000 // 5
 
 
 def test_gradient_on_a_long_segment_matches_numerical_differences():

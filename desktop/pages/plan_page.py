@@ -22,11 +22,9 @@ from lagwise.desktop.export import export_menu, menu_button
 from lagwise.desktop.session import Session
 from lagwise.models.design import PATTERNS, Design
 from lagwise.models.errors import LagwiseError
-from lagwise.models.planresults import HEADER, TARGET, Plan, table_rows
+from lagwise.models.planresults import CAUTION, HEADER, TARGET, Plan, table_rows
 from lagwise.models import plantruth
 
-CAUTION = ("Planning assumes the model is right: the power shown is that of diaries drawn "
-           "from the assumed model, not a promise about a real person.")
 NO_MODEL = "Choose the states on the States page first: a plan needs a model."
 
 
@@ -75,7 +73,7 @@ class PlanPage(QWidget):
         self.sentences.setWordWrap(True)
         self.sentences.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         layout.addWidget(self.sentences)
-        self.export_button.setMenu(export_menu(self, self.curve, self.model, "plan"))
+        self.export_button.setMenu(export_menu(self, self.curve, self.model, "plan", CAUTION))
         session.resultChanged.connect(self._show_truth)
         session.specChanged.connect(self._show_truth)
         self._show_truth()

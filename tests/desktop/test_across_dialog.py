@@ -10,12 +10,15 @@ import json
 import pytest
 
 from batch_people import RECIPE, people_tables, stacked
+from PySide6.QtWidgets import QFileDialog, QPushButton
+
 from lagwise.desktop.across_dialog import AcrossDialog
 from lagwise.models.across import NOT_MULTILEVEL
 from lagwise.models.batch import run_batch
 from lagwise.models.errors import DataError
 from lagwise.models.numbers import fmt
 from lagwise.models.personfit import BatchSettings
+from lagwise.models.reporting.study import STUDY_CAUTIONS
 from lagwise.models.study import study_from_frame
 from two_state_model import SPEC
 
@@ -25,7 +28,7 @@ def _cells(table) -> list[list[str]]:
             for r in range(table.rowCount())]
 
 
-def test_the_view_shows_the_batch_summary(lagwise_app, qtbot, tmp_path):
+def test_the_view_shows_the_batch_summary(lagwise_app, qtbot, tmp_path, monkeypatch):
     tables = people_tables(3)
     tables["short"] = tables["P00"].head(5)
     outcome = run_batch(study_from_frame(stacked(tables), RECIPE, "person"), BatchSettings(SPEC),
@@ -61,6 +64,15 @@ def test_the_view_shows_the_batch_summary(lagwise_app, qtbot, tmp_path):
     # the strip plot: one dot per fitted person and lagged path
     assert dialog.strips is not None and dialog.strips.renderer().isValid()
     assert dialog.tabs.tabText(dialog.tabs.count() - 1) == "Strip plot"
+    # every export ends with the cautions of separate person-specific models
+    saved = tmp_path / "exported.csv"
+    monkeypatch.setattr(QFileDialog, "getSaveFileName", lambda *a, **k: (str(saved), ""))
+    menu = dialog.estimates.parent().findChild(QPushButton).menu()
+    for action in menu.actions():
+        action.trigger()
+        lines = saved.read_text(encoding="utf-8").splitlines()
+        assert lines[-1] == "# " + dialog.caution and NOT_MULTILEVEL in dialog.caution
+        assert STUDY_CAUTIONS[0] in dialog.caution
 
 
 def test_a_folder_without_a_batch_is_one_line(lagwise_app, tmp_path):

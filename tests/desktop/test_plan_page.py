@@ -9,7 +9,8 @@ import csv
 from test_layout_1280 import _problems
 from window_helpers import open_window, settle
 
-from lagwise.desktop.export import save_table_csv
+from PySide6.QtWidgets import QFileDialog
+
 from lagwise.desktop.mainwindow import PAGES
 from lagwise.desktop.pages.plan_page import CAUTION, NO_MODEL
 from lagwise.models import plantruth
@@ -37,7 +38,7 @@ def _close(qtbot, win):
 
 
 def test_a_plan_from_the_estimates_shows_the_engines_numbers(qtbot, lagwise_app, artifacts,
-                                                            tmp_path):
+                                                            tmp_path, monkeypatch):
     win = _demo_estimated(qtbot)
     page = win.plan_page
     win.show_page(PAGES.index("Plan"))
@@ -56,10 +57,14 @@ def test_a_plan_from_the_estimates_shows_the_engines_numbers(qtbot, lagwise_app,
     assert page.sentences.text() == "\n".join(same.sentences())
     assert CAUTION in [label.text() for label in page.findChildren(type(page.sentences))]
     assert any(item.name() for item in page.curve.getPlotItem().listDataItems())
-    out = save_table_csv(page.model, tmp_path / "plan.csv")
+    out = tmp_path / "plan.csv"               # the Export menu's table, as a user saves it
+    monkeypatch.setattr(QFileDialog, "getSaveFileName", lambda *a, **k: (str(out), ""))
+    next(a for a in page.export_button.menu().actions() if "CSV" in a.text()).trigger()
     with open(out, newline="", encoding="utf-8") as handle:
         rows = list(csv.reader(handle))
-    assert rows[0] == list(HEADER) and len(rows) == 1 + len(shown)
+    assert rows[0] == list(HEADER) and len(rows) == 2 + len(shown)
+    assert out.read_text(encoding="utf-8").splitlines()[-1] == "# " + CAUTION
+    assert page.plan.to_json()["caution"] == CAUTION
     win.grab().save(str(artifacts / "layout-1280x800-Plan-results.png"))
     assert _problems(page) == []
     _close(qtbot, win)
