@@ -536,10 +536,10 @@ class Session(QObject):
         run = find_run(self._runs, name)
         before = self._current
         self.undo_stack.beginMacro(f"Reopen run '{name}'")
+        self.edit_spec(run.spec, f"Model of run '{name}'")     # first: the run's result is
+        self.edit_options(run.options, f"Settings of run '{name}'")   # then shown with its model
         self._edit_runs(f"Show run '{name}'", lambda runs, _: (runs, name),
                         lambda runs, _: (runs, before))
-        self.edit_spec(run.spec, f"Model of run '{name}'")
-        self.edit_options(run.options, f"Settings of run '{name}'")
         self.undo_stack.endMacro()
 
     def _edit_runs(self, text: str, forward, backward) -> None:

@@ -175,3 +175,15 @@ def test_a_lag2_check_is_kept_with_the_run_it_tested(window, qtbot):
     saved = window.session.to_project()
     assert [r.name for r in saved.runs] == ["Run 1", "Run 2"] and saved.current_run == "Run 2"
     assert saved.runs[1].lag2 is run.lag2
+    # Run 1 (another model, no check of its own) does not show Run 2's check; reopened,
+    # Run 2 shows its own check again (its model is made the model before it is shown)
+    panel = window.results.runs
+    for name, shown in (("Run 1", None), ("Run 2", run.lag2)):
+        panel.select(name)
+        qtbot.mouseClick(panel.reopen_button, Qt.MouseButton.LeftButton)
+        settle(qtbot)
+        assert window.results.lag2.check is shown, name
+    window.undo_action.trigger()              # back to Run 1, whose model is not the one tested
+    settle(qtbot)
+    assert window.session.current_run.name == "Run 1" and window.results.lag2.check is None
+    assert "model has changed" in window.results.lag2.verdict.text()
