@@ -10,10 +10,15 @@ For each nested pair (same data, same estimator and settings that shape the like
 items, one run's free parameters a strict subset of the other's) the likelihood-ratio test
 (common practice): LR = 2 (logL_larger - logL_smaller), df = the difference in free
 parameters, p = chi-square(df) upper tail (scipy.stats.chi2.sf). With the exact estimator
-logL is the likelihood of the series and p is exact in large samples; with a window
-estimator logL is the window pseudo-likelihood (overlapping windows treated as independent)
-and, as in the lag-2 check (models.lag2check), the statistic is not adjusted and p is only
-approximate.
+logL is the likelihood of the series and p is exact in large samples. With a window
+estimator logL is the window pseudo-likelihood (overlapping windows treated as independent),
+and LR is scaled by the difference test of Satorra & Bentler (2001, "A scaled difference
+chi-square test statistic for moment structure analysis", Psychometrika 66:507-514) from
+the two runs' calibrated fit tests (models.robust): with d0, d1 the models' degrees of
+freedom and c0, c1 their scaling factors (smaller model first),
+    c_d = (d0 c0 - d1 c1) / (d0 - d1),   LR / c_d ~ chi-square(d0 - d1);
+where c_d is not positive (it can be in small samples) or a run has no calibrated test, LR
+is left unscaled and its p is marked approximate.
 """
 
 from __future__ import annotations
@@ -25,7 +30,7 @@ from scipy.stats import chi2 as chi2_dist
 from lagwise.models.errors import ProjectError
 from lagwise.models.kinds import Kind, parameter_words
 from lagwise.models.numbers import fmt, p_phrase
-from lagwise.models.results import FitResult
+from lagwise.models.results import FitIndices, FitResult
 from lagwise.models.runs import Run
 
 # (label, FitIndices field, fmt style) of the fit figures compared
@@ -57,20 +62,31 @@ class Row:
 
 @dataclass(frozen=True)
 class LikelihoodRatio:
-    """The likelihood-ratio test of a nested pair of runs."""
+    """The likelihood-ratio test of a nested pair of runs; p is that of the scaled statistic
+    when there is one (window estimators), else of LR."""
 
     smaller: str
     larger: str
     lr: float
     df: int
     p: float
-    exact: bool   # False: window pseudo-likelihood, p approximate
+    exact: bool                   # False: window pseudo-likelihood
+    scaling: float | None = None  # c_d of the scaled difference test (window estimators)
+
+    @property
+    def scaled(self) -> float | None:
+        return None if self.scaling is None else self.lr / self.scaling
 
     @property
     def sentence(self) -> str:
-        where = "" if self.exact else f" ({APPROXIMATE})"
-        return (f"Likelihood-ratio test, {self.smaller} within {self.larger}: LR = "
-                f"{fmt(self.lr)} on {self.df} df, {p_phrase(self.p)}{where}.")
+        head = (f"Likelihood-ratio test, {self.smaller} within {self.larger}: LR = "
+                f"{fmt(self.lr)} on {self.df} df")
+        if self.exact:
+            return f"{head}, {p_phrase(self.p)}."
+        if self.scaling is None:
+            return f"{head}, {p_phrase(self.p)} ({APPROXIMATE})."
+        return (f"{head}; scaled for overlapping windows (Satorra-Bentler difference test, "
+                f"scaling {fmt(self.scaling)}): {fmt(self.scaled)}, {p_phrase(self.p)}.")
 
 
 @dataclass(frozen=True)
@@ -130,8 +146,21 @@ def likelihood_ratio(a: Run, b: Run) -> LikelihoodRatio | None:
     fit_s, fit_l = smaller.result.fit, larger.result.fit
     lr = max(2.0 * (fit_l.loglik - fit_s.loglik), 0.0)   # as models.lag2check
     df = fit_l.n_free - fit_s.n_free
+    exact = fit_l.exact and fit_s.exact
+    c = None if exact else difference_scaling(fit_s, fit_l)
     return LikelihoodRatio(smaller.name, larger.name, float(lr), int(df),
-                           float(chi2_dist.sf(lr, df)), exact=fit_l.exact and fit_s.exact)
+                           float(chi2_dist.sf(lr if c is None else lr / c, df)), exact=exact,
+                           scaling=c)
+
+
+def difference_scaling(smaller: FitIndices, larger: FitIndices) -> float | None:
+    """c_d = (d0 c0 - d1 c1) / (d0 - d1) of the Satorra-Bentler scaled difference test (module
+    docstring), or None when either fit has no calibrated test or c_d is not positive."""
+    if smaller.scaled is None or larger.scaled is None or smaller.df <= larger.df:
+        return None
+    c = ((smaller.df * smaller.scaled.scaling - larger.df * larger.scaled.scaling)
+         / (smaller.df - larger.df))
+    return float(c) if c > 0 else None
 
 
 def same_likelihood(a: Run, b: Run) -> bool:

@@ -2,7 +2,8 @@
 
 Check values: the likelihood-ratio test's statistic, degrees of freedom and p-value come
 from the standard formulas (LR = 2 x difference in log-likelihood, df = difference in free
-parameters; common practice) with scipy.stats.chi2 as the reference distribution; the fits
+parameters; common practice; for window estimators scaled by the difference test of Satorra
+& Bentler 2001) with scipy.stats.chi2 as the reference distribution; the fits
 are of diaries simulated from a model with known parameters (tests/two_state_model.py) and
 the log-likelihoods compared are the engine's own fits of them. SHA-256 digests and times
 are checked with hashlib and datetime.
@@ -27,6 +28,7 @@ from lagwise.models.errors import ProjectError
 from lagwise.models.estimate import fit
 from lagwise.models.estimators import FitOptions
 from lagwise.models.lag2check import lag2_check
+from lagwise.models.numbers import fmt
 from lagwise.models.preparation import Step, steps_to_json
 from lagwise.models.project import (
     FORMAT_VERSION, Project, embed_table, open_project, project_diary, project_fingerprint,
@@ -209,8 +211,19 @@ def test_likelihood_ratio_of_a_nested_pair(two_runs):
     assert (test.smaller, test.larger) == ("Run 2", "Run 1")
     assert test.lr == pytest.approx(2 * (full.fit.loglik - nested.fit.loglik), rel=1e-12)
     assert test.df == full.fit.n_free - nested.fit.n_free == 1
-    assert test.p == chi2.sf(test.lr, test.df)
-    assert not test.exact and "approximate" in test.sentence
+    # window pseudo-likelihood: scaled by the Satorra-Bentler (2001) difference test,
+    # c_d = (d0 c0 - d1 c1) / (d0 - d1) from the two runs' calibrated fit tests
+    d0, d1 = nested.fit.df, full.fit.df
+    c_d = (d0 * nested.fit.scaled.scaling - d1 * full.fit.scaled.scaling) / (d0 - d1)
+    assert test.scaling == pytest.approx(c_d, rel=1e-12) and test.scaling > 0
+    assert test.p == pytest.approx(chi2.sf(test.lr / c_d, test.df), rel=1e-12)
+    assert not test.exact and "Satorra-Bentler" in test.sentence
+    assert fmt(test.lr / c_d) in test.sentence and "approximate" not in test.sentence
+    # without a calibrated test in one run the LR stays unscaled, its p marked approximate
+    bare = replace(two_runs.runs[1], result=replace(nested, fit=replace(nested.fit, scaled=None)))
+    (plain,) = compare((two_runs.runs[0], bare)).tests
+    assert plain.scaling is None and plain.p == chi2.sf(plain.lr, plain.df)
+    assert "approximate" in plain.sentence
 
 
 def test_likelihood_ratio_with_the_exact_estimator_is_not_called_approximate():

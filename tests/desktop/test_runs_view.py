@@ -4,7 +4,8 @@ undoable edits of the session; Compare shows the likelihood-ratio test of a nest
 The diary is simulated from tests/two_state_model.py (known parameters) and imported from a
 CSV file through the import dialog. The likelihood-ratio statistic read off the screen must
 be 2 x the difference of the two runs' log-likelihoods (common practice), with df the
-difference of their free parameters and p from scipy.stats.chi2.
+difference of their free parameters, scaled by the difference test of Satorra & Bentler
+(2001), and p from scipy.stats.chi2.
 """
 
 from __future__ import annotations
@@ -148,14 +149,20 @@ def test_compare_shows_the_likelihood_ratio_test_read_off_the_screen(window, qtb
     view = window.results.compare
     assert window.results.tabs.currentWidget() is view
     text = view.tests_label.text()
-    found = re.search(r"LR = ([\d.]+) on (\d+) df, p = (\.\d+|1\.000)", text)
+    found = re.search(r"LR = ([\d.]+) on (\d+) df; scaled for overlapping windows "
+                      r"\(Satorra-Bentler difference test, scaling ([\d.]+)\): ([\d.]+), "
+                      r"p = (\.\d+|1\.000)", text)
     assert found, text
     full, nested = (run.result.fit for run in window.session.runs)
     lr = 2 * (full.loglik - nested.loglik)
     assert found.group(1) == fmt(lr)
     assert int(found.group(2)) == full.n_free - nested.n_free == 1
-    assert found.group(3) == fmt(chi2.sf(lr, 1), "p")
-    assert "approximate" in text              # window pseudo-likelihood
+    # the window pseudo-likelihood's LR scaled: c_d = (d0 c0 - d1 c1) / (d0 - d1)
+    # (Satorra & Bentler 2001) from the two runs' calibrated fit tests
+    c_d = ((nested.df * nested.scaled.scaling - full.df * full.scaled.scaling)
+           / (nested.df - full.df))
+    assert found.group(3) == fmt(c_d) and found.group(4) == fmt(lr / c_d)
+    assert found.group(5) == fmt(chi2.sf(lr / c_d, 1), "p")
     # the table exports like the other tables, ending with the caution line
     out = save_table_csv(view.model, tmp_path / "compare.csv", view.caution)
     lines = out.read_text(encoding="utf-8").splitlines()
