@@ -2,7 +2,8 @@
 
 `lagwise fit PROJECT.lagwise` refits a saved project with its stored data, model and
 estimator settings (for reproducibility); `--save PROJECT.lagwise` writes the data, the model,
-the settings and the result as a project file (models.project).
+the settings and the result as a project file (models.project), the run keeping the lag-2
+check and the bootstrap of the same command.
 
 Exit codes: 0 success, 2 bad input (one line on stderr), 3 the optimiser did not converge
 (the report and JSON are still written, flagged). --json and --save are written
@@ -15,6 +16,7 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from dataclasses import replace
 
 from lagwise.desktop.cli_common import (
     add_diary_arguments, diary_from_args, in_range, recipe_from_args,
@@ -22,7 +24,7 @@ from lagwise.desktop.cli_common import (
 from lagwise.models.atomic import write_output
 from lagwise.models.errors import LagwiseError, ProjectError, SpecError
 from lagwise.models.estimate import fit
-from lagwise.models.lag2check import lag2_check
+from lagwise.models.lag2check import Lag2Check, lag2_check
 from lagwise.models.project import (
     Project, embed_file, is_project_file, open_project, project_diary, save_project,
     with_estimate,
@@ -33,6 +35,7 @@ from lagwise.models.responses import DEFAULT_HORIZON, MAX_HORIZON, check_horizon
 from lagwise.models.fitdocument import fit_document
 from lagwise.models.estimators import ERRORS, ESTIMATORS, INTERVAL_UNITS, MISSING, NIGHTS, FitOptions
 from lagwise.models.limits import DEPTH, JOBS, MAX_ITER, NIGHT_GAP, PROMPT_SPACING, SEED, Limit
+from lagwise.models.runs import tests_result, update_run
 from lagwise.models.spec import ModelSpec, State, full_mask, inertia_mask
 
 
@@ -55,7 +58,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                       help="worker processes for the bootstrap (default: every core)")
     parser.add_argument("--json", metavar="OUT", help="write the result as JSON to OUT")
     parser.add_argument("--save", metavar="PROJECT.lagwise",
-                        help="also save the data, model, settings and result as a project file")
+                        help="also save the data, model, settings and result (with the "
+                             "lag-2 check and bootstrap asked for) as a project file")
     parser.epilog = ("DATA may be a saved project (PROJECT.lagwise): it is refitted with its "
                      "own data, model and estimator settings; only --json, --save, "
                      "--lag2-check, --horizon and the bootstrap options may be added.")
@@ -226,7 +230,7 @@ def run(args: argparse.Namespace) -> int:
         print()
         print(format_bootstrap(boot))
     written = write_json(args.json, fit_document(result, responses, check, boot))
-    saved = save_fitted(args, project, spec, options, result)
+    saved = save_fitted(args, project, spec, options, result, check, boot)
     if not (written and saved):
         return 2
     if not result.converged:
@@ -250,16 +254,23 @@ def write_json(path: str | None, doc: dict) -> bool:
 
 
 def save_fitted(args: argparse.Namespace, project: Project | None, spec: ModelSpec,
-                options: FitOptions, result) -> bool:
-    """--save: the data, model, settings and result as a project (atomically); a failure is
-    one line on stderr, and False, whether or not the JSON was written."""
+                options: FitOptions, result, check: Lag2Check | None = None,
+                boot: Bootstrap | None = None) -> bool:
+    """--save: the data, model, settings and result as a project (atomically), the run
+    keeping its lag-2 check and bootstrap; a failure is one line on stderr, and False,
+    whether or not the JSON was written."""
     if args.save is None:
         return True
     try:
         if project is None:
             project = Project.of_recipe(embed_file(args.data), recipe_from_args(args),
                                         spec=spec, options=options)
-        save_project(with_estimate(project, result), args.save)
+        project = with_estimate(project, result)
+        kept = {"lag2": check if check is not None and tests_result(check, result) else None,
+                "bootstrap": boot}
+        project = replace(project, runs=update_run(project.runs, project.current_run,
+                                                   **{k: v for k, v in kept.items() if v}))
+        save_project(project, args.save)
     except LagwiseError as error:
         print(f"lagwise: {error}", file=sys.stderr)
         return False

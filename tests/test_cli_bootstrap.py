@@ -50,3 +50,17 @@ def test_bad_bootstrap_options_are_one_line_exit_2(args, words, capsys):
     assert main(["fit", str(DEMO), *GRID, *STATES, *args]) == 2
     err = capsys.readouterr().err
     assert err.startswith("lagwise: ") and words in err and err.count("\n") == 1
+
+
+def test_save_keeps_the_check_and_the_bootstrap_with_the_run(tmp_path, capsys):
+    # the saved project's run holds what the JSON of the same command holds
+    from lagwise.models.project import open_project
+
+    out, saved = tmp_path / "fit.json", tmp_path / "fit.lagwise"
+    assert main(["fit", str(DEMO), *GRID, *STATES, "--lag2-check", "--bootstrap", "4",
+                 "--jobs", "1", "--json", str(out), "--save", str(saved)]) == 0
+    doc = json.loads(out.read_text())
+    (run,) = open_project(saved).runs
+    assert run.bootstrap is not None and run.lag2 is not None
+    assert run.bootstrap.to_json() == Bootstrap.from_json(doc["bootstrap"], "bootstrap").to_json()
+    assert run.lag2.to_json() == doc["lag2_check"]

@@ -41,6 +41,21 @@ def test_a_study_project_round_trips_and_shows_its_person(tmp_path):
     assert _same_diary(project_diary(opened), study.people[1].diary)
 
 
+def test_the_batch_folder_moves_with_the_project(tmp_path):
+    # stored relative to the project's folder (as linked data): a project moved together
+    # with its batch results still finds them
+    first = tmp_path / "study"
+    (first / "results").mkdir(parents=True)
+    save_project(_project(StudyChoice("person", "P01", str(first / "results" / "people"))),
+                 first / "s.lagwise")
+    assert json.loads((first / "s.lagwise").read_text())["study"]["batch_folder"] == \
+        "results/people"
+    moved = tmp_path / "moved"
+    first.rename(moved)
+    assert open_project(moved / "s.lagwise").study.batch_folder == \
+        str(moved / "results" / "people")
+
+
 def test_a_version_1_file_opens_as_one_person(tmp_path):
     path = tmp_path / "one.lagwise"
     one = stacked({"P00": people_tables(1, days=4)["P00"]}).drop(columns="person")

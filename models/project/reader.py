@@ -182,7 +182,7 @@ def _project(doc: dict, folder: Path, upgraded: bool = False) -> tuple[Project, 
             raise FieldError("preparation",
                              f"is not a list of preparation steps ({error})") from None
     data = None if doc["data"] is None else _data(doc["data"], folder)
-    study = None if doc.get("study") is None else StudyChoice.from_json(doc["study"], "study")
+    study = None if doc.get("study") is None else _study(doc["study"], folder)
     if data is not None and data.table is not None:
         _check_roles(data.table, items, time)
         if study is not None and study.person_column not in set(data.table.columns):
@@ -220,6 +220,16 @@ def _time(value: Any) -> tuple[TimeSettings, int | None]:
     doc = jr.obj(value, "time", ("prompts_per_day",), closed=False)
     return settings, jr.integer(doc["prompts_per_day"], "time.prompts_per_day", 1, 10_000,
                                 null=True)
+
+
+def _study(value: Any, folder: Path) -> StudyChoice:
+    """The study, a relative batch folder taken from the project's folder."""
+    study = StudyChoice.from_json(value, "study")
+    stored = study.batch_folder
+    if stored and not Path(stored).is_absolute():
+        where = folder.joinpath(*PurePosixPath(stored).parts)
+        study = replace(study, batch_folder=os.path.normpath(where))
+    return study
 
 
 def _data(value: Any, folder: Path) -> ProjectData:

@@ -25,6 +25,7 @@ from lagwise.models.project.document import (
 from lagwise.models.project.reader import project_from_bytes
 from lagwise.models.project.table import table_to_json
 from lagwise.models.scales import scales_to_json
+from lagwise.models.study import StudyChoice
 
 
 def save_project(project: Project, path: str | Path) -> Project:
@@ -123,8 +124,17 @@ def _document(project: Project, folder: Path) -> dict:
         "results_current": project.result_current,
         **({} if project.responses is None else {"responses": project.responses.to_json()}),
         "notes": project.notes,
-        **({} if project.study is None else {"study": project.study.to_json()}),
+        **({} if project.study is None else {"study": _study_document(project.study, folder)}),
     }
+
+
+def _study_document(study: StudyChoice, folder: Path) -> dict:
+    """The study, its batch folder relative to the project's folder (as linked data), so
+    that a project moved together with its batch results still finds them."""
+    doc = study.to_json()
+    if study.batch_folder and Path(study.batch_folder).is_absolute():
+        doc["batch_folder"] = _relative(Path(study.batch_folder), folder)
+    return doc
 
 
 def _data_document(data: ProjectData, folder: Path) -> dict:
