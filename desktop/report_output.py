@@ -7,7 +7,8 @@ plot is SVG made in models.reporting.strips) and writes the file through
 models.atomic.write_output. The PDF is Qt's own: the same HTML, laid out by a QTextDocument
 on A4 or Letter pages, each page numbered, painted by QPdfWriter; the pictures are text
 objects of the document that paint themselves with the page's painter, so they stay vector
-graphics in the PDF. `png_pages` paints the same pages into pictures. `ReportExport` is the window's
+graphics in the PDF; a table's header row repeats on each page and no row is split between
+pages (`keep_rows_together`). `png_pages` paints the same pages into pictures. `ReportExport` is the window's
 File ▸ Export report… (the input is gathered in a worker; drawing and writing are quick).
 """
 
@@ -19,7 +20,8 @@ from pathlib import Path
 
 from PySide6.QtCore import QBuffer, QByteArray, QIODevice, QMarginsF, QObject, QRectF, QSizeF, Qt
 from PySide6.QtGui import (QColor, QImage, QPageLayout, QPageSize, QPainter, QPdfWriter,
-                           QPyTextObject, QTextCharFormat, QTextCursor, QTextDocument, QTextFormat)
+                           QPyTextObject, QTextCharFormat, QTextCursor, QTextDocument, QTextFormat,
+                           QTextTable, QTextTableCellFormat)
 from PySide6.QtSvg import QSvgRenderer
 from PySide6.QtWidgets import QFileDialog, QGraphicsScene, QMessageBox, QWidget
 
@@ -173,6 +175,62 @@ def _objects_for_pictures(document: QTextDocument) -> None:
 
 
 # ----- pages ---------------------------------------------------------------------------------
+def tables(document: QTextDocument) -> list[QTextTable]:
+    """The document's tables, in document order."""
+    found, frames = [], list(reversed(document.rootFrame().childFrames()))
+    while frames:
+        frame = frames.pop()
+        if isinstance(frame, QTextTable):
+            found.append(frame)
+        frames += reversed(frame.childFrames())
+    return found
+
+
+def row_extent(document: QTextDocument, table: QTextTable, row: int) -> tuple[float, float]:
+    """(top, bottom) of a table row's text in the paged document's coordinates."""
+    layout = document.documentLayout()
+    cells = [table.cellAt(row, c) for c in range(table.columns())]
+    return (min(layout.blockBoundingRect(c.firstCursorPosition().block()).top() for c in cells),
+            max(layout.blockBoundingRect(c.lastCursorPosition().block()).bottom() for c in cells))
+
+
+def keep_rows_together(document: QTextDocument) -> None:
+    """Move every table row that would start on one page and end on the next wholly to the
+    next page (below the repeated header): Qt's layout breaks a row between its lines, but
+    carries a row over whole once its top padding grows; the smallest growth that does (1,
+    2, 4, ... pixels) is kept. One pass in document order over the tables that cross a page
+    (a change moves only what follows it; a row taller than a page stays split)."""
+    height = document.pageSize().height()
+    layout = document.documentLayout()
+    for table in tables(document):
+        frame = layout.frameBoundingRect(table)
+        if frame.top() // height == (frame.bottom() - 1.0) // height:
+            continue
+        for row in range(table.format().headerRowCount(), table.rows()):
+            if not _straddles(document, table, row, height):
+                continue
+            cells = [table.cellAt(row, c) for c in range(table.columns())]
+            base = [cell.format().toTableCellFormat() for cell in cells]
+            extra = 1.0
+            while extra < height:
+                edit = QTextCursor(document)
+                edit.beginEditBlock()            # one layout for the whole row
+                for cell, fmt in zip(cells, base):
+                    grown = QTextTableCellFormat(fmt)
+                    grown.setTopPadding(fmt.topPadding() + extra)
+                    cell.setFormat(grown)
+                edit.endEditBlock()
+                if not _straddles(document, table, row, height):
+                    break
+                extra *= 2.0
+
+
+def _straddles(document: QTextDocument, table: QTextTable, row: int, height: float) -> bool:
+    """The row starts on one page and ends on another, though it would fit on one."""
+    top, bottom = row_extent(document, table, row)
+    return top // height != (bottom - 1.0) // height and bottom - top < 0.9 * height
+
+
 class Pages:
     """The report laid out on pages of `page_size` for a QPdfWriter writing into memory."""
 
@@ -204,6 +262,7 @@ class Pages:
                               report_html(inp, figures))
         _objects_for_pictures(self.document)
         self.document.setPageSize(QSizeF(self.paint.width(), self.paint.height() - self.footer))
+        keep_rows_together(self.document)
 
     @property
     def count(self) -> int:

@@ -163,7 +163,9 @@ def test_a_named_run_is_reported_with_its_own_estimates(demo_project):
     assert inp.run == first and inp.result is demo_project.result and inp.current
     assert report_input(project).result is second
     text = " ".join(Page(report_html(inp, [])).text)
-    assert f"(run {first})" in text
+    assert f"({first})" in text and first.startswith("Run ")      # not "(run Run 1)"
+    named = " ".join(Page(report_html(report_input(project), [])).text)
+    assert "(run independent innovations)" in named
 
 
 def test_copied_tables_are_tab_separated_and_html():
@@ -222,7 +224,7 @@ def test_the_readme_report_line_runs(tmp_path, monkeypatch, capsys):
     out = Path(chosen[-1][chosen[-1].index("--out") + 1])
     page = Page(out.read_text(encoding="utf-8"))
     assert "svg" in page.tags and "script" not in page.tags
-    assert "Lag-2 check" not in page.text      # not saved with the project
+    assert "Lag-2 check" in page.text   # the fit line's --lag2-check is saved with its run
 
 
 def test_the_guide_explains_the_report():

@@ -50,7 +50,7 @@ def report_html(inp: ReportInput, figures: Sequence[Figure] = (), when: str | No
     """The whole report of `inp` as HTML text; `when` is the time it was made (default now)."""
     result = inp.result
     when = when or datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
-    title = f"Lagwise report: {inp.title}" + (f" (run {inp.run})" if inp.run else "")
+    title = f"Lagwise report: {inp.title}" + (_run_words(inp.run) if inp.run else "")
     body = [f"<h1>{escape(title)}</h1>",
             f'<p class="small">Made {escape(when)} by Lagwise {escape(inp.version)}.</p>',
             "<h2>Question</h2>", f"<p>{escape(question(inp))}</p>",
@@ -125,3 +125,8 @@ def warnings_section(inp: ReportInput) -> list[str]:
         return out + [f"<p>{escape(all_clear(None))}</p>"]
     return out + ["<ul>", *(f"<li><b>{escape(a.title)}.</b> {escape(a.explanation)}</li>"
                             for a in inp.warnings), "</ul>"]
+
+
+def _run_words(run: str) -> str:
+    """" (Run 2)" for a default name, " (run baseline)" for a name of the user's own."""
+    return f" ({run})" if run.startswith("Run ") else f" (run {run})"

@@ -150,6 +150,38 @@ def test_the_pages_are_painted_to_pictures(lagwise_app, demo_input, artifacts):
     assert abs(first.width() - 826.8) < 1 and abs(first.height() - 1169.3) < 1
 
 
+@pytest.mark.parametrize("size", list(PAGE_SIZES))
+def test_no_table_row_is_split_between_pages(lagwise_app, demo_input, size):
+    # every line of every body row lies on one page (Qt alone broke rows between lines)
+    from PySide6.QtGui import QTextTable
+
+    document = Pages(demo_input, size).document
+    height = document.pageSize().height()
+    layout = document.documentLayout()
+    frames, rows = [document.rootFrame()], 0
+    while frames:
+        frame = frames.pop()
+        frames += frame.childFrames()
+        if not isinstance(frame, QTextTable):
+            continue
+        for r in range(frame.format().headerRowCount(), frame.rows()):
+            pages = set()
+            for c in range(frame.columns()):
+                block = frame.cellAt(r, c).firstCursorPosition().block()
+                last = frame.cellAt(r, c).lastCursorPosition().block()
+                while block.isValid():
+                    top = layout.blockBoundingRect(block).top()
+                    for i in range(block.layout().lineCount()):
+                        line = block.layout().lineAt(i)
+                        pages.add((top + line.y() + line.height() / 2) // height)
+                    if block == last:
+                        break
+                    block = block.next()
+            assert len(pages) == 1, (r, pages)
+            rows += 1
+    assert rows > 40
+
+
 def test_write_report_chooses_by_suffix(lagwise_app, demo_input, tmp_path):
     html = write_report(demo_input, tmp_path / "r.HTML")
     assert html.read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
