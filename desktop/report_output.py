@@ -8,8 +8,9 @@ models.atomic.write_output. The PDF is Qt's own: the same HTML, laid out by a QT
 on A4 or Letter pages, each page numbered, painted by QPdfWriter; the pictures are text
 objects of the document that paint themselves with the page's painter, so they stay vector
 graphics in the PDF; a table's header row repeats on each page and no row is split between
-pages (`keep_rows_together`). `png_pages` paints the same pages into pictures. `ReportExport` is the window's
-File ▸ Export report… (the input is gathered in a worker; drawing and writing are quick).
+pages (`keep_rows_together`). `png_pages` paints the same pages into pictures.
+`ReportExport` is the window's File ▸ Export report… (the input is gathered in a worker;
+drawing and writing are quick).
 """
 
 from __future__ import annotations
