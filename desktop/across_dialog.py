@@ -26,9 +26,10 @@ from PySide6.QtWidgets import (
 )
 
 from lagwise.desktop.export import ask_and_save, export_menu, menu_button
-from lagwise.models.across import NOT_MULTILEVEL, Across, across_people, estimates_wide_csv
+from lagwise.models.across import (NOT_MULTILEVEL, STUDY_CAUTIONS, Across, across_people,
+                                   estimates_wide_csv)
 from lagwise.models.kinds import parameter_words
-from lagwise.models.reporting.study import STUDY_CAUTIONS, strip_figure
+from lagwise.models.reporting.study import strip_figure
 from lagwise.models.batchfiles import read_batch
 from lagwise.models.numbers import fmt
 from lagwise.models.personfit import PersonOutcome
@@ -77,7 +78,8 @@ class AcrossDialog(QDialog):
                                   "75th percentile", "Interquartile range"))
         self.people = self._tab("People", "people", _people_rows(outcomes),
                                 ("Person", "Status", "Prompts answered", "Warnings or reason"))
-        self.wide = _text_model(list(csv.reader(io.StringIO(estimates_wide_csv(across)))))
+        self.wide = _text_model([row for row in csv.reader(io.StringIO(estimates_wide_csv(across)))
+                                 if not row[0].startswith("#")])    # the caution line
         self.estimates = self._tab(
             "Estimates", "estimates", _estimate_rows(across),
             ("Person", "Parameter", "Estimate", "SE", "95% low", "95% high", "Warnings"),

@@ -30,6 +30,16 @@ from lagwise.models.results import Parameter
 NOT_MULTILEVEL = ("These are person-specific models, each estimated from one person's diary "
                   "alone; the summaries across people are counts and spreads of those "
                   "separate estimates, not a multilevel model.")
+STUDY_CAUTIONS = (
+    "Each person's model is estimated from one diary of a limited number of prompts: the "
+    "estimates are uncertain, and an interval that includes 0 is not evidence of no effect.",
+    "Counting people whose interval excludes 0 is a description of these separate models, not "
+    "a test of an effect in a population.",
+    "These results are not a diagnosis; interpret them with clinical judgement and local "
+    "practice.",
+)
+# the last line of the batch's CSV tables (pandas: read_csv(..., comment="#"))
+CAUTION_LINE = "# " + " ".join((NOT_MULTILEVEL, *STUDY_CAUTIONS)) + "\n"
 LAGGED = (Kind.INERTIA, Kind.CROSS_LAGGED, Kind.LAG2)
 
 
@@ -99,6 +109,7 @@ class Across:
 
     def to_json(self) -> dict:
         return {"format": "lagwise-batch-summary", "note": NOT_MULTILEVEL,
+                "cautions": list(STUDY_CAUTIONS),
                 "people": list(self.people), "fitted": list(self.fitted),
                 "not_fitted": [{"person": p, "status": s, "reason": r}
                                for p, s, r in self.unfitted],
@@ -123,7 +134,8 @@ def across_people(outcomes: Sequence[PersonOutcome]) -> Across:
 
 
 def estimates_csv(across: Across) -> str:
-    """The long table: person, parameter, estimate, se, lower, upper (full precision)."""
+    """The long table: person, parameter, estimate, se, lower, upper (full precision); the
+    last line is CAUTION_LINE."""
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow(("person", "parameter", "estimate", "se", "lower", "upper"))
@@ -131,12 +143,13 @@ def estimates_csv(across: Across) -> str:
         lower, upper = row.interval or ("", "")
         se = "" if row.parameter.se is None else row.parameter.se
         writer.writerow((row.person, row.name, row.parameter.estimate, se, lower, upper))
-    return out.getvalue()
+    return out.getvalue() + CAUTION_LINE
 
 
 def estimates_wide_csv(across: Across) -> str:
     """The wide table: one row per fitted person; for each free parameter (in the order the
-    people's fits list them) its estimate, lower and upper 95% limit (full precision)."""
+    people's fits list them) its estimate, lower and upper 95% limit (full precision); the
+    last line is CAUTION_LINE."""
     names = list(dict.fromkeys(row.name for row in across.rows))
     cells: dict[str, dict[str, Row]] = {}
     for row in across.rows:
@@ -152,7 +165,7 @@ def estimates_wide_csv(across: Across) -> str:
             lower, upper = (row.interval or ("", "")) if row is not None else ("", "")
             line += ["" if row is None else row.parameter.estimate, lower, upper]
         writer.writerow(line)
-    return out.getvalue()
+    return out.getvalue() + CAUTION_LINE
 
 
 def format_across(across: Across) -> str:

@@ -14,7 +14,7 @@ from datetime import datetime, timezone
 from html import escape
 from pathlib import Path
 
-from lagwise.models.across import LAGGED, NOT_MULTILEVEL, Across, across_people
+from lagwise.models.across import LAGGED, NOT_MULTILEVEL, STUDY_CAUTIONS, Across, across_people
 from lagwise.models.batchfiles import read_batch
 from lagwise.models.estimators import ESTIMATORS
 from lagwise.models.kinds import parameter_words
@@ -23,16 +23,6 @@ from lagwise.models.personfit import PersonOutcome
 from lagwise.models.reporting.html import POLICY, STYLE, Figure
 from lagwise.models.reporting.journal import Table, interval, table_html
 from lagwise.models.reporting.strips import strip_svg
-
-STUDY_CAUTIONS = (
-    "Each person's model is estimated from one diary of a limited number of prompts: the "
-    "estimates are uncertain, and an interval that includes 0 is not evidence of no effect.",
-    "Counting people whose interval excludes 0 is a description of these separate models, not "
-    "a test of an effect in a population.",
-    "These results are not a diagnosis; interpret them with clinical judgement and local "
-    "practice.",
-)
-
 
 @dataclass(frozen=True, eq=False)
 class StudyInput:

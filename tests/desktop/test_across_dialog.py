@@ -13,12 +13,11 @@ from batch_people import RECIPE, people_tables, stacked
 from PySide6.QtWidgets import QFileDialog, QPushButton
 
 from lagwise.desktop.across_dialog import AcrossDialog
-from lagwise.models.across import NOT_MULTILEVEL
+from lagwise.models.across import CAUTION_LINE, NOT_MULTILEVEL, STUDY_CAUTIONS
 from lagwise.models.batch import run_batch
 from lagwise.models.errors import DataError
 from lagwise.models.numbers import fmt
 from lagwise.models.personfit import BatchSettings
-from lagwise.models.reporting.study import STUDY_CAUTIONS
 from lagwise.models.study import study_from_frame
 from two_state_model import SPEC
 
@@ -48,14 +47,18 @@ def test_the_view_shows_the_batch_summary(lagwise_app, qtbot, tmp_path, monkeypa
     assert [row[:2] for row in people] == [[o.person, o.status] for o in outcome.outcomes]
     assert people[-1][3] == outcome.outcomes[-1].reason
     # every fitted person's every free parameter, as estimates.csv holds it (long)
-    long = list(csv.DictReader(io.StringIO((tmp_path / "estimates.csv").read_text())))
+    text = (tmp_path / "estimates.csv").read_text()
+    assert text.endswith(CAUTION_LINE)          # the cautions close the file
+    long = list(csv.DictReader(io.StringIO(text.removesuffix(CAUTION_LINE))))
     shown = _cells(dialog.estimates)
     assert len(shown) == len(long) and len({row[0] for row in shown}) == 3
     for row, written in zip(shown, long):
         assert row[0] == written["person"] and row[2] == fmt(float(written["estimate"]))
         assert row[4:6] == [fmt(float(written["lower"])), fmt(float(written["upper"]))]
     # one row per person: the same numbers, wide
-    wide = list(csv.DictReader(io.StringIO((tmp_path / "estimates-wide.csv").read_text())))
+    text = (tmp_path / "estimates-wide.csv").read_text()
+    assert text.endswith(CAUTION_LINE)
+    wide = list(csv.DictReader(io.StringIO(text.removesuffix(CAUTION_LINE))))
     assert [w["person"] for w in wide] == ["P00", "P01", "P02"]
     for written in long:
         person = next(w for w in wide if w["person"] == written["person"])
