@@ -4,11 +4,12 @@ The assumed truth is the current result (or, before an estimate, the model's sta
 default values: models.plantruth). The designs are typed as a list of days with the prompts
 per day, the answered share and its pattern (estimator and night rule: the analysis's own); Run asks the window to simulate them in its
 worker (`runRequested`), and `show_plan` shows the table per path and design, the power
-curve over days with its Monte Carlo band and the 80% line, and the plain sentences.
+curve over days with its Monte Carlo range and the 80% line, and the plain sentences.
 """
 
 from __future__ import annotations
 
+import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QStandardItem, QStandardItemModel
@@ -66,7 +67,8 @@ class PlanPage(QWidget):
         self.curve.setLabel("bottom", "days")
         self.curve.setLabel("left", "power")
         self.curve.setYRange(0.0, 1.0)
-        self.curve.addLegend(offset=(10, 10))
+        self.curve.addLegend(offset=(10, 10), brush=pg.mkBrush(255, 255, 255, 215),
+                             pen=pg.mkPen(style.MUTED, width=0.5))   # lines stay readable
         body.addWidget(self.curve, 2)
         layout.addLayout(body, 1)
         self.sentences = QLabel()
@@ -174,19 +176,25 @@ class PlanPage(QWidget):
         self.sentences.setText("\n".join(stopped + plan.sentences()))
 
     def _draw_curve(self, plan: Plan) -> None:
+        """Power over days per path, with its Monte Carlo 95% range as an error bar; the paths'
+        points are set a little apart along the days so that their bars do not cover each
+        other."""
         self.curve.clear()
-        days = [s.design.days for s in plan.designs]
-        for n, path in enumerate(plan.designs[0].paths):
-            if path.truth == 0.0:
-                continue      # a path that is 0 in the truth has no power to plan for
+        days = np.array([s.design.days for s in plan.designs], dtype=float)
+        drawn = [n for n, path in enumerate(plan.designs[0].paths)
+                 if path.truth != 0.0]   # a path that is 0 in the truth has no power to plan for
+        spread = 0.015 * max(float(np.ptp(days)), 1.0)
+        for k, n in enumerate(drawn):
+            path = plan.designs[0].paths[n]
             colour = style.SERIES[n % len(style.SERIES)]
-            power = [s.paths[n].power for s in plan.designs]
-            err = [s.paths[n].power_se for s in plan.designs]
-            low = pg.PlotDataItem(days, [max(p - 1.96 * e, 0.0) for p, e in zip(power, err)])
-            high = pg.PlotDataItem(days, [min(p + 1.96 * e, 1.0) for p, e in zip(power, err)])
-            band = pg.FillBetweenItem(low, high, brush=pg.mkBrush(colour + "33"))
-            self.curve.addItem(band)
-            self.curve.plot(days, power, pen=pg.mkPen(colour, width=2), symbol="o",
+            x = days + (k - (len(drawn) - 1) / 2) * spread
+            power = np.array([s.paths[n].power for s in plan.designs])
+            err = 1.96 * np.array([s.paths[n].power_se for s in plan.designs])
+            self.curve.addItem(pg.ErrorBarItem(
+                x=x, y=power, top=np.minimum(power + err, 1.0) - power,
+                bottom=power - np.maximum(power - err, 0.0), beam=0.6 * spread,
+                pen=pg.mkPen(colour, width=1)))
+            self.curve.plot(x, power, pen=pg.mkPen(colour, width=2), symbol="o",
                             symbolSize=6, symbolBrush=colour, name=path.label)
         line = pg.InfiniteLine(pos=TARGET, angle=0,
                                pen=pg.mkPen(style.MUTED, width=1, style=Qt.PenStyle.DashLine),
