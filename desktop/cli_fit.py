@@ -25,6 +25,7 @@ from lagwise.models.atomic import write_output
 from lagwise.models.errors import LagwiseError, ProjectError, SpecError
 from lagwise.models.estimate import fit
 from lagwise.models.lag2check import Lag2Check, lag2_check
+from lagwise.models.parallel import scheduler_address
 from lagwise.models.project import (
     Project, embed_file, is_project_file, open_project, project_diary, save_project,
     with_estimate,
@@ -54,8 +55,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              "printed, and written to the JSON as \"responses\"")
     boot = parser.add_argument_group("bootstrap")
     add_bootstrap_arguments(boot)
-    boot.add_argument("--jobs", type=in_range(JOBS), metavar="J",
-                      help="worker processes for the bootstrap (default: every core)")
+    where = boot.add_mutually_exclusive_group()
+    where.add_argument("--jobs", type=in_range(JOBS), metavar="J",
+                       help="worker processes for the bootstrap (default: every core)")
+    where.add_argument("--scheduler", metavar="ADDRESS",
+                       help="run the bootstrap on a running Dask cluster instead, "
+                            "e.g. tcp://HOST:8786")
     parser.add_argument("--json", metavar="OUT", help="write the result as JSON to OUT")
     parser.add_argument("--save", metavar="PROJECT.lagwise",
                         help="also save the data, model, settings and result (with the "
@@ -131,7 +136,8 @@ def add_bootstrap_arguments(group) -> None:
                        help="seed of the bootstrap (default 0): the same seed, the same answer")
 
 
-PROJECT_RUN_OPTIONS = ("data", "json", "save", "lag2_check", "horizon", "bootstrap", "seed", "jobs")
+PROJECT_RUN_OPTIONS = ("data", "json", "save", "lag2_check", "horizon", "bootstrap", "seed", "jobs",
+                       "scheduler")
 
 
 def parse_states(texts: list[str] | None) -> tuple[State, ...]:
@@ -281,15 +287,16 @@ def save_fitted(args: argparse.Namespace, project: Project | None, spec: ModelSp
 def check_bootstrap_arguments(args: argparse.Namespace) -> None:
     """Refuse bootstrap options without a bootstrap before anything is fitted (their ranges
     are checked when they are parsed)."""
-    if args.bootstrap is None and (args.jobs is not None or args.seed != 0):
-        raise SpecError("--seed and --jobs go with --bootstrap N")
+    if args.bootstrap is None and (args.jobs is not None or args.seed != 0 or args.scheduler):
+        raise SpecError("--seed, --jobs and --scheduler go with --bootstrap N")
+    scheduler_address(args.scheduler)      # a mistyped address, before anything is fitted
 
 
 def run_bootstrap(args: argparse.Namespace, diary, spec: ModelSpec, options: FitOptions,
                   result) -> Bootstrap:
     """The bootstrap of `result` asked for with --bootstrap, with progress on stderr."""
     return bootstrap(diary, spec, options, result, replicates=args.bootstrap, seed=args.seed,
-                     jobs=args.jobs, monitor=StderrProgress())
+                     jobs=args.jobs, monitor=StderrProgress(), scheduler=args.scheduler)
 
 
 class StderrProgress:

@@ -1,7 +1,7 @@
 """Where long runs compute: this computer's cores or a Dask cluster (Model ▸ Computing…).
 
 The setting is the user's, not the project's: it is kept in the application settings
-(QSettings) and used by "Estimate every person" and the Plan page. An empty scheduler
+(QSettings) and used by "Estimate every person", the bootstrap and the Plan page. An empty scheduler
 address means this computer, with the chosen number of worker processes; an address
 (models.parallel.scheduler_address) sends the work to the cluster's workers.
 """

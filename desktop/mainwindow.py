@@ -427,8 +427,9 @@ class MainWindow(QMainWindow):
         return True
 
     def run_bootstrap(self, replicates: int = 500) -> bool:
-        """Start the bootstrap of the shown estimate (models.bootstrap.bootstrap, on every
-        core) in the worker; False (with a message) when there is no current estimate."""
+        """Start the bootstrap of the shown estimate (models.bootstrap.bootstrap, on this
+        computer's cores or a cluster: Model ▸ Computing…) in the worker; False (with a
+        message) when there is no current estimate."""
         result = self.session.result
         if result is None or not self.session.result_is_current():
             QMessageBox.information(self, "Estimate first", "The bootstrap checks the present "
@@ -439,8 +440,10 @@ class MainWindow(QMainWindow):
             return False
         self._running, self._running_document = snapshot, self.session.document
         self._bootstrapped = result
+        compute = load_compute()
         self.worker.start(bootstrap, snapshot.diary, snapshot.spec, snapshot.options, result,
-                          replicates=int(replicates), job=JOB_BOOTSTRAP)
+                          replicates=int(replicates), jobs=compute.jobs,
+                          scheduler=compute.scheduler, job=JOB_BOOTSTRAP)
         return True
 
     def run_plan(self, truth, designs, replications: int, seed: int) -> None:

@@ -229,12 +229,13 @@ class _Work:
 
 def bootstrap(diary: Diary, spec: ModelSpec, options: FitOptions, result: FitResult,
               replicates: int = 500, seed: int = 0, jobs: int | None = None,
-              monitor: Monitor | None = None) -> Bootstrap:
+              monitor: Monitor | None = None, scheduler: str | None = None) -> Bootstrap:
     """Bootstrap `result` (the fit of `spec` to `diary` with `options`): `replicates`
-    resampled diaries refitted in `jobs` worker processes (None: every core; through
-    models.parallel). Reports progress to `monitor` as batches finish; Cancelled stops the
-    workers and returns nothing. Raises EstimationError when the diary cannot be resampled
-    or no replicate converged, ValueError for jobs < 1."""
+    resampled diaries refitted in `jobs` worker processes (None: every core), or on the
+    Dask cluster at `scheduler` (models.parallel). Reports progress to `monitor` as batches
+    finish; Cancelled stops the workers and returns nothing. Raises EstimationError when the
+    diary cannot be resampled or no replicate converged, ValueError for jobs < 1,
+    LagwiseError when the scheduler cannot be reached."""
     if not 1 <= replicates <= MAX_REPLICATES:
         raise EstimationError(f"Ask for 1 to {MAX_REPLICATES} bootstrap replicates, not {replicates}.")
     if result.spec != spec:
@@ -251,7 +252,7 @@ def bootstrap(diary: Diary, spec: ModelSpec, options: FitOptions, result: FitRes
     estimates, kept = np.full((replicates, n_free), np.nan), np.zeros(replicates, bool)
     checkpoint(monitor, 0.0, f"Bootstrap: 0 of {replicates} replicates")
     done = 0
-    outputs = run_tasks(_run_batch, tasks, jobs=jobs)
+    outputs = run_tasks(_run_batch, tasks, jobs=jobs, scheduler=scheduler)
     try:
         for batch in outputs:
             for i, values in batch:

@@ -258,3 +258,19 @@ def test_coverage_study_of_the_lagged_paths():
     assert n == 600
     assert 0.92 <= coverage <= 0.98
     assert 0.85 <= width <= 1.2
+
+
+def test_a_dask_cluster_gives_the_same_answer(small):
+    # the replicates' seeds travel with them: a LocalCluster (dask.distributed) on this
+    # machine gives the estimates of one local worker, in the same order
+    from distributed import LocalCluster
+
+    diary, result = small
+    one = bootstrap(diary, SPEC, result.options, result, replicates=8, seed=5, jobs=1)
+    # one worker thread: BLAS threads are set per process, so fits must not overlap in one
+    with LocalCluster(host="127.0.0.1", protocol="tcp://", processes=False, n_workers=1,
+                      threads_per_worker=1, dashboard_address=None) as cluster:
+        dask = bootstrap(diary, SPEC, result.options, result, replicates=8, seed=5,
+                         scheduler=cluster.scheduler_address)
+    np.testing.assert_array_equal(one.estimates, dask.estimates)
+    assert one.failed == dask.failed

@@ -45,6 +45,8 @@ def test_bootstrap_report_json_and_progress(tmp_path, capsys):
     (["--bootstrap", "0"], "--bootstrap: the number of bootstrap replicates should be"),
     (["--jobs", "2"], "go with --bootstrap"),
     (["--bootstrap", "5", "--jobs", "0"], "--jobs: the number of worker processes should be"),
+    (["--scheduler", "tcp://127.0.0.1:8786"], "--scheduler go with --bootstrap"),
+    (["--bootstrap", "5", "--scheduler", "no address"], "is not a scheduler address"),
 ])
 def test_bad_bootstrap_options_are_one_line_exit_2(args, words, capsys):
     assert main(["fit", str(DEMO), *GRID, *STATES, *args]) == 2
