@@ -198,8 +198,8 @@ def row_extent(document: QTextDocument, table: QTextTable, row: int) -> tuple[fl
 def keep_rows_together(document: QTextDocument) -> None:
     """Move every table row that would start on one page and end on the next wholly to the
     next page (below the repeated header): Qt's layout breaks a row between its lines, but
-    carries a row over whole once its top padding grows; the smallest growth that does (1,
-    2, 4, ... pixels) is kept. One pass in document order over the tables that cross a page
+    carries a row over whole once its top padding grows; the smallest growth that does (8,
+    16, 32, ... pixels, under a millimetre to start with) is kept. One pass in document order over the tables that cross a page
     (a change moves only what follows it; a row taller than a page stays split)."""
     height = document.pageSize().height()
     layout = document.documentLayout()
@@ -212,7 +212,7 @@ def keep_rows_together(document: QTextDocument) -> None:
                 continue
             cells = [table.cellAt(row, c) for c in range(table.columns())]
             base = [cell.format().toTableCellFormat() for cell in cells]
-            extra = 1.0
+            extra = 8.0
             while extra < height:
                 edit = QTextCursor(document)
                 edit.beginEditBlock()            # one layout for the whole row
