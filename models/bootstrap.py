@@ -4,10 +4,10 @@
 days when the days are independent, else the stationary block bootstrap of Politis & Romano
 1994), refits the model to each with the fast refit path (`fit(..., standard_errors=False,
 start=result)`) and keeps the free parameters of every converged refit. Replicates run in
-joblib worker processes (loky, through models.parallel), in batches that each carry one
-copy of the inputs; replicate i draws with its own generator from `numpy.random.SeedSequence(seed).spawn(replicates)[i]`,
-so the answer depends on the seed only, never on the number of workers or the order in which
-batches finish. Refits that fail or do not converge are counted and left out.
+joblib worker processes (loky) or on a Dask cluster, through models.parallel, in batches
+that each carry one copy of the inputs; replicate i draws with its own generator from
+`numpy.random.SeedSequence(seed).spawn(replicates)[i]`, so the answer depends on the seed
+only, never on the number of workers or the order in which batches finish. Refits that fail or do not converge are counted and left out.
 
 From the estimates (Efron & Tibshirani 1993, "An Introduction to the Bootstrap"):
 - the percentile interval (Efron 1979; E&T ch. 13): the alpha/2 and 1 - alpha/2 quantiles of
