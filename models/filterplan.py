@@ -36,9 +36,9 @@ class FilterPlan:
     `patterns[node_pattern[j]]`, the node of the previous occasion `node_parent[j]` (-1 at a
     segment start), reached by a step of class `node_step[j]` (0 at segment starts and when all
     steps are alike); `lone[j]` when no other history node has node j's step class (so no
-    other node can share its covariances); `occasion_node` (n,) gives each occasion's node and `step` (n,) the class
-    of the step that reaches it. The nodes of position b
-    are levels[b] = (lo, hi) for the first positions; those from levels[-1][1] on are chains,
+    other node can share its covariances); `occasion_node` (n,) gives each occasion's node
+    and `step` (n,) the class of the step that reaches it. The nodes of position b are
+    levels[b] = (lo, hi) for the first positions; those from levels[-1][1] on are chains,
     the rest of each longer segment: one node per occasion, each after its parent.
     """
 
