@@ -1,6 +1,7 @@
 """Two or more runs side by side: fit figures, every parameter, and likelihood-ratio tests.
 
-`compare(runs)` lines the runs up in the order given. Fit figures and parameters (aligned by
+`compare(runs)` lines the runs up in the order given. Fit figures (the calibrated test's
+first, where the runs have one; a figure no run has is left out) and parameters (aligned by
 kind, from, to and lag) are rows with one value per run and, for every run after the first,
 its difference from the first. A run estimated from other data or other preparation steps
 than the first (another data fingerprint, models.runs) is marked not comparable and takes
@@ -33,8 +34,12 @@ from lagwise.models.numbers import fmt, p_phrase
 from lagwise.models.results import FitIndices, FitResult
 from lagwise.models.runs import Run
 
-# (label, FitIndices field, fmt style) of the fit figures compared
-FIGURES = (("Chi-square", "chi2", "number"), ("Degrees of freedom", "df", "int"),
+# (label, FitIndices field (scaled.*: of its calibrated test), fmt style) of the fit figures
+# compared, the calibrated ones first as on the Fit tab
+FIGURES = (("Calibrated chi-square", "scaled.chi2", "number"),
+           ("Calibrated df", "scaled.df", "number"), ("Calibrated p", "scaled.p", "p"), ("Calibrated RMSEA", "scaled.rmsea", "number"),
+           ("Calibrated CFI", "scaled.cfi", "number"), ("Calibrated TLI", "scaled.tli", "number"),
+           ("Chi-square", "chi2", "number"), ("Degrees of freedom", "df", "int"),
            ("p (chi-square)", "p", "p"), ("RMSEA", "rmsea", "number"), ("CFI", "cfi", "number"),
            ("TLI", "tli", "number"), ("SRMR", "srmr", "number"),
            ("Log-likelihood", "loglik", "number"), ("AIC", "aic", "number"),
@@ -124,8 +129,9 @@ def compare(runs: tuple[Run, ...] | list[Run]) -> Comparison:
              if not same]
     notes += [f"{run.name} did not converge: its figures may mislead." for run in runs
               if not run.result.converged]
-    figures = tuple(Row("Fit", label, tuple(_number(getattr(run.result.fit, key)) for run in runs),
+    figures = tuple(Row("Fit", label, tuple(_number(_figure(run.result.fit, key)) for run in runs),
                         style) for label, key, style in FIGURES)
+    figures = tuple(row for row in figures if any(v is not None for v in row.values))
     tests = tuple(test for i, a in enumerate(runs) for b in runs[i + 1:]
                   if (test := likelihood_ratio(a, b)) is not None)
     return Comparison(tuple(run.name for run in runs), comparable, figures,
@@ -190,6 +196,13 @@ def _parameter_rows(runs: tuple[Run, ...]) -> tuple[Row, ...]:
     return tuple(Row(Kind(kind).title, parameter_words(kind, from_, to, lag),
                      tuple(_number(table.get((kind, from_, to, lag))) for table in tables))
                  for kind, from_, to, lag in keys)
+
+
+def _figure(fit: FitIndices, key: str):
+    """A FitIndices field, or ("scaled.x") a field of its calibrated test (None without one)."""
+    owner, _, name = key.rpartition(".")
+    holder = getattr(fit, owner) if owner else fit
+    return None if holder is None else getattr(holder, name)
 
 
 def _number(value) -> float | None:

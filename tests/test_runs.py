@@ -233,6 +233,8 @@ def test_likelihood_ratio_with_the_exact_estimator_is_not_called_approximate():
     assert test.lr == pytest.approx(2 * (full.fit.loglik - nested.fit.loglik), rel=1e-12)
     assert test.p == chi2.sf(test.lr, test.df) and test.df == 1
     assert test.exact and "approximate" not in test.sentence
+    # the exact likelihood has no calibrated window test: no such rows
+    assert not any(row.label.startswith("Calibrated") for row in compare(project.runs).figures)
 
 
 def test_compare_lines_up_every_parameter_with_its_difference(two_runs):
@@ -248,6 +250,10 @@ def test_compare_lines_up_every_parameter_with_its_difference(two_runs):
     loglik = next(row for row in comparison.figures if row.label == "Log-likelihood")
     assert loglik.values == (full.fit.loglik, nested.fit.loglik)
     assert len(comparison.header()) == len(comparison.table()[0]) == 5
+    # the calibrated test first, as on the Fit tab
+    first = comparison.figures[0]
+    assert first.label == "Calibrated chi-square"
+    assert first.values == (full.fit.scaled.chi2, nested.fit.scaled.chi2)
 
 
 def test_runs_on_other_preparation_or_other_data_are_not_comparable(two_runs):

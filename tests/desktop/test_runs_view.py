@@ -141,7 +141,8 @@ def test_reopen_makes_the_run_current_and_its_model_the_model(window, qtbot):
     assert panel.current_label.text() == "Current run: Run 2"
 
 
-def test_compare_shows_the_likelihood_ratio_test_read_off_the_screen(window, qtbot, tmp_path):
+def test_compare_shows_the_likelihood_ratio_test_read_off_the_screen(window, qtbot, tmp_path,
+                                                                     artifacts):
     panel = window.results.runs
     panel.select("Run 1", "Run 2")
     qtbot.mouseClick(panel.compare_button, Qt.MouseButton.LeftButton)
@@ -163,6 +164,7 @@ def test_compare_shows_the_likelihood_ratio_test_read_off_the_screen(window, qtb
            / (nested.df - full.df))
     assert found.group(3) == fmt(c_d) and found.group(4) == fmt(lr / c_d)
     assert found.group(5) == fmt(chi2.sf(lr / c_d, 1), "p")
+    window.grab().save(str(artifacts / "compare-two-runs-1280x800.png"))
     # the table exports like the other tables, ending with the caution line
     out = save_table_csv(view.model, tmp_path / "compare.csv", view.caution)
     lines = out.read_text(encoding="utf-8").splitlines()
