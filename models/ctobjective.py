@@ -15,6 +15,7 @@ median interval.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import replace
 from typing import TYPE_CHECKING, Any, Callable
 
@@ -189,6 +190,24 @@ def probed_diagonal(gradient: Callable[[np.ndarray], np.ndarray], theta: np.ndar
     return total / (probes * steps)
 
 
+def _real_log(b: np.ndarray) -> np.ndarray | None:
+    """logm(B) when it is real and accurate: every eigenvalue inside the unit circle, away
+    from 0 and off the negative real axis (where no real logarithm exists); else None."""
+    if not np.all(np.isfinite(b)):
+        return None
+    lam = np.linalg.eigvals(b)
+    on_negative_axis = (np.abs(lam.imag) <= 1e-12 * np.maximum(np.abs(lam), 1.0)) & (lam.real <= 0)
+    if not np.all((np.abs(lam) < 1) & (np.abs(lam) > 1e-6) & ~on_negative_axis):
+        return None
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)    # "may be inaccurate": not used
+        try:
+            a = np.real_if_close(logm(b))
+        except (RuntimeWarning, ValueError, np.linalg.LinAlgError):
+            return None
+    return None if np.iscomplexobj(a) or not np.all(np.isfinite(a)) else a
+
+
 def continuous_start(named: dict, spec: ModelSpec, interval: float) -> dict:
     """Drift and diffusion named by (kind, from, to) from a discrete lag-1 estimate over
     `interval`: A = logm(B) / interval when that is real and stable (else the diagonal
@@ -203,8 +222,9 @@ def continuous_start(named: dict, spec: ModelSpec, interval: float) -> dict:
             if j <= i:
                 psi[i, j] = psi[j, i] = named.get((str(Kind.INNOVATION), fr, to), 1.0 if i == j else 0.0)
     mask = spec.path_mask(1)
-    a = np.real_if_close(logm(b)) / interval if np.all(np.abs(np.linalg.eigvals(b)) < 1) else None
-    if a is None or np.iscomplexobj(a) or np.max(np.linalg.eigvals(a * mask).real) >= 0:
+    a = _real_log(b)
+    a = None if a is None else a / interval
+    if a is None or np.max(np.linalg.eigvals(a * mask).real) >= 0:
         a = np.diag(np.log(np.clip(np.diag(b), 0.05, 0.95))) / interval
     a = a * mask
     s = solve_lyapunov(b, psi) if np.max(np.abs(np.linalg.eigvals(b))) < 1 else psi

@@ -285,6 +285,18 @@ def check_fit_or_plain_error(diary: Diary, spec, estimator: str) -> None:
     assert [str(w.message) for w in caught if issubclass(w.category, RuntimeWarning)] == []
 
 
+def test_a_start_whose_lag_1_path_has_no_real_logarithm_gives_no_warning():
+    # found by the slow property test: two identical items, seven prompts over four days;
+    # the window estimate's inertia had no accurate real logarithm (scipy warned "logm
+    # result may be inaccurate"), and the continuous-time start must fall back quietly
+    values = np.full((7, 2), np.nan)
+    values[1], values[5] = 0.24252849, -2.27993692
+    day = np.array([0, 0, 1, 1, 2, 2, 3])
+    diary = Diary(items=("item0", "item1"), values=values, segment=day.copy(), day=day,
+                  day_labels=("0", "1", "2", "3"), prompt=np.array([1., 2., 1., 2., 1., 2., 1.]))
+    check_fit_or_plain_error(diary, make_spec({"s": ["item0", "item1"]}), "continuous-time")
+
+
 @pytest.mark.parametrize("estimator", list(ESTIMATORS))
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(case=small_diaries())
