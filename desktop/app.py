@@ -7,6 +7,12 @@ writes the demo diary to a file for the command line. `lagwise FILE` opens
 a project (.lagwise) or imports a data file; at start-up the window offers to restore work
 autosaved before a crash. On Linux without a display, opening the window is refused with a
 hint instead of Qt aborting.
+
+Python's cycle collector runs in whichever thread happens to allocate: in an estimate's worker
+thread it could destroy Qt objects the window's thread owns (a crash, or a hang). The
+application therefore collects on a timer in the window's thread instead (pyqtgraph's
+GarbageCollector: automatic collection off, the same generations collected every
+GC_INTERVAL seconds once their counts pass the usual thresholds).
 """
 
 from __future__ import annotations
@@ -25,6 +31,8 @@ DEMO_DIARY = demo_diary_path()
 DEMO_FOLDER = DEMO_DIARY.parent
 DEMO_TRUTH = DEMO_FOLDER / "demo_truth.json"
 SCREENSHOT_SIZE = (1440, 900)
+GC_INTERVAL = 0.25      # seconds between the window thread's garbage collections
+_collector = None       # the one GarbageCollector (made with the application)
 NO_DISPLAY = ("no display is available to open the window (DISPLAY and WAYLAND_DISPLAY are "
               "not set); try 'lagwise demo --screenshot demo.png' to render the demo to a "
               "picture instead")
@@ -38,7 +46,8 @@ def has_display() -> bool:
 
 
 def make_app(argv: list[str] | None = None):
-    """The QApplication (made once), with names for QSettings and the Lagwise style."""
+    """The QApplication (made once), with names for QSettings, the Lagwise style and garbage
+    collection in the window's thread only."""
     from PySide6.QtCore import Qt
     from PySide6.QtGui import QGuiApplication
     from PySide6.QtWidgets import QApplication
@@ -53,7 +62,19 @@ def make_app(argv: list[str] | None = None):
     app.setOrganizationName("Lagwise")
     app.setApplicationName("Lagwise")
     style.apply_style(app)
+    global _collector
+    if _collector is None:         # cycles are collected in this thread only (module docstring)
+        from pyqtgraph.util.garbage_collector import GarbageCollector
+
+        _collector = GarbageCollector(interval=GC_INTERVAL)
     return app
+
+
+def collect_garbage() -> None:
+    """The collector's timed check, run now (for code that does not spin the event loop);
+    nothing when automatic collection was never switched off."""
+    if _collector is not None:
+        _collector.check()
 
 
 def load_demo(session) -> None:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -24,6 +26,17 @@ def make_grid_table(days: int = 3, prompts: int = 5, items=("calm", "tense", "ti
     for name in items:
         table[name] = rng.integers(1, 8, size=len(rows)).astype(float)
     return table
+
+
+@pytest.fixture(autouse=True)
+def _collect_garbage_between_tests():
+    """Once a window test has made the application, garbage cycles are collected on a timer
+    in the window's thread only (desktop.app); tests that do not run its event loop get the
+    same generational collection after each test."""
+    yield
+    app = sys.modules.get("lagwise.desktop.app")
+    if app is not None:
+        app.collect_garbage()
 
 
 @pytest.fixture
