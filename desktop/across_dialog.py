@@ -26,7 +26,7 @@ from PySide6.QtWidgets import (
 )
 
 from lagwise.desktop.export import ask_and_save, export_menu, menu_button
-from lagwise.models.across import (NOT_MULTILEVEL, STUDY_CAUTIONS, Across, across_people,
+from lagwise.models.across import (CAUTION, NOT_MULTILEVEL, Across, across_people,
                                    estimates_wide_csv)
 from lagwise.models.kinds import parameter_words
 from lagwise.models.reporting.study import strip_figure
@@ -56,7 +56,7 @@ class AcrossDialog(QDialog):
     def __init__(self, folder: str | Path, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self.folder = Path(folder)
-        self.caution = " ".join((NOT_MULTILEVEL, *STUDY_CAUTIONS))   # every export repeats it
+        self.caution = CAUTION                     # every export repeats it
         self.outcomes = outcomes = read_batch(folder)
         across = across_people(outcomes)
         self.setWindowTitle(f"Across people: {Path(folder).name}")

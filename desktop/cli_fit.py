@@ -272,10 +272,10 @@ def save_fitted(args: argparse.Namespace, project: Project | None, spec: ModelSp
             project = Project.of_recipe(embed_file(args.data), recipe_from_args(args),
                                         spec=spec, options=options)
         project = with_estimate(project, result)
-        kept = {"lag2": check if check is not None and tests_result(check, result) else None,
-                "bootstrap": boot}
-        project = replace(project, runs=update_run(project.runs, project.current_run,
-                                                   **{k: v for k, v in kept.items() if v}))
+        kept = {"bootstrap": boot} if boot is not None else {}
+        if check is not None and tests_result(check, result):
+            kept["lag2"] = check
+        project = replace(project, runs=update_run(project.runs, project.current_run, **kept))
         save_project(project, args.save)
     except LagwiseError as error:
         print(f"lagwise: {error}", file=sys.stderr)

@@ -1,9 +1,9 @@
 """Where long runs compute: this computer's cores or a Dask cluster (Model ▸ Computing…).
 
 The setting is the user's, not the project's: it is kept in the application settings
-(QSettings) and used by "Estimate every person", the bootstrap and the Plan page. An empty scheduler
-address means this computer, with the chosen number of worker processes; an address
-(models.parallel.scheduler_address) sends the work to the cluster's workers.
+(QSettings) and used by "Estimate every person", the bootstrap and the Plan page. An empty
+scheduler address means this computer, with the chosen number of worker processes; an
+address (models.parallel.scheduler_address) sends the work to the cluster's workers.
 """
 
 from __future__ import annotations

@@ -199,8 +199,9 @@ def keep_rows_together(document: QTextDocument) -> None:
     """Move every table row that would start on one page and end on the next wholly to the
     next page (below the repeated header): Qt's layout breaks a row between its lines, but
     carries a row over whole once its top padding grows; the smallest growth that does (8,
-    16, 32, ... pixels, under a millimetre to start with) is kept. One pass in document order over the tables that cross a page
-    (a change moves only what follows it; a row taller than a page stays split)."""
+    16, 32, ... pixels, under a millimetre to start with) is kept. One pass in document
+    order over the tables that cross a page (a change moves only what follows it; a row
+    taller than a page stays split)."""
     height = document.pageSize().height()
     layout = document.documentLayout()
     for table in tables(document):

@@ -38,8 +38,9 @@ STUDY_CAUTIONS = (
     "These results are not a diagnosis; interpret them with clinical judgement and local "
     "practice.",
 )
+CAUTION = " ".join((NOT_MULTILEVEL, *STUDY_CAUTIONS))   # every export across people repeats it
 # the last line of the batch's CSV tables (pandas: read_csv(..., comment="#"))
-CAUTION_LINE = "# " + " ".join((NOT_MULTILEVEL, *STUDY_CAUTIONS)) + "\n"
+CAUTION_LINE = "# " + CAUTION + "\n"
 LAGGED = (Kind.INERTIA, Kind.CROSS_LAGGED, Kind.LAG2)
 
 

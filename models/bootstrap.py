@@ -7,7 +7,8 @@ start=result)`) and keeps the free parameters of every converged refit. Replicat
 joblib worker processes (loky) or on a Dask cluster, through models.parallel, in batches
 that each carry one copy of the inputs; replicate i draws with its own generator from
 `numpy.random.SeedSequence(seed).spawn(replicates)[i]`, so the answer depends on the seed
-only, never on the number of workers or the order in which batches finish. Refits that fail or do not converge are counted and left out.
+only, never on the number of workers or the order in which batches finish. Refits that
+fail or do not converge are counted and left out.
 
 From the estimates (Efron & Tibshirani 1993, "An Introduction to the Bootstrap"):
 - the percentile interval (Efron 1979; E&T ch. 13): the alpha/2 and 1 - alpha/2 quantiles of

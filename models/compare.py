@@ -37,7 +37,8 @@ from lagwise.models.runs import Run
 # (label, FitIndices field (scaled.*: of its calibrated test), fmt style) of the fit figures
 # compared, the calibrated ones first as on the Fit tab
 FIGURES = (("Calibrated chi-square", "scaled.chi2", "number"),
-           ("Calibrated df", "scaled.df", "number"), ("Calibrated p", "scaled.p", "p"), ("Calibrated RMSEA", "scaled.rmsea", "number"),
+           ("Calibrated df", "scaled.df", "number"), ("Calibrated p", "scaled.p", "p"),
+           ("Calibrated RMSEA", "scaled.rmsea", "number"),
            ("Calibrated CFI", "scaled.cfi", "number"), ("Calibrated TLI", "scaled.tli", "number"),
            ("Chi-square", "chi2", "number"), ("Degrees of freedom", "df", "int"),
            ("p (chi-square)", "p", "p"), ("RMSEA", "rmsea", "number"), ("CFI", "cfi", "number"),

@@ -33,7 +33,8 @@ class Covariances:
 
     canon (history nodes,) maps each history node to its filter node; a filter node is
     created from its parent's filtered covariance (parent -1: P_0) by a step of class `step`
-    and the answered items obs; batches lists (lo, hi) of filter nodes created together, in creation order.
+    and the answered items obs; batches lists (lo, hi) of filter nodes created together, in
+    creation order.
     """
 
     canon: np.ndarray
@@ -217,6 +218,6 @@ def covariances(plan: FilterPlan, sys: "_System") -> Covariances:
         raise EstimationError(NOT_PD)
     pattern = pattern[:size]
     return Covariances(canon=np.array(canon, dtype=np.int64), parent=parent[:size],
-                        step=step[:size], obs=plan.patterns[pattern], batches=batches, p_pred=p_pred[:size],
-                        p_filt=p_filt[:size], minv=minv[:size], w=w[:size],
-                        zb=zb_pat[pattern], logdet=logdet[:size])
+                       step=step[:size], obs=plan.patterns[pattern], batches=batches,
+                       p_pred=p_pred[:size], p_filt=p_filt[:size], minv=minv[:size],
+                       w=w[:size], zb=zb_pat[pattern], logdet=logdet[:size])
